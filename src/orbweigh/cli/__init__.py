@@ -1,0 +1,1 @@
+"""The ``orbweigh`` command: a thin layer over the public Python API."""

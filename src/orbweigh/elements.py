@@ -1,0 +1,144 @@
+"""Campbell elements and Thiele-Innes constants of an apparent (relative) orbit.
+
+Conventions (those of the trade):
+
+* theta counts from North through East; x = rho cos theta (North), y = rho sin theta (East).
+* i < 90 deg is direct motion (theta increasing), i > 90 deg retrograde.
+* A = a( cos w cos W - sin w sin W cos i),  B = a( cos w sin W + sin w cos W cos i),
+  F = a(-sin w cos W - cos w sin W cos i),  G = a(-sin w sin W + cos w cos W cos i),
+  with W the node Omega and w the periastron argument omega.
+* Positions alone fix (Omega, omega) only up to a common 180 deg shift; without radial
+  velocities Omega is reported in [0, 180) deg.
+
+The vectorised functions work in radians; ``CampbellElements`` holds the public values
+in the units its field names state.
+"""
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass
+
+import numpy as np
+
+__all__ = [
+    "CampbellElements",
+    "ELEMENT_KEYS",
+    "ELEMENT_UNITS",
+    "thiele_innes_from_campbell",
+    "campbell_from_thiele_innes",
+    "normalise_node",
+]
+
+#: Keys of the elements in result documents, in the order used everywhere.
+ELEMENT_KEYS = ("P", "T", "e", "a", "i", "Omega", "omega")
+ELEMENT_UNITS = {"P": "yr", "T": "yr", "e": "", "a": "arcsec",
+                 "i": "deg", "Omega": "deg", "omega": "deg"}
+_FIELDS = ("period_yr", "periastron_yr", "e", "a_arcsec", "i_deg", "node_deg", "omega_deg")
+
+
+@dataclass(frozen=True)
+class CampbellElements:
+    """The seven Campbell elements of an apparent orbit.
+
+    Attributes
+    ----------
+    period_yr : float
+        Period P [Julian years of 365.25 d].
+    periastron_yr : float
+        Epoch of periastron T, as a decimal Julian year (J2000.0 = 2000.0).
+    e : float
+        Eccentricity, 0 <= e < 1.
+    a_arcsec : float
+        Angular semi-major axis a [arcsec].
+    i_deg : float
+        Inclination i [deg], 0..180; < 90 direct, > 90 retrograde.
+    node_deg : float
+        Position angle of the ascending node Omega [deg].
+    omega_deg : float
+        Argument of periastron omega [deg], measured in the orbit plane from the node.
+    """
+
+    period_yr: float
+    periastron_yr: float
+    e: float
+    a_arcsec: float
+    i_deg: float
+    node_deg: float
+    omega_deg: float
+
+    def __post_init__(self):
+        if not self.period_yr > 0:
+            raise ValueError(f"period must be positive, got {self.period_yr}")
+        if not 0 <= self.e < 1:
+            raise ValueError(f"eccentricity must satisfy 0 <= e < 1, got {self.e}")
+        if not self.a_arcsec > 0:
+            raise ValueError(f"semi-major axis must be positive, got {self.a_arcsec}")
+
+    @classmethod
+    def from_keys(cls, values):
+        """Build from a mapping with the trade's keys P, T, e, a, i, Omega, omega."""
+        return cls(*(float(values[k]) for k in ELEMENT_KEYS))
+
+    def to_keys(self):
+        """Mapping with the trade's keys P, T, e, a, i, Omega, omega."""
+        return dict(zip(ELEMENT_KEYS, (getattr(self, f) for f in _FIELDS)))
+
+    def as_tuple(self):
+        return tuple(asdict(self)[f] for f in _FIELDS)
+
+    def thiele_innes(self):
+        """(A, B, F, G) in arcsec."""
+        return thiele_innes_from_campbell(
+            self.a_arcsec, *np.radians([self.i_deg, self.node_deg, self.omega_deg]))
+
+    def normalised(self):
+        """Same orbit with Omega in [0, 180) and omega in [0, 360) (node ambiguity)."""
+        node, omega = normalise_node(np.radians(self.node_deg), np.radians(self.omega_deg))
+        return CampbellElements(self.period_yr, self.periastron_yr, self.e, self.a_arcsec,
+                                self.i_deg, float(np.degrees(node)), float(np.degrees(omega)))
+
+
+def thiele_innes_from_campbell(a, i, node, omega):
+    """Thiele-Innes constants (A, B, F, G) from a and the angles i, Omega, omega [rad]."""
+    cw, sw, cn, sn, ci = np.cos(omega), np.sin(omega), np.cos(node), np.sin(node), np.cos(i)
+    A = a * (cw * cn - sw * sn * ci)
+    B = a * (cw * sn + sw * cn * ci)
+    F = a * (-sw * cn - cw * sn * ci)
+    G = a * (-sw * sn + cw * cn * ci)
+    return A, B, F, G
+
+
+def campbell_from_thiele_innes(A, B, F, G):
+    """Invert the Thiele-Innes constants.
+
+    Returns
+    -------
+    a, i, node, omega
+        a in the unit of A..G; angles [rad], i in [0, pi], node in [0, pi),
+        omega in [0, 2 pi).
+
+    Notes
+    -----
+    A + G = a(1 + cos i) cos(w + W),  B - F = a(1 + cos i) sin(w + W),
+    A - G = a(1 - cos i) cos(w - W), -B - F = a(1 - cos i) sin(w - W),
+    so both sums come from atan2 without quadrant guessing. With
+    k = (A^2 + B^2 + F^2 + G^2)/2 and j = AG - BF = a^2 cos i:  a^2 = k + sqrt(k^2 - j^2).
+    """
+    A, B, F, G = (np.asarray(v, float) for v in (A, B, F, G))
+    k = 0.5 * (A**2 + B**2 + F**2 + G**2)
+    j = A * G - B * F
+    a = np.sqrt(k + np.sqrt(np.maximum(k**2 - j**2, 0.0)))
+    i = np.arccos(np.clip(j / a**2, -1.0, 1.0))
+    w_plus = np.arctan2(B - F, A + G)
+    w_minus = np.arctan2(-B - F, A - G)
+    node, omega = normalise_node(0.5 * (w_plus - w_minus), 0.5 * (w_plus + w_minus))
+    return a, i, node, omega
+
+
+def normalise_node(node, omega):
+    """Shift (Omega, omega) together by 180 deg so that Omega lies in [0, pi).
+
+    The apparent orbit is unchanged by the common shift; omega is returned in [0, 2 pi).
+    """
+    node = np.asarray(node, float)
+    shift = np.floor(node / np.pi) * np.pi
+    return node - shift, np.mod(np.asarray(omega, float) - shift, 2.0 * np.pi)

@@ -1,0 +1,74 @@
+"""Kepler's equation E - e sin E = M, vectorised over arrays of M and e.
+
+Angles in radians. The solver is a bracketed Newton iteration: for M reduced to
+[0, pi] the root lies in [M, min(M + e, pi)], so every step that would leave the
+bracket is replaced by bisection. That makes it converge for every 0 <= e < 1 and every
+M, including the hard corner e -> 1, M -> 0 where plain fixed-point iteration fails.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = ["eccentric_anomaly", "true_anomaly", "mean_anomaly"]
+
+_TOLERANCE = 1e-15
+_MAX_ITERATIONS = 100
+
+
+def mean_anomaly(t, period, t_peri):
+    """Mean anomaly 2 pi (t - T) / P in radians, reduced to [0, 2 pi)."""
+    return np.mod(2.0 * np.pi * (np.asarray(t, float) - t_peri) / period, 2.0 * np.pi)
+
+
+def eccentric_anomaly(mean_anom, e):
+    """Solve Kepler's equation for the eccentric anomaly.
+
+    Parameters
+    ----------
+    mean_anom : array_like
+        Mean anomaly M [rad], any real value.
+    e : array_like
+        Eccentricity, 0 <= e < 1; broadcast against ``mean_anom``.
+
+    Returns
+    -------
+    ndarray
+        Eccentric anomaly E [rad], in the same 2 pi turn as M (E = M at M = k pi).
+
+    Notes
+    -----
+    |E - e sin E - M| < 1e-12 rad for M taken modulo 2 pi (the reduction of a huge M to
+    one turn is itself only as exact as the floating-point M).
+    """
+    m_in, ecc = np.broadcast_arrays(np.asarray(mean_anom, float), np.asarray(e, float))
+    if np.any((ecc < 0) | (ecc >= 1)):
+        raise ValueError("eccentricity must satisfy 0 <= e < 1")
+    turns = np.floor((m_in + np.pi) / (2.0 * np.pi))
+    m_red = m_in - 2.0 * np.pi * turns          # in [-pi, pi)
+    sign = np.where(m_red < 0, -1.0, 1.0)
+    m = np.abs(m_red)                            # solve on [0, pi], odd symmetry
+    lo = m.copy()
+    hi = np.minimum(m + ecc, np.pi)
+    # Starter after Danby (1987): good for all e, never outside the bracket.
+    E = np.clip(m + 0.85 * ecc * np.sign(np.sin(m)), lo, hi)
+    for _ in range(_MAX_ITERATIONS):
+        f = E - ecc * np.sin(E) - m
+        lo = np.where(f < 0, E, lo)
+        hi = np.where(f > 0, E, hi)
+        step = f / (1.0 - ecc * np.cos(E))
+        new = E - step
+        outside = ~((new > lo) & (new < hi)) | ~np.isfinite(new)
+        new = np.where(outside, 0.5 * (lo + hi), new)
+        done = np.abs(new - E) <= _TOLERANCE * np.maximum(1.0, np.abs(E))
+        E = new
+        if np.all(done):
+            break
+    return sign * E + 2.0 * np.pi * turns
+
+
+def true_anomaly(ecc_anom, e):
+    """True anomaly nu [rad] from the eccentric anomaly, in the same turn as E."""
+    ecc_anom = np.asarray(ecc_anom, float)
+    half = np.arctan2(np.sqrt(1.0 + e) * np.sin(ecc_anom / 2.0),
+                      np.sqrt(1.0 - e) * np.cos(ecc_anom / 2.0))
+    return 2.0 * half
