@@ -1,4 +1,4 @@
-"""Reductions to a common system: epoch scales and (later) position-angle precession.
+"""Reductions to a common system: epoch scales and precession of position angles to J2000.
 
 Internal time axis: decimal Julian years (TT), J2000.0 = 2000.0, year = 365.25 d.
 A log's epochs are written back in the scale the log used:
@@ -12,12 +12,27 @@ jd          ``JD2427000.5`` / large value Julian date [d]
 mjd         ``MJD51544.5``                modified Julian date [d]
 iso         ``1934-01-03``                Julian year (an ISO date has no decimal form)
 =========== ============================= ==================================
+
+A plain number is a Besselian year, or a Julian date when above 100000; plain years outside
+``PLAUSIBLE_YEARS`` are refused as typos or unprefixed day counts. Civil dates are read on
+the TT scale (the minute or so to UT is far below what an orbit resolves).
+
+Position angles measured for the equinox of date are referred to equinox J2000 by
+``precess_theta_to_j2000`` (rigorous, astropy FK5 precession);
+``approx_theta_correction_deg`` is the classic linear formula used as a check.
 """
 from __future__ import annotations
 
+import re
+
 import numpy as np
 
-__all__ = ["EPOCH_SCALES", "to_julian_year", "from_julian_year", "epoch_unit", "interval_in_scale"]
+from .errors import InputError
+
+__all__ = ["EPOCH_SCALES", "to_julian_year", "from_julian_year", "epoch_unit", "interval_in_scale",
+           "PLAUSIBLE_YEARS", "split_epoch", "parse_epoch", "parse_epochs", "julian_years_of",
+           "PA_PRECESSION_DEG_PER_YR", "parse_target_coordinates", "precess_theta_to_j2000",
+           "approx_theta_correction_deg"]
 
 EPOCH_SCALES = ("besselian", "julian", "jd", "mjd", "iso")
 
@@ -67,3 +82,206 @@ def epoch_unit(scale):
 def interval_in_scale(years, scale):
     """An interval of Julian years expressed in the unit of ``scale`` (days for jd/mjd)."""
     return np.asarray(years, float) * (_JULIAN_YEAR_D if epoch_unit(scale) == "d" else 1.0)
+
+
+# --------------------------------------------------------------------------- epochs as written
+
+#: Plain decimal years outside this window are taken for a typo or an unprefixed day count.
+PLAUSIBLE_YEARS = (1500.0, 2500.0)
+
+_ISO_DATE = re.compile(r"^\d{4}-\d{2}-\d{2}([ T]\d{1,2}(:\d{2}){0,2}(\.\d*)?)?$")
+_PREFIXES = (("MJD", "mjd"), ("JD", "jd"), ("B", "besselian"), ("J", "julian"))
+_HOW_TO_WRITE = ("write a decimal year (1934.372, read as Besselian), B1934.372, J1934.372, "
+                 "JD2427574.5, MJD27574.0 or an ISO date 1934-05-17")
+
+
+def split_epoch(text, day_unit=False):
+    """The number in an epoch as written, and the scale it is written in.
+
+    Parameters
+    ----------
+    text : str
+        An epoch as written in a log (see the module table). A plain number is a Besselian
+        year; a plain number above 100000 is a Julian date.
+    day_unit : bool
+        True when the column's unit says days: plain numbers are then JD (above 100000)
+        or MJD.
+
+    Returns
+    -------
+    value : float
+        The number in the scale's own unit (year, JD or MJD); for 'iso' the Julian year.
+    scale : str
+        One of ``EPOCH_SCALES``.
+
+    Raises
+    ------
+    ValueError
+        With a message saying what was expected.
+    """
+    s = str(text).strip()
+    if _ISO_DATE.match(s):
+        try:
+            t = _time_class()(s, format="isot" if "T" in s else "iso", scale="tt")
+        except ValueError:
+            raise ValueError(f"'{s}' looks like an ISO date but is not a valid one "
+                             "(expected YYYY-MM-DD or YYYY-MM-DDThh:mm)") from None
+        return float(t.jyear), "iso"
+    scale, number = None, s
+    for prefix, name in _PREFIXES:
+        if s.upper().startswith(prefix):
+            scale, number = name, s[len(prefix):].strip()
+            break
+    try:
+        value = float(number)
+    except ValueError:
+        raise ValueError(f"cannot read '{s}' as an epoch; {_HOW_TO_WRITE}") from None
+    if not np.isfinite(value):
+        raise ValueError(f"epoch '{s}' is not a finite number; {_HOW_TO_WRITE}")
+    if scale is None:
+        if value > 100000.0:
+            scale = "jd"
+        elif day_unit:
+            scale = "mjd"
+        else:
+            scale = "besselian"
+    if scale in ("besselian", "julian") and not PLAUSIBLE_YEARS[0] <= value <= PLAUSIBLE_YEARS[1]:
+        raise ValueError(f"epoch '{s}' read as a year is outside {PLAUSIBLE_YEARS[0]:.0f}-"
+                         f"{PLAUSIBLE_YEARS[1]:.0f}; if it is a day count give it a prefix "
+                         "(JD2427574.5 or MJD27574.0), otherwise correct the year")
+    return value, scale
+
+
+def parse_epoch(text, day_unit=False):
+    """Decimal Julian year (TT) and scale of one epoch as written (see ``split_epoch``).
+
+    Civil dates are read on the TT scale: the difference from UT (about a minute) is far
+    below anything an orbit can resolve.
+    """
+    value, scale = split_epoch(text, day_unit)
+    return float(to_julian_year(value, scale)), scale
+
+
+def parse_epochs(texts, day_unit=False):
+    """Vectorised ``parse_epoch``: (Julian years, scales) arrays; ValueError names the index."""
+    values, scales = [], []
+    for k, text in enumerate(texts):
+        try:
+            value, scale = split_epoch(text, day_unit)
+        except ValueError as exc:
+            raise ValueError(f"epoch {k}: {exc}") from None
+        values.append(value)
+        scales.append(scale)
+    return julian_years_of(values, scales), np.array(scales, dtype=str)
+
+
+def julian_years_of(values, scales):
+    """Julian years from numbers and their per-element scales (one astropy call a scale)."""
+    values, scales = np.asarray(values, float), np.asarray(scales, dtype=str)
+    out = np.empty(values.shape)
+    for scale in np.unique(scales):
+        sel = scales == scale
+        out[sel] = to_julian_year(values[sel], scale)
+    return out
+
+
+# ------------------------------------------------------------- position angles to equinox J2000
+
+#: Precession of a position angle per year and unit sin(alpha) sec(delta) [deg / yr].
+PA_PRECESSION_DEG_PER_YR = 0.00557
+
+
+def parse_target_coordinates(ra, dec):
+    """Right ascension and declination in degrees from numbers or sexagesimal text.
+
+    Parameters
+    ----------
+    ra : float or str
+        Degrees (``101.287``) or hours as 'hh:mm:ss.s' / '06h45m08.9s'.
+    dec : float or str
+        Degrees (``-16.716``) or 'dd:mm:ss' / '-16d42m58s'.
+
+    Returns
+    -------
+    ra_deg, dec_deg : float
+
+    Raises
+    ------
+    InputError
+        When a value cannot be read or is out of range.
+    """
+    from astropy.coordinates import Angle  # imported on use: astropy.coordinates is heavy
+
+    def angle(value, name, sexagesimal_unit):
+        text = str(value).strip()
+        try:
+            return float(text)
+        except ValueError:
+            pass
+        try:
+            return float(Angle(text, unit=sexagesimal_unit).deg)
+        except (ValueError, TypeError):
+            raise InputError(f"target {name} '{text}' is neither degrees nor sexagesimal "
+                             f"({'hh:mm:ss.s' if name == 'RA' else '+dd:mm:ss'})") from None
+
+    ra_deg, dec_deg = angle(ra, "RA", "hourangle"), angle(dec, "Dec", "deg")
+    if not 0.0 <= ra_deg < 360.0:
+        raise InputError(f"target RA {ra_deg} deg is outside [0, 360)")
+    if not -90.0 < dec_deg < 90.0:
+        raise InputError(f"target Dec {dec_deg} deg is outside (-90, 90): position angles "
+                         "are undefined at the pole")
+    return ra_deg, dec_deg
+
+
+def precess_theta_to_j2000(theta_deg, epoch_yr, ra_deg, dec_deg):
+    """Position angles measured for the equinox of date, referred to equinox J2000.
+
+    Rigorous: the pair is placed at (ra, dec) of J2000, carried to the FK5 equinox of each
+    epoch, a point 1 arcsec away along theta is transformed back to J2000 and its position
+    angle measured there. The 1 arcsec step keeps the error far below 1e-8 deg.
+
+    Parameters
+    ----------
+    theta_deg : array_like
+        Position angles for the equinox of date [deg].
+    epoch_yr : array_like
+        Epochs of observation = equinoxes of date [decimal Julian years].
+    ra_deg, dec_deg : float
+        J2000 coordinates of the pair [deg].
+
+    Returns
+    -------
+    ndarray
+        Position angles for equinox J2000 [deg, 0..360].
+    """
+    import astropy.units as u
+    from astropy.coordinates import FK5, SkyCoord
+    from astropy.time import Time
+
+    theta, t = np.broadcast_arrays(np.asarray(theta_deg, float), np.asarray(epoch_yr, float))
+    shape = theta.shape
+    theta, t = theta.ravel(), t.ravel()
+    j2000 = FK5(equinox=Time(2000.0, format="jyear", scale="tt"))
+    of_date = FK5(equinox=Time(t, format="jyear", scale="tt"))
+    star = SkyCoord(np.full(t.size, ra_deg) * u.deg, np.full(t.size, dec_deg) * u.deg,
+                    frame=j2000)
+    star_date = star.transform_to(of_date)
+    tip = star_date.directional_offset_by(theta * u.deg, 1.0 * u.arcsec)
+    tip = SkyCoord(tip.ra, tip.dec, frame=of_date).transform_to(j2000)
+    return np.mod(star.position_angle(tip).deg, 360.0).reshape(shape)
+
+
+def approx_theta_correction_deg(epoch_yr, ra_deg, dec_deg):
+    """Classic linear correction theta_2000 - theta_t = -0.00557 sin(a) sec(d) (t - 2000) [deg].
+
+    Good to a few per cent of itself over a century away from the pole; near the pole the
+    rigorous ``precess_theta_to_j2000`` is the reference.
+
+    References
+    ----------
+    R. G. Aitken, *The Binary Stars*, 1935 (the linear reduction of position angles to a
+    standard equinox; recalled from memory, sign checked against the rigorous rotation).
+    """
+    ra, dec = np.radians(ra_deg), np.radians(dec_deg)
+    return -PA_PRECESSION_DEG_PER_YR * np.sin(ra) / np.cos(dec) * (np.asarray(epoch_yr, float)
+                                                                    - 2000.0)
