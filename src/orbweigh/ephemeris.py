@@ -5,9 +5,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .elements import thiele_innes_from_campbell
 from .kepler import eccentric_anomaly, mean_anomaly
 
-__all__ = ["Ephemeris", "orbit_xy", "ephemeris", "xy_to_theta_rho"]
+__all__ = ["Ephemeris", "EphemerisBands", "orbit_xy", "ephemeris", "xy_to_theta_rho",
+           "ephemeris_bands"]
 
 
 @dataclass(frozen=True)
@@ -52,3 +54,70 @@ def ephemeris(elements, epoch_yr):
     x, y = orbit_xy(t, elements.period_yr, elements.periastron_yr, elements.e, A, B, F, G)
     theta, rho = xy_to_theta_rho(x, y)
     return Ephemeris(t, theta, rho, x, y)
+
+
+@dataclass(frozen=True)
+class EphemerisBands:
+    """Central 68 % bands of the predicted position at a set of epochs.
+
+    Attributes
+    ----------
+    theta_low_deg, theta_high_deg : ndarray
+        Band of the position angle [deg, in [0, 360)]. The band is the arc from low to
+        high in the sense of increasing theta; it passes through North (0 deg) when
+        low > high.
+    rho_low_arcsec, rho_high_arcsec : ndarray
+        Band of the separation [arcsec].
+    """
+
+    theta_low_deg: np.ndarray
+    theta_high_deg: np.ndarray
+    rho_low_arcsec: np.ndarray
+    rho_high_arcsec: np.ndarray
+
+
+_BAND_PERCENTILES = (15.865525393145708, 84.13447460685429)  # central 68.27 %, 1 sigma
+_CHUNK = 2_000_000  # draws x epochs evaluated at once: bounds the memory used
+
+
+def ephemeris_bands(elements, draws, epoch_yr):
+    """68 % bands of theta and rho from draws of the elements.
+
+    Parameters
+    ----------
+    elements : CampbellElements
+        The best elements; theta spreads are taken relative to their prediction.
+    draws : ndarray, shape (n, 7)
+        Element draws in the order P [yr], T [Julian yr], e, a [arcsec], i, Omega,
+        omega [deg].
+    epoch_yr : array_like
+        Epochs as decimal Julian years.
+
+    Returns
+    -------
+    EphemerisBands
+
+    Notes
+    -----
+    Each draw's theta is compared with the best prediction and the difference wrapped
+    into (-180, 180] deg before taking percentiles, so a band crossing North is neither
+    split nor blown up to the whole circle.
+    """
+    t = np.atleast_1d(np.asarray(epoch_yr, float))
+    best = ephemeris(elements, t)
+    d = np.asarray(draws, float)
+    A, B, F, G = thiele_innes_from_campbell(d[:, 3], *np.radians(d[:, 4:7].T))
+    step = max(1, _CHUNK // len(d))
+    parts = []
+    for start in range(0, t.size, step):
+        sl = slice(start, start + step)
+        x, y = orbit_xy(t[None, sl], d[:, 0, None], d[:, 1, None], d[:, 2, None],
+                        A[:, None], B[:, None], F[:, None], G[:, None])
+        theta, rho = xy_to_theta_rho(x, y)
+        dtheta = 180.0 - np.mod(180.0 - (theta - best.theta_deg[sl]), 360.0)
+        parts.append((np.percentile(dtheta, _BAND_PERCENTILES, axis=0),
+                      np.percentile(rho, _BAND_PERCENTILES, axis=0)))
+    dq = np.concatenate([p[0] for p in parts], axis=1)
+    rq = np.concatenate([p[1] for p in parts], axis=1)
+    low, high = np.mod(best.theta_deg + dq, 360.0)
+    return EphemerisBands(low, high, rq[0], rq[1])
