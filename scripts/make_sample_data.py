@@ -10,7 +10,8 @@ seeded generator, so the files are rebuilt byte for byte:
     python scripts/make_sample_data.py --check    # exit 1 if the committed files differ
 
 Position angles are written for the equinox of the date of observation (the custom of
-measurement logs); reduce them to J2000 with the target coordinates TARGET_RA/TARGET_DEC.
+measurement logs; space astrometry excepted, which is in the ICRS); reduce them to J2000
+with the target coordinates TARGET_RA/TARGET_DEC.
 """
 from __future__ import annotations
 
@@ -118,7 +119,9 @@ def make_measurements(rng):
     for technique, byear in draw_epochs(rng):
         jyear = float(to_julian_year(byear, "besselian"))
         eph = ephemeris(TRUE, jyear)
-        theta = float(eph.theta_deg[0]) + pa_rotation_to_date(jyear)
+        # space astrometry gives position angles in the ICRS, aligned with J2000
+        theta = float(eph.theta_deg[0]) + (0.0 if technique == "space"
+                                           else pa_rotation_to_date(jyear))
         rho = float(eph.rho_arcsec[0])
         s_theta, s_rho = stated_sigmas(rng, technique, rho)
         rows.append(dict(technique=technique, byear=byear, theta=theta, rho=rho,
