@@ -1,0 +1,558 @@
+"""Dynamical masses: Kepler's third law, parallax propagation, component masses and the
+dynamical parallax.
+
+Units: P in Julian years (365.25 d), a in arcsec, parallaxes in mas, masses in M_sun,
+radial-velocity amplitudes in km/s.
+
+Third law (astropy's IAU constants, no literal 1)::
+
+    M1 + M2 = 4 pi^2 (a / plx au)^3 / (GM_sun P^2) = f (a / plx)^3 / P^2,
+
+with f = 4 pi^2 au^3 / (GM_sun yr^2) = 1.0000378 for the Julian year, the nominal
+solar mass parameter (IAU 2015 Resolution B3) and the astronomical unit (IAU 2012
+Resolution B2).
+
+Random draws use the stream ``SeedSequence(seed).spawn(1)[0]``, independent of a
+``default_rng(seed)`` that made the (P, a) draws with the same seed.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from astropy import constants
+
+from .errors import InputError
+
+__all__ = [
+    "THIRD_LAW_FACTOR", "KMS_PER_AU_YR", "EKER_RANGE_MSUN", "MANN_RANGE_MKS", "M_BOL_SUN",
+    "BANDS", "total_mass_msun", "parallax_for_mass_mas", "orbital_parallax_mas",
+    "linear_propagation", "eker_log_luminosity", "eker_mass_from_log_luminosity",
+    "mann_mass_from_mks", "mass_from_absolute_magnitude", "DynamicalParallax",
+    "dynamical_parallax", "summarise", "mass_blocks", "format_mass_blocks",
+]
+
+_YEAR_S = 365.25 * 86400.0  # Julian year [s], the internal time unit
+_AU_M = constants.au.to_value("m")
+#: 4 pi^2 au^3 / (GM_sun yr^2): the third law's factor in solar units, Julian year.
+THIRD_LAW_FACTOR = float(4.0 * np.pi**2 * _AU_M**3 / (constants.GM_sun.to_value("m3 / s2")
+                                                      * _YEAR_S**2))
+#: 1 au per Julian year in km/s.
+KMS_PER_AU_YR = _AU_M / 1e3 / _YEAR_S
+#: Bolometric magnitude of the Sun (IAU 2015 Resolution B2).
+M_BOL_SUN = 4.74
+
+# Eker et al. 2018, MNRAS 479, 5491, Table 4: log(L/L_sun) = alpha log(M/M_sun) + beta
+# on M_lo < M <= M_hi. Columns: M_lo, M_hi, alpha, beta.
+_EKER_PIECES = np.array([
+    (0.179, 0.45, 2.028, -0.976),
+    (0.45, 0.72, 4.572, -0.102),
+    (0.72, 1.05, 5.743, -0.007),
+    (1.05, 2.4, 4.329, 0.010),
+    (2.4, 7.0, 3.967, 0.093),
+    (7.0, 31.0, 2.865, 1.105),
+])
+EKER_RANGE_MSUN = (0.179, 31.0)
+# Mann et al. 2019, ApJ 871, 63, Table 6: log(M/M_sun) = sum a_i (M_Ks - 7.5)^i.
+_MANN_COEFFS = (-0.642, -0.208, -8.43e-4, 7.87e-3, 1.42e-4, -2.13e-4)
+MANN_RANGE_MKS = (4.0, 11.0)
+#: Supported magnitude bands for the dynamical parallax -> what the relation is.
+BANDS = {"bol": "apparent bolometric magnitudes, Eker et al. 2018 (MNRAS 479, 5491) "
+                "main-sequence relation, valid 0.179-31 M_sun",
+         "K": "2MASS Ks magnitudes, Mann et al. 2019 (ApJ 871, 63) M-dwarf relation, "
+              "valid 4 < M_Ks < 11"}
+_PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)
+_MAX_ITER = 100
+_TOL = 1e-10
+
+
+# --------------------------------------------------------------------------- third law
+def total_mass_msun(a_arcsec, parallax_mas, period_yr):
+    """Total mass M1 + M2 [M_sun] from Kepler's third law, vectorised.
+
+    Parameters
+    ----------
+    a_arcsec : array_like
+        Angular semi-major axis of the relative orbit [arcsec].
+    parallax_mas : array_like
+        Parallax [mas], positive.
+    period_yr : array_like
+        Period [Julian years].
+
+    Notes
+    -----
+    M = 4 pi^2 (a/plx au)^3 / (GM_sun P^2) with a/plx in au (same angular unit) and P
+    in seconds, i.e. ``THIRD_LAW_FACTOR * (a/plx)^3 / P^2`` with P in Julian years.
+    """
+    a_au = np.asarray(a_arcsec, float) / (np.asarray(parallax_mas, float) * 1e-3)
+    return THIRD_LAW_FACTOR * a_au**3 / np.asarray(period_yr, float) ** 2
+
+
+def parallax_for_mass_mas(a_arcsec, period_yr, mass_msun):
+    """Parallax [mas] at which the orbit (a [arcsec], P [Julian yr]) has total mass M [M_sun].
+
+    The third law solved for the parallax: plx = a (f / (P^2 M))^(1/3).
+    """
+    ratio = THIRD_LAW_FACTOR / (np.asarray(period_yr, float) ** 2 * np.asarray(mass_msun, float))
+    return 1e3 * np.asarray(a_arcsec, float) * np.cbrt(ratio)
+
+
+def orbital_parallax_mas(a_arcsec, period_yr, e, i_deg, k_sum_kms):
+    """Orbital parallax [mas] from the visual orbit and the sum of the velocity amplitudes.
+
+    The spectroscopic orbit gives the linear semi-major axis
+    a sin i = (K1 + K2) P sqrt(1 - e^2) / (2 pi) (K in au/yr, P in yr, a in au); the visual
+    orbit gives i and a in arcsec, hence plx = a["] / a[au].
+    """
+    k_au_yr = np.asarray(k_sum_kms, float) / KMS_PER_AU_YR
+    sin_i = np.abs(np.sin(np.radians(i_deg)))
+    a_au = k_au_yr * np.asarray(period_yr, float) * np.sqrt(1.0 - np.asarray(e, float) ** 2) \
+        / (2.0 * np.pi * sin_i)
+    return 1e3 * np.asarray(a_arcsec, float) / a_au
+
+
+def linear_propagation(period_yr, a_arcsec, cov_Pa, parallax_mas, parallax_err_mas):
+    """First-order mass, relative error and variance budget.
+
+    Parameters
+    ----------
+    period_yr, a_arcsec : float
+        Best P [Julian yr] and a [arcsec].
+    cov_Pa : (2, 2) array_like
+        Covariance of (P, a) [yr^2, yr arcsec, arcsec^2].
+    parallax_mas, parallax_err_mas : float
+        Parallax and its error [mas].
+
+    Returns
+    -------
+    mass : float
+        Third-law mass at the best values [M_sun].
+    rel_err : float
+        sigma_M / M.
+    budget : dict or None
+        Share of var(ln M) from ``parallax``, ``a``, ``P`` and ``a_P_covariance`` (sum 1;
+        None when every error is zero).
+
+    Notes
+    -----
+    d ln M = 3 d ln a - 2 d ln P - 3 d ln plx, so
+    (sigma_M/M)^2 = (3 sa/a)^2 + (2 sP/P)^2 + (3 splx/plx)^2 - 12 cov(a, P)/(a P).
+    The covariance term is reported on its own: it is negative when a and P are
+    positively correlated (then it cancels part of the a and P shares).
+    """
+    cov = np.asarray(cov_Pa, float)
+    terms = {"parallax": (3.0 * parallax_err_mas / parallax_mas) ** 2,
+             "a": 9.0 * cov[1, 1] / a_arcsec**2,
+             "P": 4.0 * cov[0, 0] / period_yr**2,
+             "a_P_covariance": -12.0 * cov[0, 1] / (a_arcsec * period_yr)}
+    var = sum(terms.values())
+    budget = {k: float(v / var) for k, v in terms.items()} if var > 0 else None
+    mass = float(total_mass_msun(a_arcsec, parallax_mas, period_yr))
+    return mass, float(np.sqrt(max(var, 0.0))), budget
+
+
+# ------------------------------------------------------------ mass-luminosity relations
+def eker_log_luminosity(mass_msun):
+    """log10(L/L_sun) from the mass [M_sun] (Eker et al. 2018, Table 4).
+
+    A mass on a break belongs to the lower piece; outside 0.179-31 M_sun the end
+    pieces are extrapolated.
+    """
+    m = np.asarray(mass_msun, float)
+    k = np.clip(np.searchsorted(_EKER_PIECES[:, 1], m, side="left"), 0, len(_EKER_PIECES) - 1)
+    return _EKER_PIECES[k, 2] * np.log10(m) + _EKER_PIECES[k, 3]
+
+
+def eker_mass_from_log_luminosity(log_l):
+    """Mass [M_sun] from log10(L/L_sun), inverting Eker et al. 2018, Table 4.
+
+    Notes
+    -----
+    The pieces do not join, so near a break a luminosity is reached by two pieces
+    (overlap) or by none (gap). Rule, chosen so that the inverse is continuous and
+    increasing (which keeps the dynamical-parallax iteration stable):
+
+    * where one piece alone reaches log L, its inverse;
+    * in an overlap [L_upper(b), L_lower(b)] of the pieces below and above the break b,
+      log M is blended linearly in log L from the lower piece's inverse (at the
+      overlap's faint end) to the upper piece's inverse (at its bright end);
+    * in a gap, M is the break mass b.
+
+    Beyond 0.179 and 31 M_sun the end pieces are extrapolated.
+    """
+    x = np.asarray(log_l, float)
+    lo, hi, alpha, beta = (np.log10(_EKER_PIECES[:, 0]), np.log10(_EKER_PIECES[:, 1]),
+                           _EKER_PIECES[:, 2], _EKER_PIECES[:, 3])
+    cand = (x[..., None] - beta) / alpha  # log M from each piece
+    lo_ext, hi_ext = lo.copy(), hi.copy()
+    lo_ext[0], hi_ext[-1] = -np.inf, np.inf
+    inside = (cand >= lo_ext) & (cand <= hi_ext)
+    log_m = np.take_along_axis(cand, inside.argmax(-1)[..., None], -1)[..., 0]
+    for j, b in enumerate(hi[:-1]):
+        l_below, l_above = alpha[j] * b + beta[j], alpha[j + 1] * b + beta[j + 1]
+        if l_above < l_below:  # overlap
+            w = (x - l_above) / (l_below - l_above)
+            zone = (w >= 0) & (w <= 1)
+            blend = (1.0 - w) * cand[..., j] + w * cand[..., j + 1]
+            log_m = np.where(zone, blend, log_m)
+        else:  # gap
+            log_m = np.where((x > l_below) & (x < l_above), b, log_m)
+    return 10.0**log_m
+
+
+def mann_mass_from_mks(mks):
+    """Mass [M_sun] from the absolute Ks magnitude (Mann et al. 2019, Table 6).
+
+    Valid for 4 < M_Ks < 11 (M dwarfs, about 0.075-0.70 M_sun).
+    """
+    return 10.0 ** np.polynomial.polynomial.polyval(np.asarray(mks, float) - 7.5, _MANN_COEFFS)
+
+
+def _check_band(band):
+    key = {"bol": "bol", "k": "K", "ks": "K"}.get(str(band).lower())
+    if key is None:
+        listed = "; ".join(f"'{k}' ({v})" for k, v in BANDS.items())
+        raise InputError(f"band {band!r} is not supported for the dynamical parallax: no "
+                         f"relation with a published source for it is built in. Supported "
+                         f"bands: {listed}. For V magnitudes apply a bolometric correction "
+                         f"of your choice and give --band bol")
+    return key
+
+
+def mass_from_absolute_magnitude(abs_mag, band):
+    """Main-sequence mass [M_sun] from an absolute magnitude in ``band`` ('bol' or 'K')."""
+    if _check_band(band) == "K":
+        return mann_mass_from_mks(abs_mag)
+    return eker_mass_from_log_luminosity((M_BOL_SUN - np.asarray(abs_mag, float)) / 2.5)
+
+
+def _outside_validity(abs_mags, masses, band):
+    """Boolean mask of draws with a component outside the relation's validity range."""
+    if band == "K":
+        values, (low, high) = abs_mags, MANN_RANGE_MKS
+    else:
+        values, (low, high) = masses, EKER_RANGE_MSUN
+    return np.any((values < low) | (values > high), axis=0)
+
+
+# ------------------------------------------------------------------ dynamical parallax
+@dataclass(frozen=True)
+class DynamicalParallax:
+    """Self-consistent parallax and masses from the third law and a mass-luminosity relation.
+
+    Attributes
+    ----------
+    parallax_mas : ndarray
+        Dynamical parallax [mas], one per (P, a).
+    mass1_msun, mass2_msun : ndarray
+        Component masses [M_sun] from the relation at that parallax.
+    abs_mag1, abs_mag2 : ndarray
+        Absolute magnitudes [mag] at that parallax.
+    iterations : int
+        Iterations done (all draws together).
+    converged : bool
+        Whether every draw met the tolerance (relative change of the total mass < 1e-10).
+    history : list of tuple
+        Per iteration: (parallax_mas, abs_mag1, abs_mag2, mass1, mass2) arrays.
+    """
+
+    parallax_mas: np.ndarray
+    mass1_msun: np.ndarray
+    mass2_msun: np.ndarray
+    abs_mag1: np.ndarray
+    abs_mag2: np.ndarray
+    iterations: int
+    converged: bool
+    history: list
+
+
+def dynamical_parallax(a_arcsec, period_yr, mag1, mag2, band):
+    """Iterate the third law with a mass-luminosity relation to a self-consistent parallax.
+
+    Parameters
+    ----------
+    a_arcsec, period_yr : array_like
+        Semi-major axis [arcsec] and period [Julian yr]; draws are iterated together.
+    mag1, mag2 : float
+        Apparent magnitudes of the primary and secondary in ``band`` [mag].
+    band : {'bol', 'K'}
+        Band of the magnitudes.
+
+    Notes
+    -----
+    Start from M1 + M2 = 2 M_sun; plx = a (f / (P^2 (M1 + M2)))^(1/3);
+    M_abs = m + 5 + 5 log10(plx["]); masses from the relation; repeat. A mass error
+    delta moves the parallax by only delta/3, so the iteration contracts: the factor
+    is (2/3) d log M / d log L, below 1/3 on the Eker pieces and 0.66 in their blends.
+    References: Russell & Moore 1940; Baize & Romani 1946.
+    """
+    band = _check_band(band)
+    a, p = np.atleast_1d(np.asarray(a_arcsec, float)), np.atleast_1d(np.asarray(period_yr, float))
+    total = np.full(np.broadcast(a, p).shape, 2.0)
+    history = []
+    for iteration in range(1, _MAX_ITER + 1):
+        plx = parallax_for_mass_mas(a, p, total)
+        shift = 5.0 + 5.0 * np.log10(plx * 1e-3)
+        mabs1, mabs2 = mag1 + shift, mag2 + shift
+        m1, m2 = mass_from_absolute_magnitude(mabs1, band), mass_from_absolute_magnitude(mabs2, band)
+        history.append((plx, mabs1, mabs2, m1, m2))
+        new_total = m1 + m2
+        done = bool(np.all(np.abs(new_total / total - 1.0) < _TOL))
+        total = new_total
+        if done:
+            break
+    plx = parallax_for_mass_mas(a, p, total)  # consistent with the final masses
+    return DynamicalParallax(plx, m1, m2, mabs1, mabs2, iteration, done, history)
+
+
+# ------------------------------------------------------------------------- summaries
+def _json_float(x):
+    x = float(x)
+    return x if np.isfinite(x) else None
+
+
+def summarise(samples, unit):
+    """Median and 16/84, 2.5/97.5 percentiles of draws; +inf draws count as unbounded.
+
+    A percentile that falls among unbounded draws is reported as None.
+    """
+    s = np.asarray(samples, float)
+    finite_max = np.max(s[np.isfinite(s)], initial=-np.inf)
+    p = np.percentile(np.where(np.isinf(s), np.finfo(float).max, s), _PERCENTILES)
+    p = [v if v <= finite_max else np.inf for v in p]
+    keys = ("low95", "low", "value", "high", "high95")
+    return {**{k: _json_float(v) for k, v in zip(keys, p)}, "unit": unit}
+
+
+def _linear_block(value, rel_err):
+    return {"value": value, "error": value * rel_err}
+
+
+def _positive_normal(rng, value, error, n, name, warnings):
+    """Normal draws truncated to > 0 by redrawing; warns how many were redrawn."""
+    draws = rng.normal(value, error, n)
+    redrawn = 0
+    while np.any(bad := draws <= 0):
+        redrawn += int(bad.sum())
+        draws[bad] = rng.normal(value, error, int(bad.sum()))
+    if redrawn:
+        warnings.append(f"{redrawn} draws of {name} were not positive and were drawn again "
+                        f"(its distribution is truncated at zero).")
+    return draws
+
+
+def _mass_ratio(rng, n, mass_ratio, rv_amplitudes, warnings):
+    """Draws of q = M2/M1, its value and relative error, and draws of K1 + K2 (or None)."""
+    if mass_ratio is not None:
+        q, q_err = _pair(mass_ratio, "mass ratio")
+        return _positive_normal(rng, q, q_err, n, "the mass ratio", warnings), q, q_err / q, None
+    k1, k1_err = _pair(rv_amplitudes[:2], "K1")
+    k2, k2_err = _pair(rv_amplitudes[2:], "K2")
+    k1_draws = _positive_normal(rng, k1, k1_err, n, "K1", warnings)
+    k2_draws = _positive_normal(rng, k2, k2_err, n, "K2", warnings)
+    return (k1_draws / k2_draws, k1 / k2, float(np.hypot(k1_err / k1, k2_err / k2)),
+            k1_draws + k2_draws)
+
+
+def _pair(value_error, name):
+    value, error = (float(v) for v in value_error)
+    if not (np.isfinite(value) and value > 0):
+        raise InputError(f"the {name} must be a positive number, got {value}")
+    if not (np.isfinite(error) and error >= 0):
+        raise InputError(f"the error of the {name} must be zero or positive, got {error}")
+    return value, error
+
+
+def _components(total_draws, q_draws, total_linear, q, q_rel):
+    """Primary and secondary blocks from total-mass and q draws (independent)."""
+    m1, m2 = total_draws / (1.0 + q_draws), total_draws * q_draws / (1.0 + q_draws)
+    blocks = {"primary": summarise(m1, "solMass"), "secondary": summarise(m2, "solMass")}
+    if total_linear is not None:
+        value, rel = total_linear["value"], total_linear["error"] / total_linear["value"]
+        dq = q * q_rel  # absolute error of q
+        # d ln M1 = d ln M - dq/(1+q);  d ln M2 = d ln M + dq/(q (1+q))
+        blocks["primary"]["linear"] = _linear_block(value / (1 + q), np.hypot(rel, dq / (1 + q)))
+        blocks["secondary"]["linear"] = _linear_block(value * q / (1 + q),
+                                                      np.hypot(rel, dq / (q * (1 + q))))
+    return blocks
+
+
+def _trigonometric(period, a, parallax, best, cov_Pa, rng, warnings):
+    value, error = (float(v) for v in parallax)
+    if not np.isfinite(value) or value <= 0:
+        raise InputError(f"the parallax {value} mas is not positive: the third law gives no "
+                         f"mass for it (a zero or negative parallax means the distance is "
+                         f"unknown). Give a positive parallax, or use --magnitudes for a "
+                         f"dynamical parallax")
+    if not (np.isfinite(error) and error >= 0):
+        raise InputError(f"the parallax error must be zero or positive, got {error} mas")
+    if error > 0 and value / error < 10:
+        warnings.append(f"The parallax is only {value / error:.1f} times its error (below 10): "
+                        f"the mass, which goes as the inverse cube of the parallax, is biased "
+                        f"and its distribution is skewed; quote the percentiles, not the "
+                        f"linear error.")
+    plx = rng.normal(value, error, len(period))
+    bad = plx <= 0
+    total = np.where(bad, np.inf, total_mass_msun(a, np.where(bad, 1.0, plx), period))
+    if bad.any():
+        warnings.append(f"{int(bad.sum())} of {len(plx)} parallax draws were zero or negative: "
+                        f"their mass is unbounded; they are counted above every finite mass, "
+                        f"and a percentile that falls among them is reported as null.")
+    mass, rel, budget = linear_propagation(best[0], best[1], cov_Pa, value, error)
+    block = {"value": value, "error": error, "unit": "mas", "kind": "trigonometric"}
+    return total, block, _linear_block(mass, rel), budget, int(bad.sum())
+
+
+def _dynamical(period, a, magnitudes, band, best, warnings):
+    mag1, mag2 = (float(v) for v in magnitudes)
+    band = _check_band(band)
+    draws = dynamical_parallax(a, period, mag1, mag2, band)
+    at_best = dynamical_parallax(best[1], best[0], mag1, mag2, band)
+    if not (draws.converged and at_best.converged):
+        warnings.append(f"The dynamical parallax did not converge in {_MAX_ITER} iterations; "
+                        f"the magnitudes are probably far outside the relation's range.")
+    outside = _outside_validity(np.array([draws.abs_mag1, draws.abs_mag2]),
+                                np.array([draws.mass1_msun, draws.mass2_msun]), band)
+    if outside.any():
+        warnings.append(f"In {outside.mean():.0%} of the draws a component lies outside the "
+                        f"validity range of the relation ({BANDS[band]}); those masses are "
+                        f"extrapolated.")
+    warnings.append("The dynamical parallax's spread reflects the orbit's P and a only, not "
+                    "the scatter of the mass-luminosity relation nor the star's evolution "
+                    "off the main sequence.")
+    steps = [{"iteration": k + 1, "parallax_mas": float(s[0][0]), "abs_mag1": float(s[1][0]),
+              "abs_mag2": float(s[2][0]), "mass1": float(s[3][0]), "mass2": float(s[4][0])}
+             for k, s in enumerate(at_best.history)]
+    summary = summarise(draws.parallax_mas, "mas")
+    block = {"value": summary["value"], "error": (summary["high"] - summary["low"]) / 2,
+             "low": summary["low"], "high": summary["high"], "unit": "mas", "kind": "dynamical",
+             "band": band, "relation": BANDS[band], "magnitudes": [mag1, mag2],
+             "iterations": at_best.iterations, "steps": steps}
+    return draws, block
+
+
+def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplitudes=None,
+                magnitudes=None, band=None, seed=0, best=None, cov_Pa=None,
+                e_draws=None, i_draws=None):
+    """The "mass" and "parallax" blocks of the result document, from (P, a) draws.
+
+    Parameters
+    ----------
+    period_draws, a_draws : array_like
+        Draws of P [Julian yr] and a [arcsec] (posterior or covariance draws).
+    parallax : (float, float), optional
+        Trigonometric parallax and its error [mas]; drawn from N(value, error) per draw.
+    mass_ratio : (float, float), optional
+        q = M2/M1 and its error.
+    rv_amplitudes : (K1, K1_err, K2, K2_err), optional
+        Radial-velocity amplitudes [km/s]; q = K1/K2. With ``e_draws`` and ``i_draws``
+        the orbital parallax is reported too.
+    magnitudes : (m1, m2), optional
+        Apparent magnitudes in ``band`` for a dynamical parallax (instead of ``parallax``).
+    band : {'bol', 'K'}, optional
+        Band of ``magnitudes``.
+    seed : int
+        Seed of the parallax and mass-ratio draws (reported in the block).
+    best : (P, a), optional
+        Best P [yr] and a [arcsec] for the linear estimate; default: medians of the draws.
+    cov_Pa : (2, 2) array_like, optional
+        Covariance of (P, a); default: covariance of the draws.
+    e_draws, i_draws : array_like, optional
+        Eccentricity and inclination [deg] draws, used with ``rv_amplitudes``.
+
+    Returns
+    -------
+    dict
+        {"mass": {"total", ["primary", "secondary"], ["budget"], "draws", "seed",
+        "warnings", ...}, "parallax": {"value", "error", "unit", "kind", ...},
+        "warnings": [...]}. With RV amplitudes and e, i draws, parallax["orbital"] holds
+        the orbital parallax's percentiles (a check on the trigonometric one).
+        Each mass entry: value (median), low/high (16/84 %), low95/high95 (2.5/97.5 %),
+        unit, and with a trigonometric parallax "linear": {"value", "error"}. The
+        budget (trigonometric parallax only) is the share of the linear variance from
+        parallax, a, P and the a-P covariance. The warnings are also stored in
+        mass["warnings"], so a caller can keep its own top-level list.
+    """
+    period, a = np.asarray(period_draws, float).ravel(), np.asarray(a_draws, float).ravel()
+    if period.shape != a.shape or period.size < 2:
+        raise InputError(f"need at least two (P, a) draws of equal number, got {period.size} "
+                         f"and {a.size}")
+    if not (np.all(np.isfinite(period)) and np.all(period > 0) and np.all(np.isfinite(a))
+            and np.all(a > 0)):
+        raise InputError("the P and a draws must be finite and positive")
+    if (parallax is None) == (magnitudes is None):
+        raise InputError("give either a trigonometric parallax (--parallax VALUE ERROR) or the "
+                         "component magnitudes for a dynamical parallax (--magnitudes M1 M2 "
+                         "--band bol|K), not both and not neither")
+    if mass_ratio is not None and rv_amplitudes is not None:
+        raise InputError("give either a mass ratio or radial-velocity amplitudes, not both")
+    if magnitudes is not None and (mass_ratio is not None or rv_amplitudes is not None):
+        raise InputError("with --magnitudes the component masses come from the mass-luminosity "
+                         "relation; drop --mass-ratio / --rv-amplitudes or give a parallax")
+    best = (float(np.median(period)), float(np.median(a))) if best is None else best
+    cov_Pa = np.cov(np.vstack([period, a])) if cov_Pa is None else cov_Pa
+    rng = np.random.default_rng(np.random.SeedSequence(seed).spawn(1)[0])
+    warnings = []
+    mass = {"draws": int(period.size), "seed": seed}
+    if parallax is not None:
+        total, plx_block, linear, budget, n_bad = _trigonometric(
+            period, a, parallax, best, cov_Pa, rng, warnings)
+        mass["total"] = {**summarise(total, "solMass"), "linear": linear}
+        mass["budget"] = budget
+        mass["draws_nonpositive_parallax"] = n_bad
+        if mass_ratio is not None or rv_amplitudes is not None:
+            q_draws, q, q_rel, k_sum = _mass_ratio(rng, period.size, mass_ratio, rv_amplitudes,
+                                                   warnings)
+            mass.update(_components(total, q_draws, linear, q, q_rel))
+            if k_sum is not None and e_draws is not None and i_draws is not None:
+                plx_block["orbital"] = summarise(orbital_parallax_mas(
+                    a, period, np.asarray(e_draws, float), np.asarray(i_draws, float), k_sum),
+                    "mas")
+    else:
+        draws, plx_block = _dynamical(period, a, magnitudes, band, best, warnings)
+        mass["total"] = summarise(draws.mass1_msun + draws.mass2_msun, "solMass")
+        mass["primary"] = summarise(draws.mass1_msun, "solMass")
+        mass["secondary"] = summarise(draws.mass2_msun, "solMass")
+    mass["warnings"] = list(warnings)
+    return {"mass": mass, "parallax": plx_block, "warnings": warnings}
+
+
+# ------------------------------------------------------------------------- formatting
+def _fmt(x, digits=4):
+    return "unbounded" if x is None else f"{x:.{digits}g}"
+
+
+def format_mass_blocks(blocks):
+    """Plain-text table of the blocks returned by ``mass_blocks``."""
+    mass, plx = blocks["mass"], blocks["parallax"]
+    lines = [f"Parallax ({plx['kind']}): {_fmt(plx['value'])} +/- {_fmt(plx['error'])} mas"]
+    if "orbital" in plx:
+        o = plx["orbital"]
+        lines.append(f"Orbital parallax (visual orbit with K1 + K2): {_fmt(o['value'])} mas, "
+                     f"68% [{_fmt(o['low'])}, {_fmt(o['high'])}]")
+    if plx["kind"] == "dynamical":
+        lines.append(f"  {plx['relation']}; iterations at the best (P, a): "
+                     f"{plx['iterations']}")
+        lines.append(f"  {'step':>4} {'plx [mas]':>11} {'Mabs1':>7} {'Mabs2':>7} "
+                     f"{'M1':>7} {'M2':>7}")
+        lines += [f"  {s['iteration']:>4} {s['parallax_mas']:>11.5g} {s['abs_mag1']:>7.3f} "
+                  f"{s['abs_mag2']:>7.3f} {s['mass1']:>7.4f} {s['mass2']:>7.4f}"
+                  for s in plx["steps"]]
+    lines += ["", f"{'Mass [M_sun]':<14}{'median':>10}  {'68% interval':<25}{'95% interval':<25}"
+                  f"linear"]
+    for name in ("total", "primary", "secondary"):
+        if name not in mass:
+            continue
+        m = mass[name]
+        linear = m.get("linear")
+        lin = f"{_fmt(linear['value'])} +/- {_fmt(linear['error'], 2)}" if linear else ""
+        lines.append(f"{name:<14}{_fmt(m['value']):>10}  "
+                     f"{'[' + _fmt(m['low']) + ', ' + _fmt(m['high']) + ']':<25}"
+                     f"{'[' + _fmt(m['low95']) + ', ' + _fmt(m['high95']) + ']':<25}{lin}")
+    if mass.get("budget"):
+        lines += ["", "Share of the mass variance (linear propagation):"]
+        lines += [f"  {k.replace('_', ' '):<16}{100 * v:7.1f} %" for k, v in mass["budget"].items()]
+    lines += ["", f"{mass['draws']} draws, seed {mass['seed']}"]
+    if blocks["warnings"]:
+        lines += ["", "Warnings:"] + [f"  - {w}" for w in blocks["warnings"]]
+    return "\n".join(lines)
