@@ -143,7 +143,8 @@ def test_dynamical_parallax_k_band():
 def test_mass_error_gives_a_third_in_parallax():
     # Stars 10 % heavier than the relation says. Classic rule: a mass error delta gives
     # delta/3 in the parallax (Russell & Moore 1940). Refined by the magnitude feedback
-    # (d log M / d log plx = -2/alpha on one Eker piece): ln(plx_dyn/plx) = ln(1+delta)/(3 - 2/alpha).
+    # (d log M / d log plx = -2/alpha on one Eker piece):
+    # ln(plx_dyn/plx) = ln(1+delta)/(3 - 2/alpha).
     delta, alpha = 0.10, 4.329  # both stars on the 1.05-2.4 M_sun piece
     a, mags = _synthetic_bol(1.3, 1.8, 40.0, 25.0)
     a_heavy = a * (1 + delta) ** (1 / 3)  # same distance, masses (1 + delta) times larger
@@ -285,3 +286,10 @@ def test_interval_coverage_on_synthetic_systems():
     # sqrt(.954 .046/200) = 0.015; allow 3 of them.
     assert inside68 / trials == pytest.approx(0.6827, abs=3 * 0.033)
     assert inside95 / trials == pytest.approx(0.9545, abs=3 * 0.015)
+
+
+def test_runaway_dynamical_parallax_is_refused():
+    # A K = -1.4 star at the Sirius orbit is ~12 mag brighter than the Mann et al. 2019
+    # range (4 < M_Ks < 11): the polynomial blows up and the command must say so.
+    with pytest.raises(InputError, match="runs away"):
+        mass_blocks([50.1284, 50.13], [7.4957, 7.4957], magnitudes=(-1.4, 8.4), band="K")

@@ -288,13 +288,19 @@ def dynamical_parallax(a_arcsec, period_yr, mag1, mag2, band):
     """
     band = _check_band(band)
     a, p = np.atleast_1d(np.asarray(a_arcsec, float)), np.atleast_1d(np.asarray(period_yr, float))
-    total = np.full(np.broadcast(a, p).shape, 2.0)
+    with np.errstate(all="ignore"):  # a runaway iteration shows as non-finite values
+        return _iterate(a, p, mag1, mag2, band)
+
+
+def _iterate(a, p, mag1, mag2, band):
+    total = np.full(np.broadcast(a, p).shape, 2.0)  # start: M1 + M2 = 2 M_sun
     history = []
     for iteration in range(1, _MAX_ITER + 1):
         plx = parallax_for_mass_mas(a, p, total)
         shift = 5.0 + 5.0 * np.log10(plx * 1e-3)
         mabs1, mabs2 = mag1 + shift, mag2 + shift
-        m1, m2 = mass_from_absolute_magnitude(mabs1, band), mass_from_absolute_magnitude(mabs2, band)
+        m1 = mass_from_absolute_magnitude(mabs1, band)
+        m2 = mass_from_absolute_magnitude(mabs2, band)
         history.append((plx, mabs1, mabs2, m1, m2))
         new_total = m1 + m2
         done = bool(np.all(np.abs(new_total / total - 1.0) < _TOL))
@@ -408,6 +414,10 @@ def _dynamical(period, a, magnitudes, band, best, warnings):
     band = _check_band(band)
     draws = dynamical_parallax(a, period, mag1, mag2, band)
     at_best = dynamical_parallax(best[1], best[0], mag1, mag2, band)
+    if not (np.all(np.isfinite(draws.parallax_mas)) and np.isfinite(at_best.parallax_mas[0])):
+        raise InputError(f"the dynamical parallax runs away for the magnitudes {mag1}, {mag2} "
+                         f"(band {band}): they lie far outside the relation's range "
+                         f"({BANDS[band]}). Check the magnitudes and the band")
     if not (draws.converged and at_best.converged):
         warnings.append(f"The dynamical parallax did not converge in {_MAX_ITER} iterations; "
                         f"the magnitudes are probably far outside the relation's range.")
