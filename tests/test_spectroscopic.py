@@ -1,11 +1,14 @@
 """Tests of the radial-velocity model and the classical spectroscopic formulas."""
+from pathlib import Path
+
 import numpy as np
 import pytest
 from scipy.optimize import brentq
 
+from orbweigh.errors import LogFormatError
 from orbweigh.spectroscopic import (a1_sin_i_km, component_masses_from_orbit,
                                     m_sin3i_msun, mass_function_msun, orbital_parallax_mas,
-                                    radial_velocities, rv_semi_amplitude_kms,
+                                    radial_velocities, read_velocities, rv_semi_amplitude_kms,
                                     semi_major_axis_au_from_rv)
 
 # 1 au per Julian year in km/s: Hipparcos Catalogue, ESA SP-1200 (1997), vol. 1 (memory);
@@ -139,3 +142,88 @@ def test_mass_ratio_from_velocities():
     t = np.array([1991.3, 2004.0, 2012.7])
     V1, V2 = radial_velocities(t, 68.4, 2009.35, 0.53, 131.7, 3.9, 5.0, -14.6)
     np.testing.assert_allclose((V1 + 14.6) / (V2 + 14.6), -3.9 / 5.0, rtol=1e-12)
+
+
+# ------------------------------------------------------------------------ velocity logs
+
+DATA = Path(__file__).parent / "data"
+SAMPLE = Path(__file__).parents[1] / "sample_measurements" / "velocities.csv"
+
+
+def _julian_year_of_jd(jd):
+    # Julian epoch: J2000.0 = JD 2451545.0, year of 365.25 d (IAU 1976 definitions; memory)
+    return 2000.0 + (jd - 2451545.0) / 365.25
+
+
+def test_read_velocities_good_log():
+    vs = read_velocities(DATA / "rv_good.csv")
+    # header on line 2 after a comment line: data lines 3..7, all accepted
+    assert list(vs.line) == [3, 4, 5, 6, 7] and vs.n_lines == 5 and not vs.rejected
+    assert list(vs.component) == [1, 2, 1, 2, 1]
+    np.testing.assert_allclose(vs.rv_kms, [-10.2, -18.9, -11.0, -19.5, -10.5])
+    np.testing.assert_allclose(vs.sigma_rv_kms, [0.4, 0.8, 0.4, 0.9, 0.5])
+    # 'x' excludes, 'no' keeps (the flag rule of measurement logs); the note with a comma
+    # in quotes arrives whole
+    assert list(vs.excluded) == [False, False, False, True, False]
+    assert vs.note[3] == "thin cloud, low S/N"
+    # epochs: JD, BJD read as JD, MJD = JD - 2400000.5, and a Besselian year
+    # B = 1900.0 + (JD - 2415020.31352) / 365.242198781 (Lieske 1979; memory)
+    jd_b = 2415020.31352 + (2009.5 - 1900.0) * 365.242198781
+    expected = [_julian_year_of_jd(j) for j in (2455000.5, 2455000.5, 2455100.25,
+                                                55200.0 + 2400000.5, jd_b)]
+    np.testing.assert_allclose(vs.epoch_yr, expected, atol=1e-8)
+    assert vs.epoch_scale == "jd" and "rows mix epoch scales" in vs.meta["epoch_scale_note"]
+    assert vs.epoch_text[2] == "BJD2455100.25"              # kept as written
+    assert vs.double_lined
+
+
+def test_read_velocities_rejects_bad_rows_with_line_and_column():
+    vs = read_velocities(DATA / "rv_bad_rows.csv")
+    assert list(vs.line) == [2, 12]
+    assert vs.n_lines == 11 == len(vs) + len(vs.rejected)    # every data line accounted for
+    found = {(p.line, p.column): p.reason for p in vs.rejected}
+    expected = {(3, "component"): "expected 1 (primary) or 2", (4, "rv"): "'fast' is not a number",
+                (5, "sigma_rv"): "'0' is not > 0", (6, "sigma_rv"): "'-0.3' is not > 0",
+                (7, "sigma_rv"): "missing", (8, "epoch"): "cannot read 'yesterday'",
+                (9, None): "duplicate of line 2", (10, None): "found 3 value(s)",
+                (11, "component"): "'1.5' is not a component"}
+    assert set(found) == set(expected)
+    for key, text in expected.items():
+        assert text in found[key]
+
+
+def test_read_velocities_strict_raises_on_first_bad_row():
+    with pytest.raises(LogFormatError, match=r"rv_bad_rows\.csv, line 3, column 'component'"):
+        read_velocities(DATA / "rv_bad_rows.csv", strict=True)
+
+
+def test_read_velocities_mapping_and_ecsv_units():
+    vs = read_velocities(DATA / "rv_mapped.ecsv",
+                         columns={"epoch": "mjd", "component": "comp", "rv": "v", "sigma_rv": "ev"})
+    # m/s -> km/s; a plain number in a column of unit d below 100000 is an MJD
+    np.testing.assert_allclose(vs.rv_kms, [-10.2, -18.9])
+    np.testing.assert_allclose(vs.sigma_rv_kms, [0.4, 0.8])
+    np.testing.assert_allclose(vs.epoch_yr, _julian_year_of_jd(55000.0 + 2400000.5), atol=1e-9)
+    assert vs.epoch_scale == "mjd"
+
+
+def test_read_velocities_file_level_errors():
+    with pytest.raises(LogFormatError, match="unit 'deg'; expected a velocity"):
+        read_velocities(DATA / "rv_wrong_unit.ecsv",
+                        columns={"epoch": "mjd", "component": "comp", "rv": "v", "sigma_rv": "ev"})
+    with pytest.raises(LogFormatError,
+                       match=r"required column\(s\) rv not found.*--columns rv=velocity"):
+        read_velocities(DATA / "rv_missing_column.csv")
+
+
+def test_sample_velocities_match_their_true_orbit():
+    # True values stated in sample_measurements/README.md (the invented pair)
+    vs = read_velocities(SAMPLE)
+    assert len(vs) == vs.n_lines == 51 and list(vs.line[vs.excluded]) == [19]
+    V1, V2 = radial_velocities(vs.epoch_yr, 68.40, 2009.350, 0.530, 131.70, 3.9298, 5.0381,
+                               -14.60)
+    z = (vs.rv_kms - np.where(vs.component == 1, V1, V2)) / vs.sigma_rv_kms
+    # the flagged row was shifted by +3 sigma; the others are pure seeded noise:
+    # chi^2 of 50 values within 3 standard deviations (sqrt(2 x 50) = 10) of 50
+    assert z[vs.excluded][0] > 2.0
+    assert abs(np.sum(z[vs.usable] ** 2) - 50) < 30

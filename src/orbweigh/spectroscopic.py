@@ -18,14 +18,26 @@ Convention (stated once, used everywhere in orbweigh):
 
 Units are in the names: K in km/s, periods in days (spectroscopic formulas, the trade's
 custom) or Julian years (orbit formulas). Constants come from astropy, not typed in.
+
+Velocity logs (``read_velocities``) follow the rules of measurement logs (see
+``measurements``): CSV, whitespace-separated or ECSV; columns ``epoch, component, rv,
+sigma_rv`` required, ``flag, note`` optional; ``columns`` maps your own headers; every data
+line ends up accepted or rejected with its line, column and reason.
 """
 from __future__ import annotations
 
+from dataclasses import dataclass, field
+
 import numpy as np
 
+from .errors import LogFormatError
 from .kepler import eccentric_anomaly, mean_anomaly, true_anomaly
+from .measurements import _KEEP_FLAGS, MISSING_MARKERS, RowProblem, read_table
+from .reductions import julian_years_of, split_epoch
 
 __all__ = [
+    "VelocitySet",
+    "read_velocities",
     "radial_velocities",
     "a1_sin_i_km",
     "mass_function_msun",
@@ -160,3 +172,211 @@ def component_masses_from_orbit(a_au, P_yr, K1_kms, K2_kms):
     total = 4.0 * np.pi**2 * a_km**3 / (_gm_sun_km3_s2() * p_s**2)
     q = np.asarray(K1_kms, float) / K2_kms
     return total / (1.0 + q), total * q / (1.0 + q)
+
+
+# ------------------------------------------------------------------------ velocity logs
+
+RV_REQUIRED_COLUMNS = ("epoch", "component", "rv", "sigma_rv")
+RV_OPTIONAL_COLUMNS = ("flag", "note")
+# Barycentric / heliocentric Julian dates are read as JD: the few minutes between the
+# time scales are nothing against periods of years.
+_JD_PREFIXES = ("BJD", "HJD")
+
+
+@dataclass
+class VelocitySet:
+    """Validated radial velocities, one entry per accepted log line.
+
+    Attributes
+    ----------
+    source : str
+        Path (or name) of the log.
+    line : ndarray of int
+        1-based line number of each velocity in the source file.
+    epoch_yr : ndarray
+        Epoch as a decimal Julian year (TT), the internal time axis.
+    epoch_text : ndarray of str
+        The epoch exactly as written.
+    epoch_scale : str
+        How the log wrote epochs ('jd', 'mjd', 'besselian', 'julian' or 'iso'; BJD and HJD
+        count as 'jd'); results give epochs back in this scale.
+    component : ndarray of int
+        1 (primary) or 2 (secondary).
+    rv_kms, sigma_rv_kms : ndarray
+        Radial velocity (positive = receding) and its 1-sigma uncertainty [km/s].
+    excluded : ndarray of bool
+        True where the ``flag`` column excludes the row from fitting.
+    flag, note : ndarray of str
+        The log's flag and note columns as written.
+    rejected : list of RowProblem
+        Lines that were read but could not be used, with the reason.
+    n_lines : int
+        Number of data lines in the file (accepted + rejected).
+    meta : dict
+        'format', 'columns' (canonical -> header), 'units', 'ignored_columns', 'header'
+        (ECSV meta), 'epoch_scale_note' (when rows mix scales).
+    """
+
+    source: str
+    line: np.ndarray
+    epoch_yr: np.ndarray
+    epoch_text: np.ndarray
+    epoch_scale: str
+    component: np.ndarray
+    rv_kms: np.ndarray
+    sigma_rv_kms: np.ndarray
+    excluded: np.ndarray
+    flag: np.ndarray
+    note: np.ndarray
+    rejected: list = field(default_factory=list)
+    n_lines: int = 0
+    meta: dict = field(default_factory=dict)
+
+    def __len__(self):
+        return len(self.line)
+
+    @property
+    def usable(self):
+        """Boolean mask of rows not excluded by the user."""
+        return ~self.excluded
+
+    @property
+    def double_lined(self):
+        """True when usable velocities of both components exist (SB2), else SB1."""
+        return bool(np.any(self.component[self.usable] == 2)
+                    and np.any(self.component[self.usable] == 1))
+
+
+class _RowError(Exception):
+    def __init__(self, column, reason):
+        super().__init__(reason)
+        self.column, self.reason = column, reason
+
+
+def _velocity_factors(table):
+    """Factor to km/s of the rv and sigma_rv columns (ECSV units; 1 without a unit)."""
+    factors = {}
+    for name in ("rv", "sigma_rv"):
+        unit = table.units.get(name)
+        if unit is None:
+            continue
+        import astropy.units as u
+        try:
+            factors[name] = u.Unit(unit).to(u.km / u.s)
+        except (ValueError, u.UnitsError):
+            raise LogFormatError(table.path, f"the ECSV header gives unit '{unit}'; expected "
+                                 "a velocity (km / s or m / s)",
+                                 column=table.columns[name]) from None
+    return factors
+
+
+def _velocity_row(cells, header, factors, day_unit):
+    """A validated record of one velocity row; _RowError on the first bad cell."""
+    col = lambda name: header.get(name, name)  # noqa: E731 - column name as the user wrote it
+    text = cells["epoch"]
+    if text.lower() in MISSING_MARKERS:
+        raise _RowError(col("epoch"), "the epoch is missing; every row needs one")
+    number = text
+    if text[:3].upper() in _JD_PREFIXES:
+        number = "JD" + text[3:]
+    try:
+        epoch_value, scale = split_epoch(number, day_unit)
+    except ValueError as exc:
+        raise _RowError(col("epoch"), str(exc)) from None
+    component = cells["component"].strip()
+    if component not in ("1", "2"):
+        raise _RowError(col("component"), f"'{component}' is not a component; expected 1 "
+                        "(primary) or 2 (secondary)")
+    values = {}
+    for name, what in (("rv", "a radial velocity in km/s (positive = receding)"),
+                       ("sigma_rv", "a 1-sigma uncertainty > 0 in km/s (velocity logs "
+                                    "have no default uncertainty)")):
+        cell = cells[name]
+        try:
+            value = float(cell) * factors.get(name, 1.0)
+        except ValueError:
+            missing = cell.lower() in MISSING_MARKERS
+            reason = "the value is missing" if missing else f"'{cell}' is not a number"
+            raise _RowError(col(name), f"{reason}; expected {what}") from None
+        if not np.isfinite(value):
+            raise _RowError(col(name), f"'{cell}' is not finite; expected {what}")
+        values[name] = value
+    if values["sigma_rv"] <= 0.0:
+        raise _RowError(col("sigma_rv"), f"'{cells['sigma_rv']}' is not > 0; expected a "
+                        "1-sigma uncertainty > 0 in km/s (to leave the row out use the flag "
+                        "column)")
+    return {"epoch_text": text, "epoch_value": epoch_value, "scale": scale,
+            "component": int(component), "rv": values["rv"], "sigma_rv": values["sigma_rv"],
+            "flag": cells.get("flag", ""), "note": cells.get("note", "")}
+
+
+def read_velocities(path, columns=None, strict=False):
+    """Read and validate a radial-velocity log.
+
+    Parameters
+    ----------
+    path : str or Path
+        CSV, whitespace-separated or ECSV log with columns ``epoch, component, rv,
+        sigma_rv`` and optional ``flag, note``. Epochs: a plain number above 100000 is a
+        JD, other plain numbers Besselian years; ``JD``, ``BJD``, ``HJD``, ``MJD``, ``B``,
+        ``J`` prefixes and ISO dates as in measurement logs; an ECSV epoch column in days
+        reads plain numbers as JD/MJD. rv and sigma_rv in km/s, or the ECSV unit.
+    columns : dict, optional
+        Canonical name -> your header name, e.g. ``{'rv': 'vrad'}``.
+    strict : bool
+        Raise ``LogFormatError`` on the first unusable row instead of rejecting it.
+
+    Returns
+    -------
+    VelocitySet
+
+    Raises
+    ------
+    LogFormatError
+        For problems of the whole file, and for any bad row when ``strict``.
+    """
+    table = read_table(path, RV_REQUIRED_COLUMNS, RV_OPTIONAL_COLUMNS, columns)
+    factors = _velocity_factors(table)
+    epoch_unit = table.units.get("epoch")
+    day_unit = epoch_unit is not None and epoch_unit.strip().lower() in ("d", "day", "days")
+    problems, records, seen = list(table.problems), [], {}
+    for line, cells in table.rows:
+        try:
+            record = _velocity_row(cells, table.columns, factors, day_unit)
+        except _RowError as exc:
+            problems.append(RowProblem(line, exc.column, exc.reason))
+            continue
+        key = (record["scale"], record["epoch_value"], record["component"], record["rv"])
+        if key in seen:
+            problems.append(RowProblem(line, None, f"duplicate of line {seen[key]} (same epoch, "
+                                       "component and rv); delete one of the two lines"))
+            continue
+        seen[key] = record["line"] = line
+        records.append(record)
+    problems.sort(key=lambda p: p.line)
+    if strict and problems:
+        raise LogFormatError(table.path, problems[0].reason, line=problems[0].line,
+                             column=problems[0].column)
+    return _velocity_set(table, records, problems)
+
+
+def _velocity_set(table, records, problems):
+    """The VelocitySet of the accepted records."""
+    scales = [r["scale"] for r in records]
+    meta = {"format": table.format, "columns": table.columns, "units": table.units,
+            "ignored_columns": table.ignored_columns, "header": table.meta}
+    counts = {s: scales.count(s) for s in dict.fromkeys(scales)}
+    scale = scales[0] if scales else "jd"
+    if len(counts) > 1:
+        meta["epoch_scale_note"] = (
+            f"rows mix epoch scales ({', '.join(f'{s}: {n}' for s, n in counts.items())}); "
+            f"results are written as {scale}, the scale of the first row")
+    col = lambda key, dtype=float: np.array([r[key] for r in records], dtype=dtype)  # noqa: E731
+    flag = col("flag", str)
+    return VelocitySet(
+        source=table.path, line=col("line", int),
+        epoch_yr=np.asarray(julian_years_of(col("epoch_value"), scales), float),
+        epoch_text=col("epoch_text", str), epoch_scale=scale, component=col("component", int),
+        rv_kms=col("rv"), sigma_rv_kms=col("sigma_rv"),
+        excluded=np.array([f.lower() not in _KEEP_FLAGS for f in flag], bool), flag=flag,
+        note=col("note", str), rejected=problems, n_lines=table.n_data_lines, meta=meta)
