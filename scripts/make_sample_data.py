@@ -148,7 +148,8 @@ def plant_defects(rows):
         planted.append((k, "no sigma given (technique default applies)"))
     k = by_tech["micrometer"][12]
     rows[k]["shift"] = 10.0 * rows[k]["s_theta"]
-    planted.append((k, f"gross outlier: theta off by +10 sigma (+{10 * rows[k]['s_theta']:.0f} deg)"))
+    planted.append((k, "gross outlier: theta off by +10 sigma "
+                       f"(+{rows[k]['shift']:.0f} deg)"))
     for k in (by_tech["speckle"][7], by_tech["speckle"][19]):
         rows[k]["shift"] = 180.0
         planted.append((k, "quadrant flip: theta off by 180 deg"))
