@@ -1,0 +1,245 @@
+"""Orbit solution from a measurement log: global search, refinement, flips, outliers.
+
+Steps (each documented where it is done):
+
+1. grid search over (P, e, T) with the Thiele-Innes constants solved linearly
+   (``search.grid_search``), over a period range from the sampling or the user;
+2. the deepest local minima over period are polished in (P, e, T) and then refined in
+   all seven parameters with Levenberg-Marquardt (``refine``);
+3. quadrant flips: a point whose theta + 180 deg fits decisively better is corrected;
+4. outliers: points beyond ``outlier_sigma`` (in units of sigma scaled by sqrt of the
+   reduced chi2 of the inliers when that exceeds 1) are set aside and refitted without;
+5. every other distinct minimum within ``alternative_delta_chi2`` of the best is kept as
+   an alternative, so an ambiguous arc is shown as ambiguous;
+6. uncertainties from the covariance at the optimum, scaled by the reduced chi2 when it
+   exceeds 1.
+"""
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass
+
+import numpy as np
+
+from .errors import FitError, InputError
+from .model import normalised_residuals
+from .refine import refine_full, refine_nonlinear
+from .search import default_period_range, grid_search, isotropic_weights
+from .solution import OrbitSolution, build_solution
+
+__all__ = ["FitOptions", "fit_orbit"]
+
+#: A flip must lower the point's chi2 by at least this much (decisive: 5 sigma-equivalent).
+FLIP_MIN_GAIN = 25.0
+_N_CANDIDATES = 8       # local minima of the period profile polished in (P, e, T)
+_N_FULL = 4             # of those, refined in all seven parameters
+_MAX_OUTLIER_FRACTION = 0.25
+_MIN_POINTS = 4         # 8 numbers for 7 parameters
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """Choices of the orbit fit.
+
+    Attributes
+    ----------
+    period_range : (float, float) or None
+        Shortest and longest trial period [yr]; None derives it from the sampling.
+    loss : {'linear', 'soft_l1', 'huber'}
+        Loss of the final refinement; robust losses down-weight large residuals.
+    flips : bool
+        Detect and correct 180 deg quadrant errors.
+    outlier_sigma : float
+        Threshold of the normalised residual sqrt(r_theta^2 + r_rho^2) for outliers.
+    alternative_delta_chi2 : float
+        Distinct minima within this chi2 of the best are reported as alternatives.
+    n_alternatives : int
+        At most this many alternatives.
+    seed : int
+        Seed recorded with the result and used by later random steps (sampling).
+    """
+
+    period_range: tuple | None = None
+    loss: str = "linear"
+    flips: bool = True
+    outlier_sigma: float = 4.0
+    alternative_delta_chi2: float = 25.0
+    n_alternatives: int = 3
+    seed: int = 0
+
+    def __post_init__(self):
+        if self.loss not in ("linear", "soft_l1", "huber"):
+            raise InputError(f"loss must be one of linear, soft_l1, huber; got {self.loss!r}")
+        if self.period_range is not None:
+            lo, hi = self.period_range
+            if not 0 < lo < hi:
+                raise InputError(f"period range must satisfy 0 < PMIN < PMAX; got {lo}, {hi}")
+        if not self.outlier_sigma > 0:
+            raise InputError("the outlier threshold must be positive")
+
+
+@dataclass
+class _Points:
+    """The usable measurements as plain arrays (flips applied to theta)."""
+
+    t: np.ndarray
+    theta: np.ndarray
+    rho: np.ndarray
+    sigma_theta: np.ndarray
+    sigma_rho: np.ndarray
+
+    def subset(self, keep, flipped):
+        theta = np.mod(self.theta + np.where(flipped, 180.0, 0.0), 360.0)
+        return _Points(self.t[keep], theta[keep], self.rho[keep],
+                       self.sigma_theta[keep], self.sigma_rho[keep])
+
+    def residuals(self, params, flipped=None):
+        theta = self.theta if flipped is None else np.mod(self.theta + 180.0 * flipped, 360.0)
+        return normalised_residuals(params, self.t, theta, self.rho,
+                                    self.sigma_theta, self.sigma_rho)
+
+    def refine(self, params0, loss):
+        return refine_full(params0, self.t, self.theta, self.rho,
+                           self.sigma_theta, self.sigma_rho, loss)
+
+
+def fit_orbit(data, options=None) -> OrbitSolution:
+    """Fit an apparent orbit to a ``MeasurementSet``.
+
+    Parameters
+    ----------
+    data : MeasurementSet
+        The validated log; rows excluded by the user's flag are not fitted.
+    options : FitOptions, optional
+
+    Returns
+    -------
+    OrbitSolution
+
+    Raises
+    ------
+    FitError
+        Fewer than four usable measurements.
+    """
+    options = options or FitOptions()
+    started = time.perf_counter()
+    usable = np.flatnonzero(data.usable)
+    if usable.size < _MIN_POINTS:
+        raise FitError(f"{data.source}: {usable.size} usable measurements; an orbit needs at "
+                       f"least {_MIN_POINTS} (7 elements from 2 coordinates per point)")
+    weight = np.sqrt(data.weight[usable])
+    points = _Points(data.epoch_yr[usable], data.theta_deg[usable], data.rho_arcsec[usable],
+                     data.sigma_theta_deg[usable] / weight,
+                     data.sigma_rho_arcsec[usable] / weight)
+    period_range = tuple(options.period_range or default_period_range(points.t))
+
+    starts, n_trials = _global_candidates(points, period_range)
+    first = sorted((points.refine(_near_mean_epoch(s, points.t), options.loss) for s in starts),
+                   key=lambda r: r.chi2)
+    best, flipped = first[0], np.zeros(points.t.size, bool)
+    if options.flips:
+        best, flipped = _correct_flips(points, best, options.loss)
+    best, outlier = _set_aside_outliers(points, best, flipped, options)
+    clean = points.subset(~outlier, flipped)
+    final = first
+    if flipped.any() or outlier.any():   # the other minima must be refound on clean data
+        final = [clean.refine(r.params, options.loss) for r in first[1:]]
+        final.append(clean.refine(_near_mean_epoch(best.params, clean.t), options.loss))
+        final.sort(key=lambda r: r.chi2)
+    return build_solution(
+        data=data, rows=usable, points=points, best=final[0],
+        alternatives=_distinct_alternatives(final, options, n_dof=2 * clean.t.size - 7),
+        flipped=flipped, outlier=outlier, options=options, period_range=period_range,
+        n_trials=n_trials, fit_seconds=time.perf_counter() - started)
+
+
+def _global_candidates(points, period_range):
+    """Starting parameter vectors from the grid search, polished in (P, e, T)."""
+    x = points.rho * np.cos(np.radians(points.theta))
+    y = points.rho * np.sin(np.radians(points.theta))
+    w = isotropic_weights(points.rho, points.sigma_rho, np.radians(points.sigma_theta))
+    trials, grid = grid_search(points.t, x, y, w, period_range, n_best=_N_CANDIDATES)
+    polished = sorted((refine_nonlinear(tr, points.t, x, y, w, period_range) for tr in trials),
+                      key=lambda r: r.chi2)
+    starts = []
+    for r in polished:
+        if all(not _same_orbit(r.params, s) for s in starts):
+            starts.append(r.params)
+        if len(starts) == _N_FULL:
+            break
+    return starts, grid.n_trials
+
+
+def _same_orbit(p, q, tol=0.01):
+    """Whether two parameter vectors describe practically the same orbit."""
+    scale = max(np.max(np.abs(p[3:])), 1e-12)
+    return (abs(np.log(p[0] / q[0])) < tol and abs(p[2] - q[2]) < 5 * tol
+            and np.max(np.abs(np.asarray(p[3:]) - q[3:])) < 5 * tol * scale)
+
+
+def _near_mean_epoch(params, t):
+    """Same orbit with T moved by whole periods to the passage nearest the mean epoch.
+
+    T near the middle of the data has the least correlation with P.
+    """
+    p = np.array(params, float)
+    p[1] += p[0] * np.round((np.mean(t) - p[1]) / p[0])
+    return p
+
+
+def _point_chi2(points, params, flipped):
+    r_theta, r_rho, _, _ = points.residuals(params, flipped)
+    return r_theta**2 + r_rho**2
+
+
+def _correct_flips(points, best, loss, max_rounds=3):
+    """Correct quadrant errors: theta + 180 must lower a point's chi2 decisively."""
+    flipped = np.zeros(points.t.size, bool)
+    for _ in range(max_rounds):
+        as_is = _point_chi2(points, best.params, flipped)
+        other = _point_chi2(points, best.params, ~flipped)
+        candidates = (~flipped) & (as_is - other > FLIP_MIN_GAIN)
+        if not candidates.any():
+            break
+        trial_flips = flipped | candidates
+        refit = points.subset(np.ones(points.t.size, bool), trial_flips).refine(best.params, loss)
+        if refit.chi2 >= best.chi2:
+            break
+        best, flipped = refit, trial_flips
+    return best, flipped
+
+
+def _set_aside_outliers(points, best, flipped, options, max_rounds=10):
+    """Iteratively set aside points beyond the threshold; re-admit those back within it."""
+    n = points.t.size
+    outlier = np.zeros(n, bool)
+    max_out = int(_MAX_OUTLIER_FRACTION * n)
+    for _ in range(max_rounds):
+        chi2_pt = _point_chi2(points, best.params, flipped)
+        n_in = int((~outlier).sum())
+        red = chi2_pt[~outlier].sum() / max(2 * n_in - 7, 1)
+        dist = np.sqrt(chi2_pt / max(red, 1.0))
+        new = dist > options.outlier_sigma
+        if new.sum() > max_out:                      # keep only the worst ones
+            new = np.zeros(n, bool)
+            new[np.argsort(dist)[::-1][:max_out]] = True
+        if np.array_equal(new, outlier) or 2 * int((~new).sum()) <= 7:
+            break
+        outlier = new
+        best = points.subset(~outlier, flipped).refine(best.params, options.loss)
+    return best, outlier
+
+
+def _distinct_alternatives(final, options, n_dof):
+    """Other minima within the chi2 window, each distinct from the best and each other."""
+    best = final[0]
+    scale = max(best.chi2 / max(n_dof, 1), 1.0)
+    kept = [best]
+    for r in final[1:]:
+        if (r.chi2 - best.chi2) / scale > options.alternative_delta_chi2:
+            break
+        if all(not _same_orbit(r.params, k.params, tol=0.02) for k in kept):
+            kept.append(r)
+        if len(kept) > options.n_alternatives:
+            break
+    return kept[1:]

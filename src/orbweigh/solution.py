@@ -1,0 +1,309 @@
+"""The orbit solution object and its result document (schema orbweigh.result/1)."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .elements import ELEMENT_KEYS, ELEMENT_UNITS, CampbellElements, campbell_from_thiele_innes
+from .model import wrap_degrees
+from .reductions import epoch_unit, from_julian_year, interval_in_scale
+from .result import SCHEMA
+
+__all__ = ["OrbitSolution", "build_solution", "campbell_covariance"]
+
+_PHASE_BINS = 20
+
+
+@dataclass
+class OrbitSolution:
+    """Best apparent orbit of a log, with uncertainties and a row-by-row account.
+
+    Attributes
+    ----------
+    data : MeasurementSet
+        The log that was fitted.
+    params : ndarray
+        Best (P, T, e, A, B, F, G) [yr, Julian yr, -, arcsec x4].
+    fit_covariance : ndarray or None
+        Covariance of ``params`` (scaled by the reduced chi2 when > 1).
+    elements : CampbellElements
+        Best Campbell elements (Omega in [0, 180) deg, T a Julian year).
+    covariance : ndarray or None
+        Covariance of (P, T, e, a, i, Omega, omega) [yr, Julian yr, -, arcsec, deg x3].
+    errors : dict
+        1-sigma error of each element keyed P, T, e, a, i, Omega, omega (None if unknown).
+    thiele_innes, thiele_innes_errors : dict
+        A, B, F, G [arcsec] and their 1-sigma errors.
+    status : ndarray of str
+        Per row of ``data``: 'used', 'flipped', 'outlier' or 'excluded'.
+    theta_pred_deg, rho_pred_arcsec, d_theta_deg, d_rho_arcsec : ndarray
+        Predictions and O-C per row of ``data`` (flipped rows after correction).
+    chi2, dof, reduced_chi2 : float
+        Of the final fit (outliers and excluded rows left out).
+    errors_scaled : bool
+        Whether the covariance was scaled by the reduced chi2.
+    alternatives : list of (CampbellElements, float)
+        Other distinct minima and their chi2.
+    warnings : list of str
+        Plain-language caveats.
+    """
+
+    data: object
+    params: np.ndarray
+    fit_covariance: np.ndarray | None
+    elements: CampbellElements
+    covariance: np.ndarray | None
+    errors: dict
+    thiele_innes: dict
+    thiele_innes_errors: dict
+    status: np.ndarray
+    theta_pred_deg: np.ndarray
+    rho_pred_arcsec: np.ndarray
+    d_theta_deg: np.ndarray
+    d_rho_arcsec: np.ndarray
+    chi2: float
+    dof: int
+    reduced_chi2: float
+    errors_scaled: bool
+    alternatives: list
+    statistics: dict
+    options: object
+    warnings: list = field(default_factory=list)
+    notes: list = field(default_factory=list)
+
+    def __repr__(self):
+        el = self.elements
+        return (f"<OrbitSolution P={el.period_yr:.4g} yr e={el.e:.3f} a={el.a_arcsec:.4g}\" "
+                f"i={el.i_deg:.1f} chi2/dof={self.chi2:.1f}/{self.dof}, "
+                f"{len(self.alternatives)} alternatives, {len(self.warnings)} warnings>")
+
+    def to_document(self):
+        """The result document (a JSON-ready dict), schema orbweigh.result/1."""
+        from . import __version__
+        scale = self.data.epoch_scale
+        doc = {"schema": SCHEMA, "source": str(self.data.source),
+               "elements": _elements_block(self.elements, self.errors, scale),
+               "thiele_innes": {k: _entry(self.thiele_innes[k], self.thiele_innes_errors[k],
+                                          "arcsec") for k in "ABFG"},
+               "covariance": None if self.covariance is None else {
+                   "parameters": list(ELEMENT_KEYS), "matrix": self.covariance.tolist(),
+                   "units": "P yr, T Julian yr, e, a arcsec, i Omega omega deg"},
+               "statistics": {k: _plain(v) for k, v in self.statistics.items()},
+               "residuals": self._residual_rows(),
+               "alternatives": [{"elements": _elements_block(el, None, scale),
+                                 "chi2": float(c), "delta_chi2": float(c - self.chi2)}
+                                for el, c in self.alternatives],
+               "options": {"period_range_yr": list(map(float, self.statistics["period_range_yr"])),
+                           "loss": self.options.loss, "flips": self.options.flips,
+                           "outlier_sigma": self.options.outlier_sigma,
+                           "alternative_delta_chi2": self.options.alternative_delta_chi2},
+               "warnings": list(self.warnings), "notes": list(self.notes),
+               "seed": int(self.options.seed), "version": __version__}
+        return doc
+
+    def _residual_rows(self):
+        d = self.data
+        scale = d.epoch_scale
+        epochs = from_julian_year(d.epoch_yr, scale)
+        rows = []
+        for k in range(len(d)):
+            rows.append({
+                "line": int(d.line[k]), "epoch": float(epochs[k]),
+                "epoch_text": str(d.epoch_text[k]), "epoch_yr": float(d.epoch_yr[k]),
+                "theta_deg": float(d.theta_deg[k]), "rho_arcsec": float(d.rho_arcsec[k]),
+                "sigma_theta_deg": float(d.sigma_theta_deg[k] / np.sqrt(d.weight[k])),
+                "sigma_rho_arcsec": float(d.sigma_rho_arcsec[k] / np.sqrt(d.weight[k])),
+                "technique": str(d.technique[k]),
+                "theta_pred_deg": float(self.theta_pred_deg[k]),
+                "rho_pred_arcsec": float(self.rho_pred_arcsec[k]),
+                "d_theta_deg": float(self.d_theta_deg[k]),
+                "d_rho_arcsec": float(self.d_rho_arcsec[k]),
+                "status": str(self.status[k]), "reason": _reason(self.status[k], self.options),
+                "note": str(d.note[k])})
+        for problem in d.rejected:
+            rows.append({"line": int(problem.line), "status": "rejected",
+                         "reason": (f"column '{problem.column}': " if problem.column else "")
+                         + problem.reason})
+        rows.sort(key=lambda r: r["line"])
+        return rows
+
+
+def _reason(status, options):
+    return {"used": "", "flipped": "theta corrected by 180 deg (quadrant error)",
+            "outlier": f"beyond {options.outlier_sigma:g} sigma, left out of the fit",
+            "excluded": "excluded by the log's flag column"}[str(status)]
+
+
+def _plain(value):
+    if isinstance(value, (np.floating, np.integer)):
+        return value.item()
+    if isinstance(value, (tuple, np.ndarray)):
+        return [_plain(v) for v in value]
+    return value
+
+
+def _entry(value, error, unit):
+    return {"value": float(value), "error": None if error is None else float(error),
+            "unit": unit}
+
+
+def _elements_block(elements, errors, scale):
+    values = elements.to_keys()
+    block = {}
+    for k in ELEMENT_KEYS:
+        err = None if errors is None else errors.get(k)
+        block[k] = _entry(values[k], err, ELEMENT_UNITS[k])
+    block["T"]["value"] = float(from_julian_year(values["T"], scale))
+    if block["T"]["error"] is not None:
+        block["T"]["error"] = float(interval_in_scale(block["T"]["error"], scale))
+    block["T"].update(unit=epoch_unit(scale), scale=scale)
+    return block
+
+
+def _campbell_vector(params):
+    """(P, T, e, a, i, Omega, omega) [angles in deg] from (P, T, e, A, B, F, G)."""
+    a, i, node, omega = campbell_from_thiele_innes(*params[3:])
+    return np.array([params[0], params[1], params[2], a,
+                     np.degrees(i), np.degrees(node), np.degrees(omega)], float)
+
+
+def campbell_covariance(params, fit_covariance):
+    """Propagate the (P, T, e, A, B, F, G) covariance to Campbell elements.
+
+    Central differences of the exact inversion; angle differences are wrapped so the
+    node's 180 deg normalisation cannot create a jump.
+    """
+    params = np.asarray(params, float)
+    jac = np.zeros((7, 7))
+    for k in range(7):
+        h = 1e-6 * max(abs(params[k]), 1e-3)
+        up, down = params.copy(), params.copy()
+        up[k] += h
+        down[k] -= h
+        diff = _campbell_vector(up) - _campbell_vector(down)
+        diff[4:] = wrap_degrees(diff[4:])
+        diff[5] = 90.0 - np.mod(90.0 - diff[5], 180.0)  # node is modulo 180 deg
+        jac[:, k] = diff / (2 * h)
+    return jac @ fit_covariance @ jac.T
+
+
+def build_solution(data, rows, points, best, alternatives, flipped, outlier, options,
+                   period_range, n_trials, fit_seconds):
+    """Assemble an ``OrbitSolution`` from the fit's pieces (see fitting.fit_orbit)."""
+    params = best.params
+    n_fit = int((~outlier).sum())
+    dof = max(2 * n_fit - 7, 1)
+    reduced = best.chi2 / dof
+    scale = max(reduced, 1.0)
+    fit_cov = None if best.covariance is None else best.covariance * scale
+    vec = _campbell_vector(params)
+    elements = CampbellElements(*vec)
+    cov = None if fit_cov is None else campbell_covariance(params, fit_cov)
+    errors = {k: (None if cov is None else float(np.sqrt(max(cov[j, j], 0.0))))
+              for j, k in enumerate(ELEMENT_KEYS)}
+    ti = dict(zip("ABFG", params[3:]))
+    ti_err = {k: (None if fit_cov is None else float(np.sqrt(max(fit_cov[3 + j, 3 + j], 0.0))))
+              for j, k in enumerate("ABFG")}
+
+    status = np.where(data.usable, "used", "excluded").astype("<U8")
+    status[rows[flipped]] = "flipped"
+    status[rows[outlier]] = "outlier"
+    all_flips = np.zeros(len(data), bool)
+    all_flips[rows[flipped]] = True
+    theta_obs = np.mod(data.theta_deg + 180.0 * all_flips, 360.0)
+    from .model import predict_theta_rho
+    theta_pred, rho_pred = predict_theta_rho(params, data.epoch_yr)
+    d_theta = wrap_degrees(theta_obs - theta_pred)
+    d_rho = data.rho_arcsec - rho_pred
+    fitted = rows[~outlier]
+    stats = {
+        "n_input": int(data.n_lines or len(data)), "n_used": n_fit,
+        "n_rejected": len(data.rejected), "n_excluded": int((~data.usable).sum()),
+        "n_flipped": int(flipped.sum()), "n_outliers": int(outlier.sum()),
+        "chi2": float(best.chi2), "dof": int(dof), "reduced_chi2": float(reduced),
+        "errors_scaled": bool(reduced > 1.0 and fit_cov is not None),
+        "rms_theta_deg": float(np.sqrt(np.mean(d_theta[fitted] ** 2))),
+        "rms_rho_arcsec": float(np.sqrt(np.mean(d_rho[fitted] ** 2))),
+        "fit_seconds": float(fit_seconds),
+        "epoch_first": float(from_julian_year(data.epoch_yr[fitted].min(), data.epoch_scale)),
+        "epoch_last": float(from_julian_year(data.epoch_yr[fitted].max(), data.epoch_scale)),
+        "phase_coverage": _phase_coverage(data.epoch_yr[fitted], params[0], params[1]),
+        "period_range_yr": tuple(float(p) for p in period_range),
+        "n_trials": int(n_trials),
+    }
+    alts = [(CampbellElements(*_campbell_vector(r.params)), r.chi2) for r in alternatives]
+    solution = OrbitSolution(
+        data=data, params=params, fit_covariance=fit_cov, elements=elements, covariance=cov,
+        errors=errors, thiele_innes=ti, thiele_innes_errors=ti_err, status=status,
+        theta_pred_deg=theta_pred, rho_pred_arcsec=rho_pred, d_theta_deg=d_theta,
+        d_rho_arcsec=d_rho, chi2=float(best.chi2), dof=int(dof), reduced_chi2=float(reduced),
+        errors_scaled=stats["errors_scaled"], alternatives=alts, statistics=stats,
+        options=options)
+    solution.warnings.extend(_warnings(solution, data, rows, flipped, outlier, best))
+    solution.notes.append("Without radial velocities Omega and omega are known only up to a "
+                          "common 180 deg shift; Omega is given in [0, 180) deg.")
+    if solution.errors_scaled:
+        solution.notes.append(f"Uncertainties were scaled by sqrt(reduced chi2) = "
+                              f"{np.sqrt(reduced):.2f}.")
+    return solution
+
+
+def _phase_coverage(t, period, t_peri):
+    """Fraction of 20 equal bins of orbital phase holding at least one measurement."""
+    phase = np.mod((t - t_peri) / period, 1.0)
+    return float(np.unique((phase * _PHASE_BINS).astype(int)).size / _PHASE_BINS)
+
+
+def _lines(data, idx, most=12):
+    lines = [str(int(v)) for v in data.line[idx]]
+    return ", ".join(lines[:most]) + (" ..." if len(lines) > most else "")
+
+
+def _warnings(sol, data, rows, flipped, outlier, best):
+    el, stats = sol.elements, sol.statistics
+    out = []
+    span = float(np.ptp(data.epoch_yr[rows[~outlier]]))
+    if span < el.period_yr:
+        out.append(f"The measurements span {span:.1f} yr, {100 * span / el.period_yr:.0f}% of "
+                   f"the {el.period_yr:.1f} yr period: P, e, T and a rest on a partial arc "
+                   "and may change with new data.")
+    if stats["phase_coverage"] < 0.5:
+        out.append(f"Poor phase coverage: measurements fall in "
+                   f"{100 * stats['phase_coverage']:.0f}% of the orbit's phase bins.")
+    if stats["n_used"] < 15:
+        out.append(f"Only {stats['n_used']} measurements were fitted; treat the orbit as "
+                   "preliminary.")
+    if sol.reduced_chi2 > 2.0:
+        out.append(f"Reduced chi2 = {sol.reduced_chi2:.2f}: the quoted sigmas underestimate "
+                   "the scatter; uncertainties were scaled up accordingly.")
+    elif sol.reduced_chi2 < 0.3:
+        out.append(f"Reduced chi2 = {sol.reduced_chi2:.2f}: the quoted sigmas look too large; "
+                   "uncertainties may be overestimated.")
+    if best.covariance is None:
+        out.append("The covariance could not be estimated (degenerate solution): "
+                   "no uncertainties are given.")
+    if sol.alternatives:
+        deltas = ", ".join(f"{c - sol.chi2:.1f}" for _, c in sol.alternatives)
+        out.append(f"{len(sol.alternatives)} other distinct orbit(s) fit nearly as well "
+                   f"(delta chi2 = {deltas}); the solution is not unique.")
+    if el.i_deg < 10 or el.i_deg > 170:
+        out.append("Nearly face-on orbit: Omega and omega are individually poorly defined; "
+                   "only their sum (or difference) is.")
+    if el.e < 0.05:
+        out.append("Nearly circular orbit: omega and T are poorly defined.")
+    if flipped.any():
+        out.append(f"{int(flipped.sum())} measurement(s) corrected for a 180 deg quadrant "
+                   f"error (lines {_lines(data, rows[flipped])}).")
+    if outlier.any():
+        out.append(f"{int(outlier.sum())} measurement(s) left out as outliers beyond "
+                   f"{sol.options.outlier_sigma:g} sigma (lines {_lines(data, rows[outlier])}).")
+    defaulted = np.flatnonzero(data.sigma_defaulted)
+    if defaulted.size:
+        out.append(f"{defaulted.size} measurement(s) had no sigma and used the technique's "
+                   f"default (lines {_lines(data, defaulted)}).")
+    if data.rejected:
+        out.append(f"{len(data.rejected)} log line(s) could not be used (lines "
+                   + ", ".join(str(p.line) for p in data.rejected[:12])
+                   + (" ..." if len(data.rejected) > 12 else "") + ").")
+    return out
