@@ -1,0 +1,350 @@
+"""The batch manifest: one row per system of a catalogue, in CSV or TOML.
+
+Layout (our own; every key optional except ``id`` and ``log``):
+
+================== ==========================================================================
+key                meaning
+================== ==========================================================================
+id                 name of the system, unique in the manifest
+log                measurement log, relative to the manifest's folder (must stay inside it)
+P T e a i Omega    previous (catalogued) orbit: P [yr], T [epoch], a [arcsec], angles [deg];
+omega              all seven or none
+P_err ... omega_err  their 1-sigma errors (T_err in the unit of T's scale: yr, or d for JD/MJD)
+last_epoch         epoch of the last measurement the previous orbit used; newer data decide
+                   the revision verdict (all data do when it is missing)
+parallax_mas       trigonometric parallax and its error [mas]; both or none
+parallax_err_mas
+q, q_err           mass ratio M2/M1 and its error
+rv_log             radial-velocity log, relative to the manifest's folder like ``log``
+ra_deg, dec_deg    target coordinates (J2000) [deg] for position-angle precession
+================== ==========================================================================
+
+Epochs (T, last_epoch) are written as in measurement logs (``reductions.parse_epoch``): a
+plain decimal year is a Besselian year (the trade's custom), ``J2015.5`` a Julian year,
+``JD2457000.5`` / ``MJD57000`` dates, ``2015-07-01`` an ISO date. P is in Julian years.
+
+CSV: a header line naming the columns, ``#`` starts a comment line. TOML: an array of
+tables ``[[system]]`` with the same keys. Unknown columns stop the whole manifest (a
+misspelt column would otherwise be silently ignored); a broken row only makes that system
+fail, with a message naming the manifest file, line and column.
+"""
+from __future__ import annotations
+
+import csv
+import io
+import math
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from .elements import ELEMENT_KEYS, CampbellElements
+from .errors import InputError
+from .reductions import epoch_unit, parse_epoch
+
+__all__ = ["SystemEntry", "MANIFEST_KEYS", "read_manifest"]
+
+_ERROR_KEYS = tuple(f"{k}_err" for k in ELEMENT_KEYS)
+#: Every key a manifest row may carry.
+MANIFEST_KEYS = (("id", "log") + ELEMENT_KEYS + _ERROR_KEYS
+                 + ("last_epoch", "parallax_mas", "parallax_err_mas", "q", "q_err", "rv_log",
+                    "ra_deg", "dec_deg"))
+_JULIAN_YEAR_D = 365.25
+
+
+@dataclass
+class SystemEntry:
+    """One system of the manifest, validated.
+
+    Attributes
+    ----------
+    id : str
+        Name of the system (``"<line N>"`` when the row had none).
+    line : int or None
+        Line of the row in the manifest (CSV row, or the ``[[system]]`` header in TOML).
+    manifest : str
+        Path of the manifest.
+    fields : dict
+        The row exactly as written (key -> text); nothing the user gave is dropped.
+    log : str or None
+        Absolute, resolved path of the measurement log.
+    previous : CampbellElements or None
+        The previous orbit, T as a decimal Julian year.
+    previous_errors : dict
+        1-sigma errors of the previous elements that were given, internal units
+        (P, T [yr], e, a [arcsec], angles [deg]).
+    last_epoch_yr : float or None
+        Epoch of the previous orbit's last data, decimal Julian year.
+    parallax_mas : tuple of float or None
+        (parallax, error) [mas].
+    mass_ratio : tuple of float or None
+        (q, error).
+    rv_log : str or None
+        Absolute, resolved path of the radial-velocity log.
+    ra_deg, dec_deg : float or None
+        Target coordinates [deg].
+    problem : str or None
+        Why the row cannot be processed (file, line, column and the fix); None when fine.
+    """
+
+    id: str
+    line: int | None
+    manifest: str
+    fields: dict
+    log: str | None = None
+    previous: CampbellElements | None = None
+    previous_errors: dict = field(default_factory=dict)
+    last_epoch_yr: float | None = None
+    parallax_mas: tuple | None = None
+    mass_ratio: tuple | None = None
+    rv_log: str | None = None
+    ra_deg: float | None = None
+    dec_deg: float | None = None
+    problem: str | None = None
+
+
+def read_manifest(path):
+    """Read and validate a manifest (``.toml`` as TOML, anything else as CSV).
+
+    Parameters
+    ----------
+    path : str or Path
+        The manifest file.
+
+    Returns
+    -------
+    list of SystemEntry
+        In manifest order; rows that cannot be used carry ``problem``.
+
+    Raises
+    ------
+    InputError
+        When the manifest as a whole cannot be read (missing file, syntax, unknown or
+        missing columns).
+    """
+    path = Path(path)
+    try:
+        text = path.read_text(encoding="utf-8")
+    except OSError as exc:
+        raise InputError(f"{path}: cannot read the manifest ({exc.strerror})") from None
+    except UnicodeDecodeError as exc:
+        raise InputError(f"{path}: the manifest is not UTF-8 text ({exc.reason} at byte "
+                         f"{exc.start})") from None
+    rows = _toml_rows(path, text) if path.suffix.lower() == ".toml" else _csv_rows(path, text)
+    entries, seen = [], {}
+    for line, row, problems in rows:
+        entry = _entry(path, line, row, problems)
+        if entry.id in seen and not entry.problem:
+            entry.problem = _where(path, line, "id") + (
+                f": id {entry.id!r} is already used on line {seen[entry.id]}; ids must be "
+                "unique")
+        seen.setdefault(entry.id, line)
+        entries.append(entry)
+    if not entries:
+        raise InputError(f"{path}: the manifest lists no systems")
+    return entries
+
+
+def _where(path, line, column=None):
+    where = f"{path}, line {line}" if line is not None else str(path)
+    return where + (f", column '{column}'" if column else "")
+
+
+def _check_keys(path, keys, line=None):
+    unknown = [k for k in keys if k not in MANIFEST_KEYS]
+    if unknown:
+        raise InputError(f"{_where(path, line)}: unknown column(s) {', '.join(map(repr, unknown))};"
+                         f" a manifest may have {', '.join(MANIFEST_KEYS)}")
+
+
+def _csv_rows(path, text):
+    """(line, {key: text}, problems) for each data row of a CSV manifest."""
+    lines = [("" if ln.lstrip().startswith("#") else ln) for ln in text.splitlines()]
+    reader = csv.reader(io.StringIO("\n".join(lines) + "\n"))
+    header, rows = None, []
+    for record in reader:
+        if not any(cell.strip() for cell in record):
+            continue
+        if header is None:
+            header = [c.strip() for c in record]
+            missing = [k for k in ("id", "log") if k not in header]
+            if missing:
+                raise InputError(f"{_where(path, reader.line_num)}: the header has no "
+                                 f"{' and no '.join(map(repr, missing))} column; the first "
+                                 "line must name the columns, e.g. 'id,log,P,T,e,a,i,Omega,omega'")
+            _check_keys(path, header, reader.line_num)
+            continue
+        problems = []
+        if len(record) != len(header):
+            problems.append(_where(path, reader.line_num) + f": {len(record)} fields where the "
+                            f"header has {len(header)}; quote values that contain commas")
+        row = {k: v.strip() for k, v in zip(header, record) if v.strip()}
+        rows.append((reader.line_num, row, problems))
+    if header is None:
+        raise InputError(f"{path}: the manifest is empty; expected a header line such as "
+                         "'id,log,P,T,e,a,i,Omega,omega' and one row per system")
+    return rows
+
+
+def _toml_rows(path, text):
+    """(line, {key: text}, problems) for each ``[[system]]`` table of a TOML manifest."""
+    import tomllib
+    try:
+        doc = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"{path}: not valid TOML ({exc})") from None
+    other = [k for k in doc if k != "system"]
+    systems = doc.get("system")
+    if other or not isinstance(systems, list):
+        raise InputError(f"{path}: expected only an array of tables [[system]] (one per "
+                         f"system, keys {', '.join(MANIFEST_KEYS)})"
+                         + (f"; found {', '.join(map(repr, other))}" if other else ""))
+    headers = [n for n, ln in enumerate(text.splitlines(), 1)
+               if re.match(r"\s*\[\[\s*system\s*\]\]", ln)]
+    if len(headers) != len(systems):
+        headers = [None] * len(systems)  # inline tables: no line to point at
+    rows = []
+    for line, table in zip(headers, systems):
+        _check_keys(path, table, line)
+        problems = [_where(path, line, k) + f": expected a number or a string, got {v!r}"
+                    for k, v in table.items() if not isinstance(v, (str, int, float))
+                    or isinstance(v, bool)]
+        row = {k: (v if isinstance(v, str) else repr(v)).strip() for k, v in table.items()
+               if isinstance(v, (str, int, float)) and not isinstance(v, bool)}
+        rows.append((line, {k: v for k, v in row.items() if v}, problems))
+    return rows
+
+
+class _RowProblem(Exception):
+    """A problem with one value of a row (caught per row)."""
+
+
+def _entry(path, line, row, problems):
+    """Validate one row; problems go into ``entry.problem``, never raise."""
+    entry = SystemEntry(id=row.get("id") or f"<line {line}>", line=line, manifest=str(path),
+                        fields=dict(row))
+    for check in (_check_id, _set_log, _set_previous, _set_last_epoch, _set_parallax,
+                  _set_mass_ratio, _set_rv_log, _set_coordinates):
+        try:
+            check(entry, row)
+        except _RowProblem as exc:
+            problems.append(_where(path, line, exc.args[0]) + ": " + exc.args[1])
+    entry.problem = "; ".join(problems) or None
+    return entry
+
+
+def _check_id(entry, row):
+    if not row.get("id"):
+        raise _RowProblem("id", "the system has no id; give each system a unique name")
+
+
+def _number(row, key, what):
+    text = row[key]
+    try:
+        value = float(text)
+    except ValueError:
+        raise _RowProblem(key, f"expected {what}, got {text!r}") from None
+    if not math.isfinite(value):
+        raise _RowProblem(key, f"expected a finite number ({what}), got {text!r}")
+    return value
+
+
+def _inside(entry, row, key):
+    """Resolved path of a file named in column ``key``, refused when it leaves the folder."""
+    folder = Path(entry.manifest).resolve().parent
+    written = row[key]
+    target = (folder / written).resolve()  # resolves '..' and symbolic links
+    if not target.is_relative_to(folder):
+        raise _RowProblem(key, f"{written!r} leads outside the manifest's folder ({folder}) "
+                          f"to {target}; put the file inside that folder and give its path "
+                          "relative to the manifest")
+    if not target.is_file():
+        raise _RowProblem(key, f"the file {written!r} does not exist (looked for {target})")
+    return str(target)
+
+
+def _set_log(entry, row):
+    if not row.get("log"):
+        raise _RowProblem("log", "no measurement log given; give its path relative to the "
+                          "manifest")
+    entry.log = _inside(entry, row, "log")
+
+
+def _set_rv_log(entry, row):
+    if row.get("rv_log"):
+        entry.rv_log = _inside(entry, row, "rv_log")
+
+
+def _epoch(row, key):
+    try:
+        return parse_epoch(row[key])
+    except ValueError as exc:
+        raise _RowProblem(key, str(exc)) from None
+
+
+def _set_previous(entry, row):
+    given = [k for k in ELEMENT_KEYS if row.get(k)]
+    errors_given = [k for k in _ERROR_KEYS if row.get(k)]
+    if not given:
+        if errors_given:
+            raise _RowProblem(errors_given[0], "element errors given without the previous "
+                              "elements; give P, T, e, a, i, Omega, omega too")
+        return
+    missing = [k for k in ELEMENT_KEYS if k not in given]
+    if missing:
+        raise _RowProblem(missing[0], "the previous orbit needs all seven elements; missing "
+                          + ", ".join(missing))
+    values = {k: _number(row, k, "a number") for k in ELEMENT_KEYS if k != "T"}
+    values["T"], scale = _epoch(row, "T")
+    for key, check, text in (("P", values["P"] > 0, "a positive period [yr]"),
+                             ("e", 0 <= values["e"] < 1, "an eccentricity 0 <= e < 1"),
+                             ("a", values["a"] > 0, "a positive semi-major axis [arcsec]")):
+        if not check:
+            raise _RowProblem(key, f"expected {text}, got {row[key]!r}")
+    entry.previous = CampbellElements.from_keys(values)
+    for key in errors_given:
+        err = _number(row, key, "a non-negative error")
+        if err < 0:
+            raise _RowProblem(key, f"expected a non-negative error, got {row[key]!r}")
+        if key == "T_err" and epoch_unit(scale) == "d":
+            err /= _JULIAN_YEAR_D  # T written as a date: its error is in days
+        entry.previous_errors[key[:-4]] = err
+
+
+def _set_last_epoch(entry, row):
+    if row.get("last_epoch"):
+        entry.last_epoch_yr = _epoch(row, "last_epoch")[0]
+
+
+def _pair(row, key, err_key, what):
+    if not row.get(key) and not row.get(err_key):
+        return None
+    for k in (key, err_key):
+        if not row.get(k):
+            raise _RowProblem(k, f"{key} and {err_key} go together; give both or neither")
+    value, err = _number(row, key, what), _number(row, err_key, "an error")
+    if not value > 0 or not err > 0:
+        bad = key if not value > 0 else err_key
+        raise _RowProblem(bad, f"expected a positive number, got {row[bad]!r}")
+    return value, err
+
+
+def _set_parallax(entry, row):
+    entry.parallax_mas = _pair(row, "parallax_mas", "parallax_err_mas", "a parallax [mas]")
+
+
+def _set_mass_ratio(entry, row):
+    entry.mass_ratio = _pair(row, "q", "q_err", "a mass ratio M2/M1")
+
+
+def _set_coordinates(entry, row):
+    if not row.get("ra_deg") and not row.get("dec_deg"):
+        return
+    for k in ("ra_deg", "dec_deg"):
+        if not row.get(k):
+            raise _RowProblem(k, "ra_deg and dec_deg go together; give both or neither")
+    ra, dec = _number(row, "ra_deg", "degrees"), _number(row, "dec_deg", "degrees")
+    if not 0 <= ra < 360:
+        raise _RowProblem("ra_deg", f"expected 0 <= ra_deg < 360, got {row['ra_deg']!r}")
+    if not -90 <= dec <= 90:
+        raise _RowProblem("dec_deg", f"expected -90 <= dec_deg <= 90, got {row['dec_deg']!r}")
+    entry.ra_deg, entry.dec_deg = ra, dec

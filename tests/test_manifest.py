@@ -1,0 +1,136 @@
+"""Tests of the batch manifest reader: layout, validation, and refusing paths that escape."""
+from __future__ import annotations
+
+import os
+
+import pytest
+
+from orbweigh.errors import InputError
+from orbweigh.manifest import read_manifest
+
+HEADER = "id,log,P,T,e,a,i,Omega,omega,T_err,last_epoch,parallax_mas,parallax_err_mas,q,q_err"
+
+
+@pytest.fixture
+def folder(tmp_path):
+    (tmp_path / "logs").mkdir()
+    (tmp_path / "logs" / "a.csv").write_text("epoch,theta,rho\n2000.0,10,1\n")
+    (tmp_path / "outside.csv").write_text("epoch,theta,rho\n2000.0,10,1\n")
+    inner = tmp_path / "cat"
+    inner.mkdir()
+    (inner / "logs").symlink_to(tmp_path / "logs")   # a folder link leaving 'cat'
+    (inner / "a.csv").write_text("epoch,theta,rho\n2000.0,10,1\n")
+    (inner / "alias.csv").symlink_to(inner / "a.csv")  # a link that stays inside
+    return inner
+
+
+def _write(folder, text, name="manifest.csv"):
+    path = folder / name
+    path.write_text(text)
+    return path
+
+
+def test_full_row_is_read_in_internal_units(folder):
+    path = _write(folder, HEADER + "\nA B,a.csv,41.623,JD2451545.0,0.2763,0.907,59.025,23.717,"
+                  "219.907,36.525,J2010.5,12.5,0.4,0.8,0.05\n")
+    (entry,) = read_manifest(path)
+    assert entry.problem is None
+    assert entry.log == str((folder / "a.csv").resolve())
+    # J2000.0 = JD 2451545.0 TT by definition (IAU 1976 system): T is 2000.0 Julian.
+    assert entry.previous.periastron_yr == pytest.approx(2000.0, abs=1e-9)
+    assert entry.previous.period_yr == 41.623 and entry.previous.node_deg == 23.717
+    # T written as a JD: its error is in days; 36.525 d = 0.1 Julian yr of 365.25 d (IAU).
+    assert entry.previous_errors == {"T": pytest.approx(0.1, rel=1e-12)}
+    assert entry.last_epoch_yr == pytest.approx(2010.5, abs=1e-12)
+    assert entry.parallax_mas == (12.5, 0.4) and entry.mass_ratio == (0.8, 0.05)
+    assert entry.fields["T"] == "JD2451545.0"  # the row as written is kept
+
+
+def test_plain_years_are_besselian(folder):
+    path = _write(folder, "id,log,P,T,e,a,i,Omega,omega\nx,a.csv,10,1950.0,0.1,1,10,20,30\n")
+    (entry,) = read_manifest(path)
+    # B1950.0 = JD 2433282.4235 (Lieske 1979, A&A 73, 282; memory), i.e. Julian year
+    # 2000 + (2433282.4235 - 2451545) / 365.25 = 1949.999790.
+    assert entry.previous.periastron_yr == pytest.approx(1949.999790, abs=2e-6)
+
+
+@pytest.mark.parametrize("log, expected", [
+    ("../outside.csv", "leads outside the manifest's folder"),
+    ("logs/a.csv", "leads outside the manifest's folder"),      # through the folder link
+    ("missing.csv", "does not exist"),
+    ("", "no measurement log given"),
+])
+def test_log_paths_that_escape_or_are_missing_fail_that_row(folder, log, expected):
+    path = _write(folder, f"id,log\nfine,a.csv\nbad,{log}\nalias,alias.csv\n")
+    fine, bad, alias = read_manifest(path)
+    assert fine.problem is None and alias.problem is None
+    assert bad.problem.startswith(f"{path}, line 3, column 'log': ")
+    assert expected in bad.problem
+
+
+def test_absolute_path_outside_is_refused(folder):
+    outside = (folder.parent / "outside.csv").resolve()
+    path = _write(folder, f"id,log\nabs,{outside}\n")
+    (entry,) = read_manifest(path)
+    assert "leads outside" in entry.problem and entry.log is None
+
+
+@pytest.mark.parametrize("cells, column, expected", [
+    ("x,a.csv,ten,2000,0.1,1,10,20,30", "P", "expected a number"),
+    ("x,a.csv,10,2000,1.2,1,10,20,30", "e", "0 <= e < 1"),
+    ("x,a.csv,10,2000,0.1,,10,20,30", "a", "missing a"),
+    ("x,a.csv,10,2000x,0.1,1,10,20,30", "T", "cannot read '2000x' as an epoch"),
+    ("x,a.csv,-5,2000,0.1,1,10,20,30", "P", "positive period"),
+])
+def test_broken_previous_elements(folder, cells, column, expected):
+    path = _write(folder, "# a catalogue\nid,log,P,T,e,a,i,Omega,omega\n" + cells + "\n")
+    (entry,) = read_manifest(path)
+    assert entry.problem.startswith(f"{path}, line 3, column '{column}'")
+    assert expected in entry.problem
+    assert entry.previous is None
+
+
+def test_pairs_coordinates_duplicates_and_field_count(folder):
+    path = _write(folder, "id,log,parallax_mas,parallax_err_mas,ra_deg,dec_deg\n"
+                  "p,a.csv,12,,,\n"
+                  "c,a.csv,,,100,95\n"
+                  "p,a.csv,12,1,,\n"
+                  "n,a.csv,12,1,10,20,extra\n")
+    p, c, dup, n = read_manifest(path)
+    assert "column 'parallax_err_mas'" in p.problem and "give both" in p.problem
+    assert "column 'dec_deg'" in c.problem and "-90 <= dec_deg <= 90" in c.problem
+    assert "line 4, column 'id'" in dup.problem and "already used on line 2" in dup.problem
+    assert "line 5" in n.problem and "7 fields where the header has 6" in n.problem
+    assert (n.ra_deg, n.dec_deg, n.parallax_mas) == (10.0, 20.0, (12.0, 1.0))
+
+
+def test_whole_manifest_errors(folder, tmp_path):
+    with pytest.raises(InputError, match="unknown column.*'paralax_mas'"):
+        read_manifest(_write(folder, "id,log,paralax_mas\nx,a.csv,3\n"))
+    with pytest.raises(InputError, match="no 'log' column"):
+        read_manifest(_write(folder, "id,path\nx,a.csv\n"))
+    with pytest.raises(InputError, match="cannot read the manifest"):
+        read_manifest(tmp_path / "nothing.csv")
+    with pytest.raises(InputError, match="lists no systems"):
+        read_manifest(_write(folder, "id,log\n"))
+
+
+def test_toml_manifest_with_lines(folder):
+    path = _write(folder, 'title_ignored = 1\n', "bad.toml")
+    with pytest.raises(InputError, match=r"only an array of tables \[\[system\]\]"):
+        read_manifest(path)
+    path = _write(folder, '# catalogue\n[[system]]\nid = "a"\nlog = "a.csv"\nP = 10\n'
+                  'T = "J2000.0"\ne = 0.5\na = 1.5\ni = 80\nOmega = 10\nomega = 20\n\n'
+                  '[[system]]\nid = "b"\nlog = "../outside.csv"\n', "manifest.toml")
+    a, b = read_manifest(path)
+    assert a.problem is None and a.previous.e == 0.5 and a.previous.periastron_yr == 2000.0
+    assert b.problem.startswith(f"{path}, line 13, column 'log'")
+
+
+def test_symlinked_manifest_folder_still_confines(folder, tmp_path):
+    # Opening the manifest through a link to its folder changes nothing.
+    link = tmp_path / "link"
+    os.symlink(folder, link)
+    path = _write(folder, "id,log\nok,a.csv\nout,../outside.csv\n")
+    ok, out = read_manifest(link / path.name)
+    assert ok.problem is None and "outside" in out.problem
