@@ -1,4 +1,5 @@
 """Reading and validating measurement logs."""
+import re
 from pathlib import Path
 
 import numpy as np
@@ -120,7 +121,8 @@ def test_ecsv_in_radians_and_target_from_arguments(tmp_path):
 
 
 def test_space_rows_not_precessed(tmp_path):
-    path = write(tmp_path, "epoch,theta,rho,technique\n1900.0,10,1,visual\n1991.25,20,1,hipparcos\n")
+    path = write(tmp_path, "epoch,theta,rho,technique\n1900.0,10,1,visual\n"
+                           "1991.25,20,1,hipparcos\n")
     ms = read_measurements(path, target_ra_deg=90.0, target_dec_deg=0.0)
     assert ms.theta_deg[1] == 20.0
     assert ms.theta_deg[0] - 10.0 == pytest.approx(
@@ -177,7 +179,7 @@ def test_each_row_problem_names_line_and_column():
     assert sorted(p) == sorted(expected)
     for line, (column, pattern) in expected.items():
         assert p[line].column == column
-        assert __import__("re").search(pattern, p[line].reason), (line, p[line].reason)
+        assert re.search(pattern, p[line].reason), (line, p[line].reason)
 
 
 def test_strict_raises_first_problem():
@@ -207,7 +209,7 @@ def test_flagged_excluded_but_kept(tmp_path):
     ("epoch,theta,rho\n# nothing\n", r"line 1: no data rows after the header \(line 1\)"),
     ("date,pa,rho\n1900,1,1\n", r"line 1: required column\(s\) epoch, theta not found; the "
                                 "header has: date, pa, rho.*--columns epoch=date,theta=pa"),
-    ("1900.0,100.0,1.0\n", "line 1 looks like data, not a header"),
+    ("# epoch,theta,rho\n1900.0,100.0,1.0\n", "line 2: this line looks like data, not a header"),
     ("epoch,theta,rho\n1900.0\t100.0\t1.0\n1901.0\t101.0\t1.0\n",
      r"line 2: no data line matches the header \(wrong delimiter\?\).*seems to use tab"),
     ("epoch,Theta,THETA,rho\n1,2,3,4\n", "names column.s. theta twice"),

@@ -40,13 +40,12 @@ from __future__ import annotations
 import csv
 import re
 from dataclasses import dataclass, field
-from pathlib import Path
 
 import numpy as np
 
 from .errors import InputError, LogFormatError
-from .reductions import EPOCH_SCALES, julian_years_of, parse_target_coordinates, \
-    precess_theta_to_j2000, split_epoch
+from .reductions import (EPOCH_SCALES, julian_years_of, parse_target_coordinates,
+                         precess_theta_to_j2000, split_epoch)
 
 __all__ = ["RowProblem", "MeasurementSet", "LogTable", "Suspicion", "REQUIRED_COLUMNS",
            "OPTIONAL_COLUMNS", "MISSING_MARKERS", "TECHNIQUE_DEFAULTS", "TECHNIQUE_ALIASES",
@@ -400,9 +399,10 @@ def _header(path, lines, body):
                              f"column; it seems separated by {other}. Separate columns with "
                              "commas or whitespace", line=line)
     if all(_is_number(n) for n in names):
-        raise LogFormatError(path, f"line {line} looks like data, not a header; add a first "
+        raise LogFormatError(path, "this line looks like data, not a header; add a first "
                              "line naming the columns, e.g. 'epoch,theta,rho,sigma_theta,"
-                             "sigma_rho'", line=line)
+                             "sigma_rho' (a header written as a '#' comment is ignored)",
+                             line=line)
     return fmt, split, names, {}, {}
 
 
@@ -701,8 +701,9 @@ def _assemble(table, records, problems, target):
     scale = scales[0] if scales else "besselian"
     counts = {s: scales.count(s) for s in dict.fromkeys(scales)}
     if len(counts) > 1:
-        meta["epoch_scale_note"] = (f"rows mix epoch scales ({', '.join(f'{s}: {n}' for s, n in counts.items())}); "
-                                    f"results are written as {scale}, the scale of the first row")
+        mix = ", ".join(f"{s}: {n}" for s, n in counts.items())
+        meta["epoch_scale_note"] = (f"rows mix epoch scales ({mix}); results are written as "
+                                    f"{scale}, the scale of the first row")
     col = lambda key, dtype=float: np.array([r[key] for r in records], dtype=dtype)  # noqa: E731
     return MeasurementSet(
         source=table.path, line=col("line", int), epoch_yr=np.asarray(epoch_yr, float),
@@ -717,7 +718,8 @@ def _assemble(table, records, problems, target):
 # ------------------------------------------------------------------------- suspicious points
 
 #: Rules of ``suspicious_rows`` (common practice, no source).
-FLIP_WINDOW_YR = 1.0       # neighbours in time for the quadrant-flip test [yr]
+FLIP_NEIGHBOURS = 2        # rows compared on each side in time for the quadrant-flip test
+FLIP_WINDOW_YR = 5.0       # ... when no farther away in time than this [yr]
 FLIP_MIN_DEG = 150.0       # |delta theta| at least this is "about 180 deg"
 FLIP_RHO_TOL = 0.25        # "similar rho": relative difference at most this
 TIGHT_FRACTION = 0.1       # sigma below this fraction of the technique's typical value
@@ -743,8 +745,10 @@ def suspicious_rows(ms):
 
     Rules, on rows not excluded by a flag:
 
-    * ``quadrant_flip``: theta differs by more than ``FLIP_MIN_DEG`` from most rows within
-      ``FLIP_WINDOW_YR`` whose rho agrees within ``FLIP_RHO_TOL`` (relative).
+    * ``quadrant_flip``: theta differs by at least ``FLIP_MIN_DEG`` from most of its
+      neighbours: the ``FLIP_NEIGHBOURS`` nearest rows in time on each side, within
+      ``FLIP_WINDOW_YR``, whose rho agrees within ``FLIP_RHO_TOL`` (relative). With a
+      single neighbour both rows are named, since either may be the flipped one.
     * ``small_sigma``: an effective sigma below ``TIGHT_FRACTION`` of the technique's
       typical value (``TECHNIQUE_DEFAULTS``; for isotropic techniques sigma_theta is
       compared as rho * sigma_theta); not applied to technique 'unknown'.
@@ -762,15 +766,18 @@ def suspicious_rows(ms):
     out = []
     dt = np.abs(t[:, None] - t[None, :])
     dth = np.abs(_wrap180(th[:, None] - th[None, :]))
-    near = (dt <= FLIP_WINDOW_YR) & (np.abs(rho[:, None] / rho[None, :] - 1) <= FLIP_RHO_TOL)
-    np.fill_diagonal(near, False)
+    rank = np.empty(use.size, int)
+    rank[np.argsort(t, kind="stable")] = np.arange(use.size)
+    adjacent = np.abs(rank[:, None] - rank[None, :])
+    near = ((adjacent >= 1) & (adjacent <= FLIP_NEIGHBOURS) & (dt <= FLIP_WINDOW_YR)
+            & (np.abs(rho[:, None] / rho[None, :] - 1) <= FLIP_RHO_TOL))
     flipped = near & (dth >= FLIP_MIN_DEG)
     for k in np.flatnonzero(flipped.sum(1) * 2 > near.sum(1)):
         others = ", ".join(str(v) for v in lines[flipped[k]])
         out.append(Suspicion(int(lines[k]), "quadrant_flip",
                              f"theta {th[k]:.1f} deg is about 180 deg from line(s) {others} at "
-                             f"similar rho within {FLIP_WINDOW_YR:g} yr: possible quadrant "
-                             f"flip (theta + 180 = {(th[k] + 180) % 360:.1f})"))
+                             f"similar rho: possible quadrant flip (theta + 180 = "
+                             f"{(th[k] + 180) % 360:.1f})"))
     for k in range(use.size):
         message = _tight_sigma(ms.technique[use[k]], rho[k], s_th[k], s_rho[k])
         if message and not ms.sigma_defaulted[use[k]]:

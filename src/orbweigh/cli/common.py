@@ -1,7 +1,7 @@
 """Command-line options shared by the commands that read a measurement log."""
 from __future__ import annotations
 
-__all__ = ["add_log_arguments", "load_log"]
+__all__ = ["add_log_arguments", "load_log", "add_mass_arguments", "check_mass_arguments"]
 
 
 def add_log_arguments(parser):
@@ -29,3 +29,31 @@ def load_log(args):
     columns = parse_column_mapping(args.columns) if args.columns else None
     return read_measurements(args.log, columns=columns, target_ra_deg=args.target_ra,
                              target_dec_deg=args.target_dec, strict=args.strict)
+
+
+def add_mass_arguments(parser):
+    """Add --parallax, --mass-ratio | --rv-amplitudes, --magnitudes and --band."""
+    parser.add_argument("--parallax", nargs=2, type=float, metavar=("VALUE", "ERROR"),
+                        help="trigonometric parallax and its error [mas]")
+    ratio = parser.add_mutually_exclusive_group()
+    ratio.add_argument("--mass-ratio", nargs=2, type=float, metavar=("Q", "QERR"),
+                       help="mass ratio q = M2/M1 and its error, for the component masses")
+    ratio.add_argument("--rv-amplitudes", nargs=4, type=float,
+                       metavar=("K1", "K1ERR", "K2", "K2ERR"),
+                       help="radial-velocity amplitudes and errors [km/s]; q = K1/K2")
+    parser.add_argument("--magnitudes", nargs=2, type=float, metavar=("M1", "M2"),
+                        help="apparent magnitudes of primary and secondary, for a dynamical "
+                             "parallax when no trigonometric one is known")
+    parser.add_argument("--band", default=None,
+                        help="band of --magnitudes: 'bol' (bolometric; Eker et al. 2018) or "
+                             "'K' (2MASS Ks; Mann et al. 2019)")
+
+
+def check_mass_arguments(args):
+    """Refuse inconsistent mass options with a clear message."""
+    from ..errors import InputError
+
+    if args.magnitudes is not None and args.band is None:
+        raise InputError("--magnitudes needs --band: 'bol' (bolometric) or 'K' (2MASS Ks)")
+    if args.band is not None and args.magnitudes is None:
+        raise InputError("--band describes --magnitudes; give the magnitudes too, or drop --band")
