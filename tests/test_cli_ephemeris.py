@@ -169,3 +169,19 @@ def test_bad_documents_exit_2(tmp_path, capsys):
     assert main(["ephemeris", str(bad), "--epochs", "2030"]) == 2
     assert "line 1: not valid JSON" in capsys.readouterr().err
 
+
+
+@pytest.mark.parametrize("matrix, message", [
+    (np.diag([1.0, 1, 1, 1, 1, 1, np.nan]), "non-finite"),
+    (np.diag([1.0, 1, 1, -1, 1, 1, 1]), "not symmetric positive semi-definite"),
+    (np.eye(2), "the matrix is 2x2 but 7 parameters are named"),
+])
+def test_broken_covariance_blocks_exit_2(tmp_path, capsys, matrix, message):
+    doc = _document(MEEUS)
+    doc["covariance"] = {"parameters": list(ELEMENT_KEYS), "matrix": matrix.tolist()}
+    path = _write(tmp_path, doc)
+    for command in (["ephemeris", path, "--epochs", "2030"],
+                    ["plan", path, "--window", "2027", "2030"]):
+        assert main(command) == 2
+        err = capsys.readouterr().err
+        assert message in err and "Traceback" not in err

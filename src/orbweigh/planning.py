@@ -36,7 +36,8 @@ from .reductions import to_julian_year
 from .result import element_draws, elements_from_document, epoch_scale_of
 
 __all__ = ["EpochAdvice", "Plan", "dawes_limit_arcsec", "centred_draws", "element_covariance",
-           "position_jacobian", "variance_gains", "pick_epochs", "plan_observations"]
+           "covariance_from_document", "position_jacobian", "variance_gains", "pick_epochs",
+           "plan_observations"]
 
 #: Dawes' resolution limit, 116 arcsec mm (rule of thumb of the trade).
 DAWES_ARCSEC_MM = 116.0
@@ -172,12 +173,48 @@ def element_covariance(doc, draws):
     Posterior draws, when the document has them, give the sample covariance (after
     ``centred_draws``); otherwise the document's own covariance matrix is used as is.
     """
-    best = np.array(elements_from_document(doc).as_tuple())
     if (doc.get("posterior") or {}).get("draws_file"):
-        return np.cov(centred_draws(draws, best), rowvar=False), "posterior draws"
-    cov = doc["covariance"]
-    order = [cov["parameters"].index(k) for k in ELEMENT_KEYS]
-    return np.asarray(cov["matrix"], float)[np.ix_(order, order)], "covariance"
+        best = np.array(elements_from_document(doc).as_tuple())
+        matrix = np.cov(centred_draws(draws, best), rowvar=False)
+        if not np.isfinite(matrix).all():
+            raise InputError(f"{doc.get('_path', 'result document')}: the posterior draws "
+                             "contain non-finite values")
+        return matrix, "posterior draws"
+    return covariance_from_document(doc), "covariance"
+
+
+def covariance_from_document(doc):
+    """The document's 7x7 element covariance in ELEMENT_KEYS order, checked; or None.
+
+    Raises
+    ------
+    InputError
+        When the block misses an element, is not square, holds non-finite numbers or is
+        not a symmetric positive semi-definite matrix.
+    """
+    cov = doc.get("covariance")
+    if not cov:
+        return None
+    where = f"{doc.get('_path', 'result document')}: covariance"
+    try:
+        names = list(cov["parameters"])
+        order = [names.index(k) for k in ELEMENT_KEYS]
+        full = np.asarray(cov["matrix"], float)
+    except (KeyError, TypeError, ValueError):
+        raise InputError(f"{where}: expected 'parameters' naming {', '.join(ELEMENT_KEYS)} "
+                         "and a numeric square 'matrix' in that order") from None
+    if full.shape != (len(names), len(names)):
+        raise InputError(f"{where}: the matrix is {'x'.join(map(str, full.shape))} but "
+                         f"{len(names)} parameters are named")
+    matrix = full[np.ix_(order, order)]
+    if not np.isfinite(matrix).all():
+        raise InputError(f"{where}: the matrix holds non-finite values; refit the orbit")
+    scale = np.abs(matrix).max()
+    if (not np.allclose(matrix, matrix.T, rtol=1e-6, atol=1e-12 * scale)
+            or np.linalg.eigvalsh(matrix).min() < -1e-9 * scale):
+        raise InputError(f"{where}: the matrix is not symmetric positive semi-definite, so "
+                         "it cannot be an element covariance")
+    return matrix
 
 
 def position_jacobian(elements, epoch_yr):
@@ -283,6 +320,7 @@ def plan_observations(doc, epochs, sigma_arcsec=0.005, aperture_mm=None, top=3,
         raise InputError(f"--sigma-mas must be positive, got {sigma_arcsec * 1e3}")
     if top < 1:
         raise InputError(f"--top must be at least 1, got {top}")
+    covariance_from_document(doc)   # a clear message for a broken block, before any draw
     draws = element_draws(doc, n_draws, seed)
     if draws is None:
         raise InputError(f"{doc.get('_path', 'result document')}: no posterior draws and no "

@@ -112,9 +112,9 @@ def run(args):
         else:
             with open(args.json, "w") as fh:
                 fh.write(text + "\n")
-    if args.json != "-":
-        print(_text(plan, args.result, scale))
-    for w in plan.warnings:
-        if args.json == "-":
+    if args.json == "-":    # the text (warnings included) is not printed: keep them
+        for w in plan.warnings:
             print(f"orbweigh plan: warning: {w}", file=sys.stderr)
+    else:
+        print(_text(plan, args.result, scale))
     return 0
