@@ -24,7 +24,7 @@ from astropy import constants
 
 from .errors import InputError
 
-__all__ = [
+__all__ = ["masses_for_document", 
     "THIRD_LAW_FACTOR", "KMS_PER_AU_YR", "EKER_RANGE_MSUN", "MANN_RANGE_MKS", "M_BOL_SUN",
     "BANDS", "total_mass_msun", "parallax_for_mass_mas", "orbital_parallax_mas",
     "linear_propagation", "eker_log_luminosity", "eker_mass_from_log_luminosity",
@@ -566,3 +566,22 @@ def format_mass_blocks(blocks):
     if blocks["warnings"]:
         lines += ["", "Warnings:"] + [f"  - {w}" for w in blocks["warnings"]]
     return "\n".join(lines)
+
+
+def masses_for_document(doc, parallax=None, mass_ratio=None, rv_amplitudes=None,
+                        magnitudes=None, band=None, n_draws=4000, seed=1):
+    """Mass blocks for a result document: element draws (posterior, else covariance,
+    else independent errors) through ``mass_blocks``. Returns the blocks with
+    ``mass["draws_source"]`` set; the document itself is not changed."""
+    from .result import draws_for_masses, elements_from_document
+
+    draws, source, cov_pa, notes = draws_for_masses(doc, n_draws, seed)
+    best = elements_from_document(doc)
+    blocks = mass_blocks(draws[:, 0], draws[:, 3], parallax=parallax, mass_ratio=mass_ratio,
+                         rv_amplitudes=rv_amplitudes, magnitudes=magnitudes, band=band,
+                         seed=seed, best=(best.period_yr, best.a_arcsec), cov_Pa=cov_pa,
+                         e_draws=draws[:, 2], i_draws=draws[:, 4])
+    blocks["warnings"][:0] = notes
+    blocks["mass"]["warnings"][:0] = notes
+    blocks["mass"]["draws_source"] = source
+    return blocks

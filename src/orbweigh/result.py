@@ -23,7 +23,7 @@ from .errors import InputError
 from .reductions import EPOCH_SCALES, to_julian_year
 
 __all__ = ["SCHEMA", "load_result", "elements_from_document", "element_draws", "epoch_scale_of",
-           "read_draws"]
+           "read_draws", "draws_for_masses"]
 
 SCHEMA = "orbweigh.result/1"
 
@@ -112,3 +112,28 @@ def element_draws(doc, n, seed):
     draws[:, 0] = np.abs(draws[:, 0])
     draws[:, 3] = np.abs(draws[:, 3])
     return draws
+
+
+def draws_for_masses(doc, n, seed):
+    """(n, 7) element draws, their source, and the (P, a) covariance for the linear estimate."""
+    draws = element_draws(doc, n, seed)
+    if (doc.get("posterior") or {}).get("draws_file"):
+        return draws, "posterior draws", None, []
+    if draws is not None:
+        cov = doc["covariance"]
+        idx = [cov["parameters"].index(k) for k in ("P", "a")]
+        return draws, "covariance", np.asarray(cov["matrix"], float)[np.ix_(idx, idx)], []
+    errors = []
+    for key in ELEMENT_KEYS:
+        entry = doc["elements"][key]
+        error = entry.get("error") if isinstance(entry, dict) else None
+        if key in ("P", "a") and not (isinstance(error, (int, float)) and error >= 0):
+            raise InputError(f"{doc.get('_path', 'result')}: no posterior draws, no covariance and no error "
+                             f"for element '{key}': the mass needs the uncertainty of P and a")
+        errors.append(float(error) if isinstance(error, (int, float)) else 0.0)
+    best = np.array(elements_from_document(doc).as_tuple())
+    draws = np.random.default_rng(seed).normal(best, errors, size=(n, len(best)))
+    draws[:, [0, 3]] = np.abs(draws[:, [0, 3]])
+    note = ("The result has no covariance matrix: P and a were drawn independently from "
+            "their errors, ignoring their correlation.")
+    return draws, "element errors", np.diag([errors[0] ** 2, errors[3] ** 2]), [note]

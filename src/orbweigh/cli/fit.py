@@ -1,0 +1,80 @@
+"""``orbweigh fit``: measurement log -> apparent orbit (and masses with a parallax)."""
+from __future__ import annotations
+
+import json
+import sys
+from pathlib import Path
+
+from .common import add_log_arguments, add_mass_arguments, check_mass_arguments, load_log
+
+__all__ = ["add_arguments", "run"]
+
+
+def add_arguments(parser):
+    add_log_arguments(parser)
+    add_mass_arguments(parser)
+    parser.add_argument("--period-range", nargs=2, type=float, metavar=("PMIN", "PMAX"),
+                        help="search periods between PMIN and PMAX years (default: from the "
+                             "sampling, up to 20 times the time span)")
+    parser.add_argument("--loss", choices=("linear", "soft_l1", "huber"), default="linear",
+                        help="loss of the refinement (default linear = plain least squares)")
+    parser.add_argument("--no-flips", action="store_true",
+                        help="do not correct 180 deg quadrant errors")
+    parser.add_argument("--outlier-sigma", type=float, default=4.0, metavar="S",
+                        help="leave out points beyond S sigma (default 4)")
+    parser.add_argument("--seed", type=int, default=1, metavar="N",
+                        help="seed of every random step (default 1); reported in the result")
+    parser.add_argument("--json", metavar="PATH",
+                        help="write the result document to PATH ('-' for standard output)")
+    parser.add_argument("--out", metavar="DIR",
+                        help="write result.json (and any draws) into DIR")
+
+
+def run(args):
+    from ..fitting import FitOptions, fit_orbit
+    from ..summary import format_result
+
+    check_mass_arguments(args)
+    data = load_log(args)
+    options = FitOptions(period_range=tuple(args.period_range) if args.period_range else None,
+                         loss=args.loss, flips=not args.no_flips,
+                         outlier_sigma=args.outlier_sigma, seed=args.seed)
+    doc = fit_orbit(data, options).to_document()
+    if args.parallax is not None or args.magnitudes is not None:
+        _add_masses(doc, args)
+    text = format_result(doc)
+    if "mass" in doc:
+        from ..masses import format_mass_blocks
+        text += "\n" + format_mass_blocks({"mass": doc["mass"], "parallax": doc["parallax"],
+                                           "warnings": doc["mass"].get("warnings", [])})
+    print(text, file=sys.stderr if args.json == "-" else sys.stdout)
+    _write_outputs(doc, args)
+    return 0
+
+
+def _add_masses(doc, args):
+    from ..masses import masses_for_document
+
+    blocks = masses_for_document(doc, parallax=args.parallax, mass_ratio=args.mass_ratio,
+                                 rv_amplitudes=args.rv_amplitudes, magnitudes=args.magnitudes,
+                                 band=args.band, seed=args.seed)
+    doc["mass"], doc["parallax"] = blocks["mass"], blocks["parallax"]
+    doc["warnings"].extend(blocks["warnings"])
+
+
+def _write_outputs(doc, args):
+    payload = json.dumps(doc, indent=2) + "\n"
+    if args.json == "-":
+        sys.stdout.write(payload)
+    elif args.json:
+        _atomic_write(Path(args.json), payload)
+    if args.out:
+        out = Path(args.out)
+        out.mkdir(parents=True, exist_ok=True)
+        _atomic_write(out / "result.json", payload)
+
+
+def _atomic_write(path, text):
+    tmp = path.with_name(path.name + ".tmp")
+    tmp.write_text(text)
+    tmp.replace(path)

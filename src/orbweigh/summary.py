@@ -1,0 +1,65 @@
+"""Plain-text summary of a result document, as the ``fit`` command prints it."""
+from __future__ import annotations
+
+import math
+
+__all__ = ["format_result"]
+
+_LABELS = {"P": "P (period)", "T": "T (periastron)", "e": "e", "a": "a (semi-major axis)",
+           "i": "i (inclination)", "Omega": "Omega (node)", "omega": "omega (periastron arg.)"}
+
+
+def _digits(error):
+    """Decimals that show the error to two significant figures."""
+    if error is None or not math.isfinite(error) or error <= 0:
+        return 4
+    return max(0, 1 - int(math.floor(math.log10(error))))
+
+
+def _value(entry):
+    value, error, unit = entry["value"], entry.get("error"), entry.get("unit", "")
+    d = _digits(error)
+    text = f"{value:.{d}f}" + (f" ± {error:.{d}f}" if error is not None else " (no error)")
+    return f"{text} {unit}".rstrip()
+
+
+def format_result(doc):
+    """Elements, Thiele-Innes constants, statistics, flagged rows and warnings as text."""
+    out = [f"Orbit of {doc.get('source', '?')}"]
+    for key, entry in doc["elements"].items():
+        label = _LABELS.get(key, key)
+        extra = f"  [{entry['scale']} epoch]" if key == "T" else ""
+        out.append(f"  {label:<26}{_value(entry)}{extra}")
+    out.append("Thiele-Innes constants")
+    for key, entry in doc["thiele_innes"].items():
+        out.append(f"  {key:<26}{_value(entry)}")
+    s = doc["statistics"]
+    out.append("Fit")
+    out.append(f"  lines in log {s['n_input']}, fitted {s['n_used']}, flipped {s['n_flipped']}, "
+               f"outliers {s['n_outliers']}, excluded {s['n_excluded']}, "
+               f"rejected {s['n_rejected']}")
+    out.append(f"  chi2 {s['chi2']:.2f} for {s['dof']} degrees of freedom "
+               f"(reduced {s['reduced_chi2']:.2f}); rms theta {s['rms_theta_deg']:.3f} deg, "
+               f"rms rho {s['rms_rho_arcsec']:.4f} arcsec")
+    out.append(f"  epochs {s['epoch_first']:.2f}-{s['epoch_last']:.2f}, phase coverage "
+               f"{100 * s['phase_coverage']:.0f}%, periods searched "
+               f"{s['period_range_yr'][0]:.3g}-{s['period_range_yr'][1]:.4g} yr "
+               f"({s['n_trials']} trials), {s['fit_seconds']:.2f} s")
+    flagged = [r for r in doc["residuals"] if r["status"] not in ("used",)]
+    if flagged:
+        out.append("Rows not fitted as given")
+        for r in flagged:
+            out.append(f"  line {r['line']:>5}  {r['status']:<9} {r['reason']}")
+    for alt in doc.get("alternatives", []):
+        el = alt["elements"]
+        out.append(f"Alternative (delta chi2 {alt['delta_chi2']:.1f}): P {el['P']['value']:.3f} yr, "
+                   f"e {el['e']['value']:.3f}, a {el['a']['value']:.4f} arcsec, "
+                   f"i {el['i']['value']:.1f} deg")
+    if doc.get("warnings"):
+        out.append("Warnings")
+        out.extend(f"  - {w}" for w in doc["warnings"])
+    if doc.get("notes"):
+        out.append("Notes")
+        out.extend(f"  - {n}" for n in doc["notes"])
+    out.append(f"seed {doc.get('seed')}, orbweigh {doc.get('version')}")
+    return "\n".join(out)
