@@ -52,7 +52,7 @@ def eccentric_anomaly(mean_anom, e):
     # cubic M = e E^3 / 6, whichever is smaller. On [0, pi] f(E) = E - e sin E - M is
     # increasing and convex, so Newton steps kept inside the bracket converge
     # monotonically once on the right of the root, from any start.
-    with np.errstate(divide="ignore", invalid="ignore"):
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         cubic = np.where(ecc > 0.0, np.cbrt(6.0 * m / ecc), np.inf)
     E = np.clip(np.minimum(m + 0.85 * ecc, cubic), lo, hi)
     for _ in range(_MAX_ITERATIONS):
@@ -68,4 +68,4 @@ def true_anomaly(ecc_anom, e):
     ecc_anom = np.asarray(ecc_anom, float)
     half = np.arctan2(np.sqrt(1.0 + e) * np.sin(ecc_anom / 2.0),
                       np.sqrt(1.0 - e) * np.cos(ecc_anom / 2.0))
-    return 2.0 * half
+    return 2.0 * half + 2.0 * np.pi * np.round((ecc_anom - 2.0 * half) / (2.0 * np.pi))
