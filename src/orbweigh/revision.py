@@ -1,0 +1,322 @@
+"""Orbit-revision alarms: do new measurements still agree with a catalogued orbit?
+
+O-C against the old orbit
+-------------------------
+Every measurement is compared with the old orbit's prediction at its epoch. The
+tangential residual is the position-angle difference wrapped into (-180, 180] deg, the
+radial one the separation difference; each is divided by the measurement's effective
+sigma (sigma / sqrt(weight)):  z_theta = d_theta / sigma_theta,  z_rho = d_rho / sigma_rho.
+A point whose theta + 180 deg lowers z_theta^2 + z_rho^2 by more than
+``fitting.FLIP_MIN_GAIN`` is taken for a quadrant error (the fit's own rule) and scored
+flipped. Rows the user's flag excludes get their O-C listed but do not vote.
+
+The verdict
+-----------
+The N measurements newer than the old orbit's last data (all of them when that epoch is
+not known) decide. The old orbit was not fitted to them, so if it is right and the
+sigmas are honest the 2N normalised residuals are independent unit normals:
+
+* ``chi2 = sum(z_theta^2 + z_rho^2)`` follows chi2 with 2N degrees of freedom; its tail
+  probability is ``p_value``.
+* For each component a straight line z = m + b (t - t_mean) is fitted; the part of chi2
+  it explains, ``chi2_systematic = sum over components of N m^2 + b^2 S_tt``
+  (S_tt = sum (t - t_mean)^2), follows chi2 with 4 dof (2 when the new data share one
+  epoch: offset only); its tail probability is ``p_systematic``. It catches a coherent
+  offset or drift that is still small point by point.
+* ``p_value_inflated`` is the tail probability of chi2 / k^2 for 2N dof with
+  k = ``ERROR_INFLATION`` = 3: the test repeated with every sigma tripled.
+
+Rule, with ``ALPHA`` = 0.01 (a 1 % false-alarm rate per test):
+
+=============== ===========================================================================
+contradicted    ``p_value_inflated < ALPHA``: the new data reject the old orbit even with
+                their errors tripled (stated errors of double-star measurements are
+                commonly too small by up to a factor 2-3, common practice, no source; a
+                threefold margin puts the alarm beyond that)
+drifting        not contradicted, but ``p_value < ALPHA`` or ``p_systematic < ALPHA``: the
+                new data depart from the old orbit beyond their errors, or coherently,
+                but within three times their errors
+consistent      neither test rejects the old orbit at the 1 % level
+no new data     no measurement newer than the old orbit's last data
+=============== ===========================================================================
+
+For a correct orbit and honest errors the false-alarm rate (drifting or worse) is at most
+2 % (two tests at 1 %). All the numbers are kept with the verdict.
+
+Old against new
+---------------
+``compare_orbits`` gives each element's change in units of the combined sigma
+(old and new errors in quadrature, as far as known; Omega/omega after the common 180 deg
+shift that brings the nodes together, T moved by whole new periods to the passage nearest
+the old T), and the largest separation between the two ephemerides over the decade that
+follows the last measurement, in arcsec and in units of a typical measurement's
+positional sigma.
+"""
+from __future__ import annotations
+
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+
+from .elements import ELEMENT_KEYS, CampbellElements
+from .ephemeris import ephemeris
+from .fitting import FLIP_MIN_GAIN
+from .model import wrap_degrees
+
+__all__ = ["ALPHA", "ERROR_INFLATION", "VERDICTS", "RevisionCheck", "old_orbit_residuals",
+           "check_revision", "typical_sigma_arcsec", "compare_orbits"]
+
+#: Size of each test (false-alarm probability).
+ALPHA = 0.01
+#: Factor on the sigmas beyond which a departure is a contradiction, not a drift.
+ERROR_INFLATION = 3.0
+#: Verdicts, most urgent first.
+VERDICTS = ("contradicted", "drifting", "consistent", "no new data")
+
+
+@dataclass
+class RevisionCheck:
+    """The verdict on an old orbit and the numbers behind it.
+
+    Attributes
+    ----------
+    verdict : str
+        One of ``VERDICTS``.
+    reason : str
+        One sentence with the deciding numbers.
+    last_epoch_yr : float or None
+        Epoch of the old orbit's last data (Julian year); None: all data decide.
+    n_all, n_new, n_flipped : int
+        Voting measurements, those newer than ``last_epoch_yr``, and those scored flipped.
+    chi2_all, dof_all : float, int
+        chi2 of all voting measurements about the old orbit, and 2 n_all.
+    chi2_new, dof_new, reduced_chi2_new : float, int, float
+        The same for the new measurements; reduced = chi2 / dof.
+    p_value, p_value_inflated : float
+        chi2 tail probabilities of the new data, as stated and with sigmas tripled.
+    mean_z_theta, mean_z_rho : float
+        Mean normalised residuals of the new data.
+    trend_z_theta_per_yr, trend_z_rho_per_yr : float
+        Their slopes against time [1/yr] (0 when the new data share one epoch).
+    chi2_systematic, dof_systematic, p_systematic : float, int, float
+        chi2 explained by offset and trend, its dof, and its tail probability.
+    max_abs_z : float
+        Largest |z| of the new data.
+    residuals : list of dict
+        O-C of every measurement: line, epoch_yr, d_theta_deg, d_rho_arcsec, z_theta,
+        z_rho, new, flipped, status ('used' or 'excluded').
+    """
+
+    verdict: str
+    reason: str
+    last_epoch_yr: float | None
+    n_all: int
+    n_new: int
+    n_flipped: int
+    chi2_all: float
+    dof_all: int
+    chi2_new: float
+    dof_new: int
+    reduced_chi2_new: float
+    p_value: float
+    p_value_inflated: float
+    mean_z_theta: float
+    mean_z_rho: float
+    trend_z_theta_per_yr: float
+    trend_z_rho_per_yr: float
+    chi2_systematic: float
+    dof_systematic: int
+    p_systematic: float
+    max_abs_z: float
+    residuals: list = field(default_factory=list)
+
+    def to_dict(self):
+        """Plain JSON-ready mapping."""
+        return asdict(self)
+
+
+def old_orbit_residuals(elements, data, flips=True):
+    """O-C of every measurement of ``data`` against ``elements``.
+
+    Parameters
+    ----------
+    elements : CampbellElements
+        The old orbit.
+    data : MeasurementSet
+    flips : bool
+        Score points whose theta + 180 deg fits decisively better as flipped.
+
+    Returns
+    -------
+    dict of ndarray
+        ``d_theta_deg``, ``d_rho_arcsec``, ``z_theta``, ``z_rho``, ``flipped`` (bool).
+    """
+    eph = ephemeris(elements, data.epoch_yr)
+    root_w = np.sqrt(data.weight)
+    sigma_theta, sigma_rho = data.sigma_theta_deg / root_w, data.sigma_rho_arcsec / root_w
+    d_rho = data.rho_arcsec - eph.rho_arcsec
+    d_theta = wrap_degrees(data.theta_deg - eph.theta_deg)
+    d_theta_flip = wrap_degrees(data.theta_deg + 180.0 - eph.theta_deg)
+    gain = (d_theta**2 - d_theta_flip**2) / sigma_theta**2
+    flipped = (gain > FLIP_MIN_GAIN) if flips else np.zeros(len(data), bool)
+    d_theta = np.where(flipped, d_theta_flip, d_theta)
+    return {"d_theta_deg": d_theta, "d_rho_arcsec": d_rho, "z_theta": d_theta / sigma_theta,
+            "z_rho": d_rho / sigma_rho, "flipped": flipped}
+
+
+def _offset_and_trend(z, t):
+    """Mean, slope [1/yr], explained chi2 and its dof of unit-variance residuals z(t)."""
+    mean = float(z.mean())
+    s_tt = float(np.sum((t - t.mean()) ** 2))
+    if z.size < 2 or s_tt <= 0:
+        return mean, 0.0, z.size * mean**2, 1
+    slope = float(np.sum((t - t.mean()) * z) / s_tt)
+    return mean, slope, z.size * mean**2 + slope**2 * s_tt, 2
+
+
+def check_revision(elements, data, last_epoch_yr=None, flips=True):
+    """Verdict on an old orbit from the measurements (see the module notes for the rule).
+
+    Parameters
+    ----------
+    elements : CampbellElements
+        The old orbit, T as a Julian year.
+    data : MeasurementSet
+    last_epoch_yr : float, optional
+        Epoch of the old orbit's last data [Julian year]; later measurements decide.
+        None: all measurements decide.
+    flips : bool
+        Allow quadrant flips (see ``old_orbit_residuals``).
+
+    Returns
+    -------
+    RevisionCheck
+    """
+    from scipy.stats import chi2 as chi2_dist
+
+    oc = old_orbit_residuals(elements, data, flips)
+    votes = data.usable
+    new = votes & (data.epoch_yr > last_epoch_yr if last_epoch_yr is not None else True)
+    z2 = oc["z_theta"] ** 2 + oc["z_rho"] ** 2
+    n_new = int(new.sum())
+    chi2_new = float(z2[new].sum())
+    t = data.epoch_yr[new]
+    m_t, b_t, s_t, k_t = _offset_and_trend(oc["z_theta"][new], t) if n_new else (0, 0, 0, 0)
+    m_r, b_r, s_r, k_r = _offset_and_trend(oc["z_rho"][new], t) if n_new else (0, 0, 0, 0)
+    dof_sys = k_t + k_r
+    numbers = dict(
+        last_epoch_yr=last_epoch_yr, n_all=int(votes.sum()), n_new=n_new,
+        n_flipped=int((oc["flipped"] & votes).sum()), chi2_all=float(z2[votes].sum()),
+        dof_all=2 * int(votes.sum()), chi2_new=chi2_new, dof_new=2 * n_new,
+        reduced_chi2_new=chi2_new / (2 * n_new) if n_new else float("nan"),
+        p_value=float(chi2_dist.sf(chi2_new, 2 * n_new)) if n_new else float("nan"),
+        p_value_inflated=(float(chi2_dist.sf(chi2_new / ERROR_INFLATION**2, 2 * n_new))
+                          if n_new else float("nan")),
+        mean_z_theta=float(m_t), mean_z_rho=float(m_r), trend_z_theta_per_yr=float(b_t),
+        trend_z_rho_per_yr=float(b_r), chi2_systematic=float(s_t + s_r),
+        dof_systematic=dof_sys,
+        p_systematic=float(chi2_dist.sf(s_t + s_r, dof_sys)) if n_new else float("nan"),
+        max_abs_z=float(np.sqrt(np.max(np.maximum(oc["z_theta"][new] ** 2,
+                                                  oc["z_rho"][new] ** 2)))) if n_new else 0.0)
+    verdict, reason = _decide(numbers)
+    rows = [{"line": int(data.line[k]), "epoch_yr": float(data.epoch_yr[k]),
+             "d_theta_deg": float(oc["d_theta_deg"][k]),
+             "d_rho_arcsec": float(oc["d_rho_arcsec"][k]), "z_theta": float(oc["z_theta"][k]),
+             "z_rho": float(oc["z_rho"][k]), "new": bool(new[k]),
+             "flipped": bool(oc["flipped"][k]), "status": "used" if votes[k] else "excluded"}
+            for k in range(len(data))]
+    return RevisionCheck(verdict=verdict, reason=reason, residuals=rows, **numbers)
+
+
+def _decide(n):
+    """Apply the rule of the module notes; returns (verdict, reason)."""
+    if n["n_new"] == 0:
+        if n["last_epoch_yr"] is None:
+            return "no new data", "the log has no usable measurement"
+        return "no new data", ("no usable measurement is newer than the old orbit's last data "
+                               f"({n['last_epoch_yr']:.3f})")
+    which = ("all" if n["last_epoch_yr"] is None
+             else f"newer than {n['last_epoch_yr']:.3f}")
+    numbers = (f"{n['n_new']} points {which}: chi2 = {n['chi2_new']:.1f} for {n['dof_new']} "
+               f"dof (p = {n['p_value']:.2g}; sigmas x{ERROR_INFLATION:g}: "
+               f"p = {n['p_value_inflated']:.2g}); offset and trend chi2 = "
+               f"{n['chi2_systematic']:.1f} for {n['dof_systematic']} dof "
+               f"(p = {n['p_systematic']:.2g})")
+    if n["p_value_inflated"] < ALPHA:
+        return "contradicted", (f"the new data reject the old orbit even with sigmas "
+                                f"x{ERROR_INFLATION:g} at the {ALPHA:g} level; {numbers}")
+    if n["p_value"] < ALPHA or n["p_systematic"] < ALPHA:
+        return "drifting", (f"the new data depart from the old orbit beyond their sigmas but "
+                            f"within x{ERROR_INFLATION:g} of them; {numbers}")
+    return "consistent", f"no test rejects the old orbit at the {ALPHA:g} level; {numbers}"
+
+
+def typical_sigma_arcsec(data, rows=None):
+    """Median positional sigma per axis [arcsec] of the measurements ``rows`` (default all).
+
+    Per measurement sqrt((sigma_rho^2 + (rho sigma_theta)^2) / 2), sigma_theta in radians,
+    weights applied.
+    """
+    rows = np.ones(len(data), bool) if rows is None else rows
+    root_w = np.sqrt(data.weight[rows])
+    s_rho = data.sigma_rho_arcsec[rows] / root_w
+    s_tan = data.rho_arcsec[rows] * np.radians(data.sigma_theta_deg[rows]) / root_w
+    return float(np.median(np.sqrt(0.5 * (s_rho**2 + s_tan**2))))
+
+
+def _aligned(old, new):
+    """New elements with the node shift that brings them closest to the old ones."""
+    old, new = old.normalised(), new.normalised()
+    if abs(wrap_degrees(new.node_deg - old.node_deg)) > 90.0:
+        new = CampbellElements(new.period_yr, new.periastron_yr, new.e, new.a_arcsec, new.i_deg,
+                               new.node_deg + 180.0, new.omega_deg + 180.0)
+    turns = np.round((old.periastron_yr - new.periastron_yr) / new.period_yr)
+    return old, new, float(new.periastron_yr + turns * new.period_yr)
+
+
+def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors=None,
+                   years=10.0, n_epochs=401):
+    """Element changes in sigma and the ephemeris difference over the next decade.
+
+    Parameters
+    ----------
+    old, new : CampbellElements
+        Old and new orbit (T as Julian years).
+    start_yr : float
+        Start of the prediction window [Julian year], e.g. the last measurement.
+    sigma_arcsec : float
+        Typical positional sigma of a measurement [arcsec] (``typical_sigma_arcsec``).
+    old_errors, new_errors : dict, optional
+        1-sigma errors by element key, internal units; missing keys count as 0.
+    years : float
+        Length of the prediction window [yr].
+    n_epochs : int
+        Epochs sampled in the window.
+
+    Returns
+    -------
+    dict
+        ``elements``: {key: {old, new, difference, sigma, n_sigma}} (n_sigma None when no
+        error is known); ``window_yr``; ``max_separation_arcsec``; ``epoch_of_max_yr``;
+        ``max_separation_sigma``; ``typical_sigma_arcsec``.
+    """
+    old_errors, new_errors = old_errors or {}, new_errors or {}
+    old_n, new_n, new_t = _aligned(old, new)
+    old_v, new_v = old_n.to_keys(), new_n.to_keys()
+    new_v["T"] = new_t
+    elements = {}
+    for key in ELEMENT_KEYS:
+        diff = new_v[key] - old_v[key]
+        if key in ("Omega", "omega"):
+            diff = float(wrap_degrees(diff))
+        sigma = float(np.hypot(old_errors.get(key, 0.0), new_errors.get(key, 0.0)))
+        elements[key] = {"old": old_v[key], "new": new_v[key], "difference": float(diff),
+                         "sigma": sigma, "n_sigma": float(diff / sigma) if sigma > 0 else None}
+    epochs = np.linspace(start_yr, start_yr + years, n_epochs)
+    a, b = ephemeris(old, epochs), ephemeris(new, epochs)
+    separation = np.hypot(a.x_arcsec - b.x_arcsec, a.y_arcsec - b.y_arcsec)
+    k = int(np.argmax(separation))
+    return {"elements": elements, "window_yr": [float(start_yr), float(start_yr + years)],
+            "max_separation_arcsec": float(separation[k]), "epoch_of_max_yr": float(epochs[k]),
+            "typical_sigma_arcsec": sigma_arcsec,
+            "max_separation_sigma": float(separation[k] / sigma_arcsec)}
