@@ -414,12 +414,14 @@ def _is_number(text):
     return True
 
 
-def _shape_problem(cells, names, index, required, text, fmt, header_line):
-    """Cells padded to the header, or a RowProblem reason when the shape is wrong."""
+def _shape_problem(cells, names, index, required, text, used, header_line):
+    """Cells padded to the header, or a RowProblem reason when the shape is wrong.
+
+    ``used`` holds the delimiter characters of the file (',' or ' \t').
+    """
     n = len(names)
     if len(cells) == n:
         return cells, None
-    used = {"csv": ",", "whitespace": " \t"}.get(fmt, ",")
     hint = _other_delimiter(text, used)
     hint = f" The line seems to use {hint}; use the header's delimiter throughout." if hint else ""
     required_idx = {index[r] for r in required}
@@ -468,8 +470,9 @@ def read_table(path, required, optional=(), columns=None):
         raise LogFormatError(path, f"no data rows after the header (line {header_line})",
                              line=header_line)
     rows, problems = [], []
+    used = "," if split is _split_comma else " \t"
     for line, text in body[1:]:
-        cells, reason = _shape_problem(split(text), names, index, required, text, fmt,
+        cells, reason = _shape_problem(split(text), names, index, required, text, used,
                                        header_line)
         if reason:
             problems.append(RowProblem(line, None, reason))
