@@ -71,7 +71,7 @@ def _advice_lines(advice, sigma_now):
     return lines
 
 
-def _text(plan, source, scale):
+def _text(plan, source, scale, top):
     s = plan.sigma_now
     lines = [f"# next-measurement plan for {source}; epochs in the {scale} scale of T",
              f"# new measurement: {plan.sigma_arcsec * 1e3:g} mas in x and y; uncertainty "
@@ -85,6 +85,9 @@ def _text(plan, source, scale):
                      f"{plan.dawes_limit_arcsec:.3f}\"")
     if plan.recommended:
         lines += ["", "Recommended epochs (best first):"] + _advice_lines(plan.recommended, s)
+    if 0 < len(plan.recommended) < top:
+        lines.append(f"(the score has only {len(plan.recommended)} separated local maxima "
+                     "in the window)")
     if plan.unresolvable:
         lines += ["", f"Better epochs NOT recommended for a {plan.aperture_mm:g} mm aperture "
                   f"(rho below {plan.dawes_limit_arcsec:.3f}\"):"]
@@ -116,5 +119,5 @@ def run(args):
         for w in plan.warnings:
             print(f"orbweigh plan: warning: {w}", file=sys.stderr)
     else:
-        print(_text(plan, args.result, scale))
+        print(_text(plan, args.result, scale, args.top))
     return 0
