@@ -320,6 +320,10 @@ def plan_observations(doc, epochs, sigma_arcsec=0.005, aperture_mm=None, top=3,
         raise InputError(f"--sigma-mas must be positive, got {sigma_arcsec * 1e3}")
     if top < 1:
         raise InputError(f"--top must be at least 1, got {top}")
+    if n_draws < 2:
+        raise InputError(f"--draws must be at least 2, got {n_draws}")
+    if not min_separation_yr >= 0:
+        raise InputError(f"--min-separation must not be negative, got {min_separation_yr}")
     covariance_from_document(doc)   # a clear message for a broken block, before any draw
     draws = element_draws(doc, n_draws, seed)
     if draws is None:
