@@ -750,7 +750,7 @@ def suspicious_rows(ms):
 
     * ``quadrant_flip``: theta differs by at least ``FLIP_MIN_DEG`` from most of its
       neighbours: the ``FLIP_NEIGHBOURS`` nearest rows in time on each side, within
-      ``FLIP_WINDOW_YR``, whose rho agrees within ``FLIP_RHO_TOL`` (relative). With a
+      ``FLIP_WINDOW_YR``, whose rho agrees within ``FLIP_RHO_TOL`` (relative to the smaller). With a
       single neighbour both rows are named, since either may be the flipped one.
     * ``small_sigma``: an effective sigma below ``TIGHT_FRACTION`` of the technique's
       typical value (``TECHNIQUE_DEFAULTS``; for isotropic techniques sigma_theta is
@@ -763,31 +763,17 @@ def suspicious_rows(ms):
     list of Suspicion, ordered by line
     """
     use = np.flatnonzero(ms.usable)
+    use = use[np.argsort(ms.epoch_yr[use], kind="stable")]  # time order: neighbours adjacent
     t, th, rho = ms.epoch_yr[use], ms.theta_deg[use], ms.rho_arcsec[use]
     s_th, s_rho = ms.sigma_theta_eff_deg[use], ms.sigma_rho_eff_arcsec[use]
     lines = ms.line[use]
-    out = []
-    dt = np.abs(t[:, None] - t[None, :])
-    dth = np.abs(_wrap180(th[:, None] - th[None, :]))
-    rank = np.empty(use.size, int)
-    rank[np.argsort(t, kind="stable")] = np.arange(use.size)
-    adjacent = np.abs(rank[:, None] - rank[None, :])
-    near = ((adjacent >= 1) & (adjacent <= FLIP_NEIGHBOURS) & (dt <= FLIP_WINDOW_YR)
-            & (np.abs(rho[:, None] / rho[None, :] - 1) <= FLIP_RHO_TOL))
-    flipped = near & (dth >= FLIP_MIN_DEG)
-    for k in np.flatnonzero(flipped.sum(1) * 2 > near.sum(1)):
-        others = ", ".join(str(v) for v in lines[flipped[k]])
-        out.append(Suspicion(int(lines[k]), "quadrant_flip",
-                             f"theta {th[k]:.1f} deg is about 180 deg from line(s) {others} at "
-                             f"similar rho: possible quadrant flip (theta + 180 = "
-                             f"{(th[k] + 180) % 360:.1f})"))
+    out = _flips(t, th, rho, lines)
     for k in range(use.size):
         message = _tight_sigma(ms.technique[use[k]], rho[k], s_th[k], s_rho[k])
         if message and not ms.sigma_defaulted[use[k]]:
             out.append(Suspicion(int(lines[k]), "small_sigma", message))
-    same = np.triu(dt <= SAME_EPOCH_YR, 1)
-    for i, j in zip(*np.nonzero(same)):
-        d_th, d_rho = dth[i, j], abs(rho[i] - rho[j])
+    for i, j in _pairs_within(t, SAME_EPOCH_YR):
+        d_th, d_rho = abs(_wrap180(th[i] - th[j])), abs(rho[i] - rho[j])
         if (d_th > DISCORDANT_SIGMAS * np.hypot(s_th[i], s_th[j])
                 or d_rho > DISCORDANT_SIGMAS * np.hypot(s_rho[i], s_rho[j])):
             out.append(Suspicion(int(lines[j]), "discordant_same_epoch",
@@ -795,6 +781,36 @@ def suspicious_rows(ms):
                                  f"in theta and {d_rho:.4f} arcsec in rho (more than "
                                  f"{DISCORDANT_SIGMAS:g} combined sigmas)"))
     return sorted(out, key=lambda s: s.line)
+
+
+def _pairs_within(t, window):
+    """Index pairs (i < j) of time-sorted ``t`` with t[j] - t[i] <= window."""
+    pairs, d = [], 1
+    while d < t.size and (close := np.flatnonzero(t[d:] - t[:-d] <= window)).size:
+        pairs += [(i, i + d) for i in close]
+        d += 1
+    return sorted(pairs)
+
+
+def _flips(t, th, rho, lines):
+    """Quadrant-flip suspicions among time-sorted rows (rule in ``suspicious_rows``)."""
+    n = t.size
+    n_near, partners = np.zeros(n, int), [[] for _ in range(n)]
+    for d in range(1, FLIP_NEIGHBOURS + 1):
+        i = np.arange(max(n - d, 0))
+        j = i + d
+        near = ((t[j] - t[i] <= FLIP_WINDOW_YR)
+                & (np.abs(rho[j] - rho[i]) <= FLIP_RHO_TOL * np.minimum(rho[i], rho[j])))
+        np.add.at(n_near, i[near], 1)
+        np.add.at(n_near, j[near], 1)
+        for a in i[near & (np.abs(_wrap180(th[j] - th[i])) >= FLIP_MIN_DEG)]:
+            partners[a].append(a + d)
+            partners[a + d].append(a)
+    return [Suspicion(int(lines[k]), "quadrant_flip",
+                      f"theta {th[k]:.1f} deg is about 180 deg from line(s) "
+                      f"{', '.join(str(lines[p]) for p in sorted(partners[k]))} at similar rho: "
+                      f"possible quadrant flip (theta + 180 = {(th[k] + 180) % 360:.1f})")
+            for k in range(n) if 2 * len(partners[k]) > n_near[k]]
 
 
 def _tight_sigma(technique, rho, sig_theta, sig_rho):
