@@ -1,0 +1,100 @@
+"""Write a whole report of a result document: figures, HTML, LaTeX and ECSV tables."""
+from __future__ import annotations
+
+import io
+from pathlib import Path
+
+from ..errors import InputError
+from . import figures as fg
+from . import style
+from .html import render_html
+from .posterior import mass_draws, posterior_draws
+from .tables import elements_latex, residuals_table
+
+__all__ = ["FIGURE_FORMATS", "write_report"]
+
+FIGURE_FORMATS = ("png", "svg", "pdf")
+
+_CAPTIONS = {
+    "orbit": "Apparent orbit on the sky (North up, East left), primary at the origin. Lines "
+             "join each measurement to its predicted position; thin lines are orbits drawn "
+             "from the posterior (or the covariance).",
+    "residuals": "Residuals (observed minus computed) in position angle and separation, with "
+                 "the measurement uncertainties as used in the fit.",
+    "corner_elements": "Posterior of the seven elements (contours at 1 and 2 sigma; "
+                       "dashed: 16th, 50th, 84th percentiles; red: best fit).",
+    "corner_masses": "Posterior of the total mass with the parallax, semi-major axis and "
+                     "period it follows from (parallax drawn from its measurement).",
+    "mass_histogram": "Total mass of the posterior draws: median, 68 % and 95 % intervals "
+                      "of the plotted draws.",
+}
+
+
+def _figures(doc, seed):
+    """{name: Figure} of every figure the document supports."""
+    figs = {"orbit": fg.plot_orbit(doc, seed=seed).figure}
+    if fg.measurement_rows(doc)["line"].size:
+        figs["residuals"] = fg.plot_residuals(doc)[0].figure
+    draws = posterior_draws(doc, seed)
+    if draws is not None:
+        figs["corner_elements"] = fg.plot_corner_elements(doc, draws)
+        # A dynamical parallax is not a measurement to draw from: no mass figures then.
+        dynamical = (doc.get("parallax") or {}).get("kind") == "dynamical"
+        masses = None if dynamical else mass_draws(doc, draws, seed)
+        if masses is not None and len(masses["mass_msun"]) > 1:
+            figs["corner_masses"] = fg.plot_corner_masses(masses)
+            figs["mass_histogram"] = fg.plot_mass_histogram(masses).figure
+    return figs
+
+
+def _png_bytes(fig, written, name):
+    if f"{name}.png" in written:
+        return written[f"{name}.png"].read_bytes()
+    buffer = io.BytesIO()
+    with style.figure_style():
+        fig.savefig(buffer, format="png")
+    return buffer.getvalue()
+
+
+def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None):
+    """Write the report of a result document into ``out_dir``.
+
+    Parameters
+    ----------
+    doc : dict
+        Result document (``result.load_result``).
+    out_dir : str or Path
+        Directory, created when missing.
+    formats : sequence of str
+        Figure file formats, any of 'png', 'svg', 'pdf' (the HTML embeds PNG regardless).
+    seed : int, optional
+        Seed of the figures' random draws (posterior band, subsampling, parallax draws);
+        default the document's seed. It is printed in the report.
+
+    Returns
+    -------
+    dict
+        {file name: Path} of every file written: ``report.html``, ``elements.tex``,
+        ``residuals.ecsv`` and ``<figure>.<format>`` for each figure.
+    """
+    from .. import __version__
+    bad = [f for f in formats if f not in FIGURE_FORMATS]
+    if bad:
+        raise InputError(f"unknown figure format(s) {', '.join(map(repr, bad))}; "
+                         f"choose from {', '.join(FIGURE_FORMATS)}")
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    seed = int(doc.get("seed", 0) if seed is None else seed)
+    written, embedded = {}, {}
+    for name, fig in _figures(doc, seed).items():
+        files = style.save_figure(fig, out / name, formats)
+        written.update(files)
+        embedded[name] = (_CAPTIONS[name], _png_bytes(fig, files, name))
+    tex = out / "elements.tex"
+    tex.write_text(elements_latex(doc))
+    ecsv = out / "residuals.ecsv"
+    residuals_table(doc).write(ecsv, format="ascii.ecsv", overwrite=True)
+    html = out / "report.html"
+    html.write_text(render_html(doc, embedded, seed, __version__), encoding="utf-8")
+    written.update({tex.name: tex, ecsv.name: ecsv, html.name: html})
+    return written
