@@ -13,6 +13,17 @@ __all__ = ["add_arguments", "run"]
 def add_arguments(parser):
     add_log_arguments(parser)
     add_mass_arguments(parser)
+    parser.add_argument("--rv", metavar="RVLOG",
+                        help="radial-velocity log (epoch, component, rv, sigma_rv [, flag, "
+                             "note]): combined visual-spectroscopic solution, node fixed, "
+                             "orbital parallax and component masses")
+    parser.add_argument("--rv-columns", metavar="MAP",
+                        help="your header names for the velocity log's columns, e.g. "
+                             "'rv=vrad,sigma_rv=err' (canonical: epoch, component, rv, "
+                             "sigma_rv, flag, note)")
+    parser.add_argument("--combine-parallax", action="store_true",
+                        help="with --rv and --parallax: masses from the weighted mean of the "
+                             "orbital and trigonometric parallaxes (default: orbital only)")
     parser.add_argument("--period-range", nargs=2, type=float, metavar=("PMIN", "PMAX"),
                         help="search periods between PMIN and PMAX years (default: from the "
                              "sampling, up to 20 times the time span)")
@@ -35,21 +46,55 @@ def run(args):
     from ..summary import format_result
 
     check_mass_arguments(args)
+    velocities = _read_velocities(args)  # before the fit: a bad log fails fast
     data = load_log(args)
     options = FitOptions(period_range=tuple(args.period_range) if args.period_range else None,
                          loss=args.loss, flips=not args.no_flips,
                          outlier_sigma=args.outlier_sigma, seed=args.seed)
-    doc = fit_orbit(data, options).to_document()
-    if args.parallax is not None or args.magnitudes is not None:
+    solution = fit_orbit(data, options)
+    doc = solution.to_document()
+    if args.rv:
+        _add_combined(doc, solution, velocities, args)
+    elif args.parallax is not None or args.magnitudes is not None:
         _add_masses(doc, args)
     text = format_result(doc)
-    if "mass" in doc:
+    if "node" in doc:
+        from ..combined import format_combined
+        text += "\n" + format_combined(doc)
+    elif "mass" in doc:
         from ..masses import format_mass_blocks
         text += "\n" + format_mass_blocks({"mass": doc["mass"], "parallax": doc["parallax"],
                                            "warnings": doc["mass"].get("warnings", [])})
     print(text, file=sys.stderr if args.json == "-" else sys.stdout)
     _write_outputs(doc, args)
     return 0
+
+
+def _read_velocities(args):
+    """The velocity log of --rv (None without it), after checking the options around it."""
+    from ..errors import InputError
+    from ..measurements import parse_column_mapping
+    from ..spectroscopic import read_velocities
+
+    if not args.rv and (args.rv_columns or args.combine_parallax):
+        raise InputError("--rv-columns and --combine-parallax describe a velocity log; give it "
+                         "with --rv RVLOG")
+    if args.rv and (args.mass_ratio or args.rv_amplitudes or args.magnitudes):
+        raise InputError("with --rv the velocity log gives K1, K2 (hence q) and the orbital "
+                         "parallax; drop --mass-ratio, --rv-amplitudes and --magnitudes")
+    if not args.rv:
+        return None
+    columns = parse_column_mapping(args.rv_columns) if args.rv_columns else None
+    return read_velocities(args.rv, columns=columns, strict=args.strict)
+
+
+def _add_combined(doc, solution, velocities, args):
+    from ..combined import add_to_document, combined_blocks, fit_combined
+
+    combined = fit_combined(solution, velocities)
+    blocks = combined_blocks(combined, parallax=args.parallax, combine=args.combine_parallax,
+                             seed=args.seed)
+    add_to_document(doc, combined, blocks)
 
 
 def _add_masses(doc, args):

@@ -1,0 +1,626 @@
+"""Combined visual-spectroscopic orbit: relative positions and radial velocities fitted together.
+
+The relative astrometry fixes P, T, e, a [arcsec], i and (Omega, omega) up to a common
+180 deg shift; the velocities add gamma, K1 (and K2 for a double-lined pair) and, through
+their sign, pick the node, so Omega runs over [0, 360). The velocity convention is the
+one of ``spectroscopic`` (ascending node: the secondary recedes there; omega1 = omega +
+180 deg).
+
+Fit (``fit_combined``): Levenberg-Marquardt (lmfit) on the concatenation of
+
+* the astrometric normalised tangential and radial residuals of the visual fit's final
+  point set (quadrant-flipped rows corrected; outliers and excluded rows left out), and
+* (V_obs - V_model) / sigma_rv of every usable velocity,
+
+so the relative weight of the two kinds of data is set by their own sigmas. It starts
+from the visual solution with gamma, K1, K2 from a linear solve for the fixed orbit, once
+for each node choice (Omega, omega) and (Omega + 180, omega + 180); amplitudes are kept
+positive, so the wrong choice cannot mimic the right one by a sign change of K. The better
+one is kept and the chi2 difference reported. Uncertainties come from the covariance,
+scaled by the reduced chi2 when it exceeds 1.
+
+Distance and masses (``combined_blocks``), per draw of the joint covariance (multivariate
+normal, seeded): the linear semi-major axis a_au = (K1 + K2) P sqrt(1 - e^2) / (2 pi sin i),
+the orbital parallax a["] / a_au and the component masses from a_au, P and q = K1/K2.
+With one component's velocities only (SB1), the distance must come from a trigonometric
+parallax: M1 + M2 from the third law with a["] / parallax, and the measured component's
+share from its own orbit, a1 = a q / (1 + q), i.e. M2 = (M1 + M2) a1 / a with
+a1 = K1 P sqrt(1 - e^2) / (2 pi sin i).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .elements import ELEMENT_KEYS, CampbellElements, thiele_innes_from_campbell
+from .errors import InputError
+from .masses import format_mass_blocks, summarise, total_mass_msun
+from .model import normalised_residuals, predict_theta_rho, wrap_degrees
+from .reductions import from_julian_year, interval_in_scale
+from .spectroscopic import (component_masses_from_orbit, mass_function_msun,
+                            radial_velocities, semi_major_axis_au_from_rv)
+
+__all__ = ["PARAMETER_KEYS", "PARAMETER_UNITS", "NODE_DECISIVE_DELTA_CHI2", "JointData",
+           "CombinedSolution", "fit_combined", "parameter_draws", "combined_blocks",
+           "add_to_document", "format_combined"]
+
+#: Order of the joint parameters (SB1: the amplitude of the missing component is absent).
+PARAMETER_KEYS = ("P", "T", "e", "a", "i", "Omega", "omega", "gamma", "K1", "K2")
+PARAMETER_UNITS = {"P": "yr", "T": "yr", "e": "", "a": "arcsec", "i": "deg", "Omega": "deg",
+                   "omega": "deg", "gamma": "km/s", "K1": "km/s", "K2": "km/s"}
+#: Below this chi2 difference (3 sigma-equivalent) the node choice is not decisive.
+NODE_DECISIVE_DELTA_CHI2 = 9.0
+_E_MAX = 0.995
+_RV_OUTLIER_SIGMA = 4.0
+_DAYS_PER_YEAR = 365.25
+
+
+@dataclass
+class JointData:
+    """The points of a joint fit as plain arrays.
+
+    Attributes
+    ----------
+    t_ast, theta_deg, rho_arcsec, sigma_theta_deg, sigma_rho_arcsec : ndarray
+        Astrometry: epochs [Julian yr], position angles [deg, flips corrected],
+        separations [arcsec] and effective sigmas (weights applied).
+    t_rv, rv_kms, sigma_rv_kms : ndarray
+        Usable velocities: epochs [Julian yr], velocities and sigmas [km/s].
+    component : ndarray of int
+        1 or 2 per velocity.
+    rv_rows : ndarray of int
+        Index of each velocity in the ``VelocitySet``.
+    """
+
+    t_ast: np.ndarray
+    theta_deg: np.ndarray
+    rho_arcsec: np.ndarray
+    sigma_theta_deg: np.ndarray
+    sigma_rho_arcsec: np.ndarray
+    t_rv: np.ndarray
+    rv_kms: np.ndarray
+    sigma_rv_kms: np.ndarray
+    component: np.ndarray
+    rv_rows: np.ndarray
+
+    @classmethod
+    def from_solution(cls, solution, velocities):
+        """The visual fit's final point set and the usable velocities."""
+        d = solution.data
+        keep = np.isin(solution.status, ("used", "flipped"))
+        theta = np.mod(d.theta_deg + np.where(solution.status == "flipped", 180.0, 0.0), 360.0)
+        w = np.sqrt(d.weight)
+        rows = np.flatnonzero(velocities.usable)
+        return cls(d.epoch_yr[keep], theta[keep], d.rho_arcsec[keep],
+                   (d.sigma_theta_deg / w)[keep], (d.sigma_rho_arcsec / w)[keep],
+                   velocities.epoch_yr[rows], velocities.rv_kms[rows],
+                   velocities.sigma_rv_kms[rows], velocities.component[rows], rows)
+
+    def amplitude_keys(self):
+        """'K1' and/or 'K2': the components with velocities."""
+        return tuple(f"K{c}" for c in (1, 2) if np.any(self.component == c))
+
+
+def _orbit_params(v):
+    """(P, T, e, A, B, F, G) of the relative orbit from a dict of joint parameters."""
+    A, B, F, G = thiele_innes_from_campbell(
+        v["a"], *np.radians([v["i"], v["Omega"], v["omega"]]))
+    return (v["P"], v["T"], v["e"], A, B, F, G)
+
+
+def rv_model(v, t, component):
+    """Model velocities [km/s] of the given components at epochs t [Julian yr]."""
+    v1, v2 = radial_velocities(t, v["P"], v["T"], v["e"], v["omega"], v.get("K1", 0.0),
+                               v.get("K2", 0.0), v["gamma"])
+    return np.where(component == 1, v1, v2)
+
+
+def joint_residuals(v, data):
+    """Normalised residuals: astrometric tangential, radial, then velocities."""
+    r_theta, r_rho, _, _ = normalised_residuals(
+        _orbit_params(v), data.t_ast, data.theta_deg, data.rho_arcsec,
+        data.sigma_theta_deg, data.sigma_rho_arcsec)
+    r_rv = (data.rv_kms - rv_model(v, data.t_rv, data.component)) / data.sigma_rv_kms
+    return np.concatenate([r_theta, r_rho, r_rv])
+
+
+@dataclass
+class CombinedSolution:
+    """Best joint orbit of positions and velocities.
+
+    Attributes
+    ----------
+    visual : OrbitSolution
+        The visual fit it started from (its final point set was fitted).
+    velocities : VelocitySet
+        The velocity log.
+    data : JointData
+        The fitted points.
+    keys : tuple of str
+        Fitted parameters, in ``PARAMETER_KEYS`` order.
+    values, errors : dict
+        Best values and 1-sigma errors in ``PARAMETER_UNITS`` (T a Julian year; Omega
+        in [0, 360), omega in [0, 360)).
+    covariance : ndarray or None
+        Covariance of ``keys`` (scaled by the reduced chi2 when > 1).
+    chi2, chi2_astrometric, chi2_rv : float
+        Total chi2 and its two parts.
+    dof, reduced_chi2, errors_scaled
+        Degrees of freedom (2 n_ast + n_rv - n_par), chi2/dof, whether errors were scaled.
+    other_node : dict
+        Best fit with the other node choice: {"values", "chi2"}.
+    node_delta_chi2 : float
+        chi2 of the other node choice minus the kept one's.
+    warnings, notes : list of str
+        Plain-language caveats.
+    """
+
+    visual: object
+    velocities: object
+    data: JointData
+    keys: tuple
+    values: dict
+    errors: dict
+    covariance: np.ndarray | None
+    chi2: float
+    chi2_astrometric: float
+    chi2_rv: float
+    dof: int
+    reduced_chi2: float
+    errors_scaled: bool
+    other_node: dict
+    node_delta_chi2: float
+    warnings: list = field(default_factory=list)
+    notes: list = field(default_factory=list)
+
+    def __repr__(self):
+        v = self.values
+        amps = ", ".join(f"{k}={v[k]:.3f}" for k in self.keys if k.startswith("K"))
+        return (f"<CombinedSolution Omega={v['Omega']:.2f} omega={v['omega']:.2f} "
+                f"gamma={v['gamma']:.3f} {amps} chi2/dof={self.chi2:.1f}/{self.dof} "
+                f"node delta chi2={self.node_delta_chi2:.1f}>")
+
+    @property
+    def elements(self):
+        """``CampbellElements`` of the joint orbit (Omega in [0, 360))."""
+        return CampbellElements(*(self.values[k] for k in ELEMENT_KEYS))
+
+    @property
+    def double_lined(self):
+        return "K1" in self.keys and "K2" in self.keys
+
+
+def _linear_amplitudes(v, data):
+    """gamma and the amplitudes for a fixed orbit, by weighted linear least squares.
+
+    V1 = gamma + K1 s(t), V2 = gamma - K2 s(t) with s = cos(nu + omega1) + e cos omega1.
+    """
+    amps = data.amplitude_keys()
+    shape = rv_model({**v, "gamma": 0.0, "K1": 1.0, "K2": -1.0}, data.t_rv, data.component)
+    columns = [np.ones_like(shape)] + [np.where(data.component == int(k[1]), shape, 0.0) * (
+        1.0 if k == "K1" else -1.0) for k in amps]
+    design = np.column_stack(columns) / data.sigma_rv_kms[:, None]
+    sol = np.linalg.lstsq(design, data.rv_kms / data.sigma_rv_kms, rcond=None)[0]
+    return float(sol[0]), dict(zip(amps, sol[1:]))
+
+
+def _start(elements, data, shift_node):
+    """Start values from the visual elements, one node choice, and the velocities."""
+    v = dict(zip(ELEMENT_KEYS, elements.as_tuple()))
+    if shift_node:
+        v["Omega"] += 180.0
+        v["omega"] += 180.0
+    gamma, amps = _linear_amplitudes(v, data)
+    v["gamma"] = gamma
+    for k, value in amps.items():
+        measured = data.rv_kms[data.component == int(k[1])]
+        # a wrong node turns the linear amplitude negative: start from half the range
+        v[k] = value if value > 0 else max(0.5 * np.ptp(measured), 0.1)
+    return v
+
+
+def _least_squares(v0, data, keys):
+    """Levenberg-Marquardt on the joint residuals; (values, chi2, unscaled covariance)."""
+    import lmfit
+
+    pars = lmfit.Parameters()
+    for k in keys:
+        bounds = {"P": (0.0, np.inf), "e": (0.0, _E_MAX), "a": (0.0, np.inf),
+                  "i": (0.0, 180.0), "K1": (0.0, np.inf), "K2": (0.0, np.inf)}
+        lo, hi = bounds.get(k, (-np.inf, np.inf))
+        value = v0[k] if k != "e" else min(max(v0[k], 1e-4), _E_MAX - 1e-3)
+        pars.add(k, value=value, min=lo, max=hi)
+
+    def resid(p):
+        return joint_residuals({k: p[k].value for k in keys}, data)
+
+    out = lmfit.minimize(resid, pars, method="leastsq", scale_covar=False)
+    values = {k: float(out.params[k].value) for k in keys}
+    chi2 = float(np.sum(resid(out.params) ** 2))
+    covar = getattr(out, "covar", None)
+    if covar is not None and list(out.var_names) != list(keys):
+        order = [list(out.var_names).index(k) for k in keys]
+        covar = covar[np.ix_(order, order)]
+    return values, chi2, covar
+
+
+def fit_combined(solution, velocities):
+    """Joint least-squares fit of a visual solution's points and a velocity log.
+
+    Parameters
+    ----------
+    solution : OrbitSolution
+        Result of ``fitting.fit_orbit`` (start values and the final astrometric points).
+    velocities : VelocitySet
+        Radial velocities (``spectroscopic.read_velocities``).
+
+    Returns
+    -------
+    CombinedSolution
+
+    Raises
+    ------
+    InputError
+        Fewer than three usable velocities (gamma and one amplitude need more).
+    """
+    data = JointData.from_solution(solution, velocities)
+    if data.t_rv.size < 3:
+        raise InputError(f"{velocities.source}: {data.t_rv.size} usable radial velocities; a "
+                         "combined solution needs at least 3 (gamma and an amplitude)")
+    keys = ELEMENT_KEYS + ("gamma",) + data.amplitude_keys()
+    fits = [_least_squares(_start(solution.elements, data, shift), data, keys)
+            for shift in (False, True)]
+    fits.sort(key=lambda f: f[1])
+    (values, chi2, covar), (other, other_chi2, _) = fits
+    values["Omega"], values["omega"] = np.mod(values["Omega"], 360.0), np.mod(values["omega"], 360.0)
+    other["Omega"], other["omega"] = np.mod(other["Omega"], 360.0), np.mod(other["omega"], 360.0)
+    dof = max(2 * data.t_ast.size + data.t_rv.size - len(keys), 1)
+    reduced = chi2 / dof
+    cov = None if covar is None else covar * max(reduced, 1.0)
+    errors = {k: (None if cov is None else float(np.sqrt(max(cov[j, j], 0.0))))
+              for j, k in enumerate(keys)}
+    n_ast = data.t_ast.size
+    r = joint_residuals(values, data)
+    sol = CombinedSolution(
+        visual=solution, velocities=velocities, data=data, keys=keys, values=values,
+        errors=errors, covariance=cov, chi2=chi2,
+        chi2_astrometric=float(np.sum(r[:2 * n_ast] ** 2)),
+        chi2_rv=float(np.sum(r[2 * n_ast:] ** 2)), dof=int(dof), reduced_chi2=float(reduced),
+        errors_scaled=bool(reduced > 1.0 and cov is not None),
+        other_node={"values": other, "chi2": other_chi2}, node_delta_chi2=other_chi2 - chi2)
+    sol.warnings.extend(_warnings(sol, r[2 * n_ast:]))
+    sol.notes.append("Radial velocities fix the node: Omega is the ascending node (where the "
+                     "secondary recedes) and runs over [0, 360) deg; omega is the secondary's, "
+                     "the primary's spectroscopic omega1 = omega + 180 deg.")
+    if sol.errors_scaled:
+        sol.notes.append(f"Uncertainties of the combined solution were scaled by "
+                         f"sqrt(reduced chi2) = {np.sqrt(reduced):.2f}.")
+    return sol
+
+
+def _warnings(sol, r_rv):
+    out = []
+    if sol.node_delta_chi2 < NODE_DECISIVE_DELTA_CHI2:
+        out.append(f"The node is not decided: the other choice (Omega = "
+                   f"{sol.other_node['values']['Omega']:.2f} deg) fits worse by only delta chi2 "
+                   f"= {sol.node_delta_chi2:.1f} (< {NODE_DECISIVE_DELTA_CHI2:g}); the "
+                   f"velocities do not constrain the orbit's phase well enough.")
+    if sol.covariance is None:
+        out.append("The covariance of the combined fit could not be estimated (degenerate "
+                   "solution): no uncertainties, orbital parallax or masses are given.")
+    n_ast, n_rv = 2 * sol.data.t_ast.size, sol.data.t_rv.size
+    per_ast, per_rv = sol.chi2_astrometric / n_ast, sol.chi2_rv / n_rv
+    if max(per_ast, per_rv) > 2.0 * max(min(per_ast, per_rv), 0.5):
+        out.append(f"The two kinds of data disagree on their own sigmas: chi2 per number "
+                   f"{per_ast:.2f} (astrometry) against {per_rv:.2f} (velocities); the relative "
+                   f"weight of the velocities rests on their quoted sigmas.")
+    far = np.flatnonzero(np.abs(r_rv) > _RV_OUTLIER_SIGMA)
+    if far.size:
+        lines = ", ".join(str(int(sol.velocities.line[sol.data.rv_rows[j]])) for j in far)
+        out.append(f"{far.size} radial velocit{'y lies' if far.size == 1 else 'ies lie'} beyond "
+                   f"{_RV_OUTLIER_SIGMA:g} sigma of the combined orbit (lines {lines}); "
+                   f"they were kept in the fit: flag them in the log if they are faulty.")
+    if not sol.double_lined:
+        out.append("Only one component's velocities: no orbital parallax; the component "
+                   "masses need a trigonometric parallax.")
+    return out
+
+
+# ----------------------------------------------------------------- distance and masses
+def parameter_draws(sol, n, seed):
+    """Draws of the joint parameters from the covariance, shape (n, len(keys)).
+
+    Multivariate normal around the best values with ``numpy.random.default_rng(seed)``;
+    e is folded into [0, 0.999), P, a and the amplitudes are taken positive.
+    """
+    rng = np.random.default_rng(seed)
+    best = np.array([sol.values[k] for k in sol.keys])
+    draws = rng.multivariate_normal(best, sol.covariance, size=n, method="eigh")
+    for j, k in enumerate(sol.keys):
+        if k in ("P", "a", "K1", "K2"):
+            draws[:, j] = np.abs(draws[:, j])
+        elif k == "e":
+            draws[:, j] = np.clip(np.abs(draws[:, j]), 0.0, 0.999)
+    return draws
+
+
+def _interval(samples, unit):
+    """Percentile summary plus a symmetric 1-sigma 'error' (half the 68 % interval)."""
+    s = summarise(samples, unit)
+    return {**s, "error": 0.5 * (s["high"] - s["low"])}
+
+
+def combined_blocks(sol, parallax=None, combine=False, n_draws=4000, seed=1):
+    """Orbital parallax, parallax and mass blocks of a combined solution.
+
+    Parameters
+    ----------
+    sol : CombinedSolution
+    parallax : (float, float), optional
+        Trigonometric parallax and its error [mas]: compared with the orbital one; needed
+        for masses of a single-lined pair.
+    combine : bool
+        Weighted mean of the orbital and trigonometric parallaxes for the masses
+        (double-lined pair with a trigonometric parallax).
+    n_draws : int
+        Draws of the joint covariance.
+    seed : int
+        Seed of the parameter draws (``default_rng(seed)``); the trigonometric parallax
+        is drawn from ``default_rng(SeedSequence(seed).spawn(1)[0])``.
+
+    Returns
+    -------
+    dict
+        Keys "orbital_parallax" (double-lined only), "parallax", "mass" (when masses
+        follow), "mass_function" (single-lined), "warnings".
+    """
+    if sol.covariance is None:
+        return {"warnings": []}
+    if combine and (parallax is None or not sol.double_lined):
+        raise InputError("--combine-parallax needs a trigonometric parallax (--parallax VALUE "
+                         "ERROR) and the velocities of both components")
+    if parallax is not None:
+        value, error = (float(x) for x in parallax)
+        if not (np.isfinite(value) and value > 0 and np.isfinite(error) and error > 0):
+            raise InputError(f"the trigonometric parallax must be positive with a positive "
+                             f"error to be combined with the orbit; got {value} +/- {error} mas")
+    d = dict(zip(sol.keys, parameter_draws(sol, n_draws, seed).T))
+    trig = None
+    if parallax is not None:
+        rng = np.random.default_rng(np.random.SeedSequence(seed).spawn(1)[0])
+        trig = rng.normal(value, error, n_draws)
+    mass = {"draws": int(n_draws), "seed": int(seed), "draws_source": "covariance"}
+    if sol.double_lined:
+        blocks = _double_lined(d, trig, parallax, combine, mass)
+    else:
+        blocks = _single_lined(sol, d, trig, parallax, mass)
+    mass["warnings"] = blocks["warnings"]
+    return blocks
+
+
+def _double_lined(d, trig, parallax, combine, mass):
+    a_au = semi_major_axis_au_from_rv(d["K1"], d["K2"], d["P"], d["e"], d["i"])
+    orbital = 1e3 * d["a"] / a_au
+    plx_orb = _interval(orbital, "mas")
+    blocks = {"orbital_parallax": plx_orb, "warnings": []}
+    if parallax is None:
+        m1, m2 = component_masses_from_orbit(a_au, d["P"], d["K1"], d["K2"])
+        mass["parallax_used"] = "orbital"
+        blocks["parallax"] = {**plx_orb, "kind": "orbital"}
+    else:
+        value, error = parallax
+        sigma = float(np.hypot(plx_orb["error"], error))
+        agreement = (plx_orb["value"] - value) / sigma
+        block = {"value": value, "error": error, "unit": "mas", "kind": "trigonometric",
+                 "orbital": {**plx_orb, "agreement_sigma": float(agreement)}}
+        if abs(agreement) > 3.0:
+            blocks["warnings"].append(
+                f"The orbital parallax ({plx_orb['value']:.3f} mas) and the trigonometric "
+                f"one ({value:g} mas) differ by {agreement:+.1f} sigma.")
+        if combine:
+            w_orb, w_trig = 1.0 / plx_orb["error"] ** 2, 1.0 / error**2
+            mixed = (w_orb * orbital + w_trig * trig) / (w_orb + w_trig)
+            total = total_mass_msun(d["a"], mixed, d["P"])
+            q = d["K1"] / d["K2"]
+            m1, m2 = total / (1.0 + q), total * q / (1.0 + q)
+            block["combined"] = {
+                "value": float((w_orb * plx_orb["value"] + w_trig * value) / (w_orb + w_trig)),
+                "error": float(1.0 / np.sqrt(w_orb + w_trig)), "unit": "mas",
+                "rule": "inverse-variance weighted mean of the orbital and trigonometric "
+                        "parallaxes"}
+            mass["parallax_used"] = "combined"
+        else:
+            m1, m2 = component_masses_from_orbit(a_au, d["P"], d["K1"], d["K2"])
+            mass["parallax_used"] = "orbital"
+        blocks["parallax"] = block
+    mass.update(total=summarise(m1 + m2, "solMass"), primary=summarise(m1, "solMass"),
+                secondary=summarise(m2, "solMass"))
+    blocks["mass"] = mass
+    return blocks
+
+
+def _single_lined(sol, d, trig, parallax, mass):
+    """Mass function, and with a parallax the masses through the measured component's orbit."""
+    key = sol.keys[-1]                       # 'K1' or 'K2', the measured component
+    f_key = mass_function_msun(d[key], d["P"] * _DAYS_PER_YEAR, d["e"])
+    blocks = {"mass_function": {**summarise(f_key, "solMass"), "component": int(key[1])},
+              "warnings": []}
+    if parallax is None:
+        blocks["warnings"].append("Single-lined velocities and no parallax: only the mass "
+                                  "function is known; give --parallax for the masses.")
+        return blocks
+    value, error = parallax
+    total = total_mass_msun(d["a"], trig, d["P"])
+    # a_k / a = share of the OTHER component's mass (a1 = a M2 / (M1 + M2))
+    share = semi_major_axis_au_from_rv(d[key], 0.0, d["P"], d["e"], d["i"]) / (
+        d["a"] / (1e-3 * trig))
+    other = total * share
+    m1, m2 = (total - other, other) if key == "K1" else (other, total - other)
+    if np.any(share >= 1.0):
+        blocks["warnings"].append(f"In {np.mean(share >= 1.0):.0%} of the draws the measured "
+                                  f"component's orbit exceeds the relative orbit (a{key[1]} "
+                                  f">= a): velocities and parallax are inconsistent there.")
+    mass["parallax_used"] = "trigonometric"
+    mass.update(total=summarise(total, "solMass"), primary=summarise(m1, "solMass"),
+                secondary=summarise(m2, "solMass"))
+    blocks["parallax"] = {"value": value, "error": error, "unit": "mas",
+                          "kind": "trigonometric"}
+    blocks["mass"] = mass
+    return blocks
+
+
+# ------------------------------------------------------------------- result document
+def _entry(value, error, unit):
+    return {"value": float(value), "error": None if error is None else float(error),
+            "unit": unit}
+
+
+def _thiele_innes(sol):
+    """A, B, F, G [arcsec] and errors propagated from (a, i, Omega, omega)."""
+    names = ("a", "i", "Omega", "omega")
+    x = np.array([sol.values[k] for k in names])
+
+    def ti(x):
+        return np.array(thiele_innes_from_campbell(x[0], *np.radians(x[1:])))
+
+    best = ti(x)
+    if sol.covariance is None:
+        return {k: _entry(best[j], None, "arcsec") for j, k in enumerate("ABFG")}
+    idx = [sol.keys.index(k) for k in names]
+    jac = np.column_stack([(ti(x + h) - ti(x - h)) / 2e-6 for h in 1e-6 * np.eye(4)])
+    cov = jac @ sol.covariance[np.ix_(idx, idx)] @ jac.T
+    return {k: _entry(best[j], np.sqrt(max(cov[j, j], 0.0)), "arcsec")
+            for j, k in enumerate("ABFG")}
+
+
+def _rv_rows(sol):
+    vs, scale = sol.velocities, sol.velocities.epoch_scale
+    model = rv_model(sol.values, vs.epoch_yr, vs.component)
+    status = np.where(vs.usable, "used", "excluded")
+    rows = [{"line": int(vs.line[k]), "epoch": float(from_julian_year(vs.epoch_yr[k], scale)),
+             "epoch_text": str(vs.epoch_text[k]), "epoch_yr": float(vs.epoch_yr[k]),
+             "component": int(vs.component[k]), "rv": float(vs.rv_kms[k]),
+             "sigma": float(vs.sigma_rv_kms[k]), "model": float(model[k]),
+             "residual": float(vs.rv_kms[k] - model[k]), "status": str(status[k]),
+             "reason": "" if vs.usable[k] else "excluded by the log's flag column",
+             "note": str(vs.note[k])} for k in range(len(vs))]
+    rows += [{"line": int(p.line), "status": "rejected",
+              "reason": (f"column '{p.column}': " if p.column else "") + p.reason}
+             for p in vs.rejected]
+    return sorted(rows, key=lambda r: r["line"])
+
+
+def _update_astrometry(doc, sol):
+    """Elements, Thiele-Innes constants, covariance and position residuals of the joint orbit."""
+    scale = sol.visual.data.epoch_scale
+    for k in ELEMENT_KEYS:
+        doc["elements"][k].update(value=float(sol.values[k]), error=sol.errors[k])
+    t = doc["elements"]["T"]
+    t["value"] = float(from_julian_year(sol.values["T"], scale))
+    if t["error"] is not None:
+        t["error"] = float(interval_in_scale(t["error"], scale))
+    doc["thiele_innes"] = _thiele_innes(sol)
+    doc["covariance"] = None if sol.covariance is None else {
+        "parameters": list(ELEMENT_KEYS), "matrix": sol.covariance[:7, :7].tolist(),
+        "units": "P yr, T Julian yr, e, a arcsec, i Omega omega deg"}
+    theta_pred, rho_pred = predict_theta_rho(_orbit_params(sol.values), sol.visual.data.epoch_yr)
+    rows = [r for r in doc["residuals"] if r["status"] != "rejected"]
+    for r, tp, rp in zip(rows, theta_pred, rho_pred):  # both in the data's row order
+        theta_obs = r["theta_deg"] + (180.0 if r["status"] == "flipped" else 0.0)
+        r.update(theta_pred_deg=float(tp), rho_pred_arcsec=float(rp),
+                 d_theta_deg=float(wrap_degrees(theta_obs - tp)),
+                 d_rho_arcsec=float(r["rho_arcsec"] - rp))
+    return [r for r in rows if r["status"] in ("used", "flipped")]
+
+
+def add_to_document(doc, sol, blocks):
+    """Write a combined solution and its blocks into a visual fit's result document.
+
+    The elements (Omega now in [0, 360)), Thiele-Innes constants, covariance, position
+    residuals and statistics become those of the joint fit; "gamma", "K1", "K2", "node",
+    "combined", "velocities", "rv_residuals" and the blocks of ``combined_blocks`` are added.
+    """
+    fitted = _update_astrometry(doc, sol)
+    s = doc["statistics"]
+    vs = sol.velocities
+    rv_res = (vs.rv_kms - rv_model(sol.values, vs.epoch_yr, vs.component))[vs.usable]
+    s.update(chi2=sol.chi2, dof=sol.dof, reduced_chi2=sol.reduced_chi2,
+             errors_scaled=sol.errors_scaled, chi2_astrometric=sol.chi2_astrometric,
+             chi2_rv=sol.chi2_rv, n_rv_used=int(vs.usable.sum()),
+             n_rv_excluded=int((~vs.usable).sum()), n_rv_rejected=len(vs.rejected),
+             rms_theta_deg=float(np.sqrt(np.mean([r["d_theta_deg"] ** 2 for r in fitted]))),
+             rms_rho_arcsec=float(np.sqrt(np.mean([r["d_rho_arcsec"] ** 2 for r in fitted]))),
+             rms_rv_kms=float(np.sqrt(np.mean(rv_res**2))))
+    for k in ("gamma", "K1", "K2"):
+        if k in sol.keys:
+            doc[k] = _entry(sol.values[k], sol.errors[k], "km/s")
+    other = sol.other_node
+    doc["node"] = {"Omega_deg": float(sol.values["Omega"]),
+                   "omega_deg": float(sol.values["omega"]),
+                   "other": {"Omega_deg": float(other["values"]["Omega"]),
+                             "omega_deg": float(other["values"]["omega"]),
+                             "chi2": float(other["chi2"])},
+                   "delta_chi2": float(sol.node_delta_chi2),
+                   "decisive": bool(sol.node_delta_chi2 >= NODE_DECISIVE_DELTA_CHI2),
+                   "note": "fixed by the radial velocities; Omega runs over [0, 360) deg"}
+    doc["combined"] = {
+        "parameters": list(sol.keys),
+        "units": {k: PARAMETER_UNITS[k] for k in sol.keys},
+        "covariance": None if sol.covariance is None else sol.covariance.tolist(),
+        "visual_chi2": float(sol.visual.chi2), "visual_dof": int(sol.visual.dof),
+        "double_lined": sol.double_lined,
+        "weighting": "each datum by its own sigma (no relative factor)"}
+    doc["velocities"] = {"source": str(vs.source), "n_input": int(vs.n_lines or len(vs)),
+                         "n_used": int(vs.usable.sum()), "n_excluded": int((~vs.usable).sum()),
+                         "n_rejected": len(vs.rejected), "epoch_scale": vs.epoch_scale}
+    doc["rv_residuals"] = _rv_rows(sol)
+    doc["notes"] = [n for n in doc["notes"] if "[0, 180)" not in n] + sol.notes
+    doc["warnings"].extend(sol.warnings)
+    for key in ("orbital_parallax", "parallax", "mass", "mass_function"):
+        if key in blocks:
+            doc[key] = blocks[key]
+    doc["warnings"].extend(blocks.get("warnings", []))
+    return doc
+
+
+def _value(entry, digits=3):
+    err = entry.get("error")
+    return f"{entry['value']:.{digits}f}" + ("" if err is None else f" ± {err:.{digits}f}")
+
+
+def format_combined(doc):
+    """Plain-text summary of the combined-solution keys of a result document."""
+    s, node, v = doc["statistics"], doc["node"], doc["velocities"]
+    out = [f"Combined with radial velocities ({v['source']}: {v['n_used']} used, "
+           f"{v['n_excluded']} excluded, {v['n_rejected']} rejected)"]
+    out += [f"  {label:<26}{_value(doc[k])} km/s" for k, label in
+            (("gamma", "gamma (systemic velocity)"), ("K1", "K1 (primary)"),
+             ("K2", "K2 (secondary)")) if k in doc]
+    out.append(f"  node: Omega = {node['Omega_deg']:.2f} deg kept; Omega = "
+               f"{node['other']['Omega_deg']:.2f} deg fits worse by delta chi2 = "
+               f"{node['delta_chi2']:.1f}" + ("" if node["decisive"] else " (NOT decisive)"))
+    out.append(f"  chi2 {s['chi2']:.2f} for {s['dof']} degrees of freedom: astrometry "
+               f"{s['chi2_astrometric']:.2f}, velocities {s['chi2_rv']:.2f} "
+               f"(rms {s['rms_rv_kms']:.3f} km/s)")
+    if "orbital_parallax" in doc:
+        o = doc["orbital_parallax"]
+        out.append(f"  orbital parallax {o['value']:.3f} mas, 68% [{o['low']:.3f}, "
+                   f"{o['high']:.3f}]")
+    plx = doc.get("parallax", {})
+    if "agreement_sigma" in plx.get("orbital", {}):
+        out.append(f"  orbital - trigonometric parallax: "
+                   f"{plx['orbital']['agreement_sigma']:+.2f} sigma")
+    if "combined" in plx:
+        c = plx["combined"]
+        out.append(f"  combined parallax {c['value']:.3f} ± {c['error']:.3f} mas ({c['rule']})")
+    if "mass_function" in doc:
+        f = doc["mass_function"]
+        out.append(f"  mass function f(M) of component {f['component']}: {f['value']:.4g} "
+                   f"M_sun, 68% [{f['low']:.4g}, {f['high']:.4g}]")
+    if "mass" in doc:
+        m = doc["mass"]
+        out.append(f"Masses (parallax used: {m['parallax_used']}; draws of the "
+                   f"{m['draws_source']})")
+        out.append(format_mass_blocks({"mass": m, "parallax": plx, "warnings": []}))
+    return "\n".join(out)
