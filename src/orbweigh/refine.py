@@ -51,7 +51,9 @@ def refine_nonlinear(trial, t, x, y, w, period_range):
     hi = [np.log(period_range[1]), _E_MAX, trial.t_peri + trial.period]
     q0 = np.clip([np.log(trial.period), trial.e, trial.t_peri], lo, hi)
     q0[1] = min(q0[1], _E_MAX - 1e-3)
-    sol = least_squares(resid, q0, bounds=(lo, hi), x_scale="jac", max_nfev=200)
+    # A polish only (the full refinement follows), so loose tolerances suffice.
+    sol = least_squares(resid, q0, bounds=(lo, hi), x_scale="jac", max_nfev=80,
+                        ftol=1e-6, xtol=1e-6)
     period, e, t_peri = np.exp(sol.x[0]), sol.x[1], sol.x[2]
     A, B, F, G, chi2 = linear_thiele_innes(*_basis(t, period, t_peri, e), x, y, w)
     return Refined(np.array([period, t_peri, e, A, B, F, G]), float(chi2))
