@@ -1,0 +1,237 @@
+"""Tests of the combined visual-spectroscopic solution (positions + radial velocities)."""
+import dataclasses
+import json
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from orbweigh.cli.main import main
+from orbweigh.combined import combined_blocks, fit_combined
+from orbweigh.elements import CampbellElements
+from orbweigh.ephemeris import ephemeris
+from orbweigh.fitting import FitOptions, fit_orbit
+from orbweigh.masses import THIRD_LAW_FACTOR
+from orbweigh.measurements import read_measurements
+from orbweigh.spectroscopic import (mass_function_msun, radial_velocities,
+                                    read_velocities, rv_semi_amplitude_kms)
+
+SAMPLE = Path(__file__).resolve().parents[1] / "sample_measurements"
+
+# Invented synthetic pair (no source needed: the truth is the generator's input).
+TRUE = CampbellElements(50.0, 2012.3, 0.45, 0.5, 118.0, 300.0, 40.0)
+PLX_MAS, Q, GAMMA = 30.0, 0.7, 8.5
+A_AU = TRUE.a_arcsec / (PLX_MAS * 1e-3)
+# Third law M = f a^3 / P^2 with f from the IAU constants (tested in test_masses.py)
+M_TOTAL = THIRD_LAW_FACTOR * A_AU**3 / TRUE.period_yr**2
+M1, M2 = M_TOTAL / (1 + Q), M_TOTAL * Q / (1 + Q)
+K_SUM = rv_semi_amplitude_kms(A_AU, TRUE.period_yr, TRUE.e, TRUE.i_deg)
+K1, K2 = K_SUM * Q / (1 + Q), K_SUM / (1 + Q)
+SIGMA_THETA, SIGMA_RHO, SIGMA_RV = 0.5, 0.01, (0.3, 0.4)
+SEED = 5
+
+
+def _write_positions(path, rng):
+    t = np.sort(rng.uniform(1975.0, 2024.0, 40))
+    eph = ephemeris(TRUE, t)
+    theta = np.mod(eph.theta_deg + rng.normal(0, SIGMA_THETA, t.size), 360.0)
+    rho = eph.rho_arcsec + rng.normal(0, SIGMA_RHO, t.size)
+    rows = [f"J{a:.4f},{b:.3f},{c:.4f},{SIGMA_THETA},{SIGMA_RHO},speckle"
+            for a, b, c in zip(t, theta, rho)]
+    path.write_text("epoch,theta,rho,sigma_theta,sigma_rho,technique\n" + "\n".join(rows) + "\n")
+
+
+def _write_velocities(path, seed, node_deg, omega_deg, components=(1, 2), sigma=SIGMA_RV):
+    """Velocities of the true orbit with the given node choice (Omega does not enter V)."""
+    assert (node_deg - TRUE.node_deg) % 180 == 0
+    rng = np.random.default_rng(seed)
+    t = np.sort(rng.uniform(2000.0, 2024.0, 30))
+    v1, v2 = radial_velocities(t, TRUE.period_yr, TRUE.periastron_yr, TRUE.e, omega_deg,
+                               K1, K2, GAMMA)
+    rows = []
+    for k in range(t.size):
+        for comp, v, s in ((1, v1[k], sigma[0]), (2, v2[k], sigma[1])):
+            if comp in components:
+                rows.append(f"J{t[k]:.5f},{comp},{v + rng.normal(0, s):.3f},{s}")
+    path.write_text("epoch,component,rv,sigma_rv\n" + "\n".join(rows) + "\n")
+    return path
+
+
+@pytest.fixture(scope="module")
+def synthetic(tmp_path_factory):
+    """The visual fit of the synthetic positions (done once) and a folder for logs."""
+    folder = tmp_path_factory.mktemp("combined")
+    _write_positions(folder / "positions.csv", np.random.default_rng(SEED))
+    data = read_measurements(folder / "positions.csv")
+    solution = fit_orbit(data, FitOptions(period_range=(30.0, 80.0)))
+    return solution, folder
+
+
+def _angle_off(a, b):
+    return abs((a - b + 180.0) % 360.0 - 180.0)
+
+
+@pytest.mark.parametrize("node, omega", [(300.0, 40.0), (120.0, 220.0)])
+def test_node_recovered_and_wrong_one_loses(synthetic, node, omega):
+    # The two choices share the apparent orbit; only the velocities' sign tells them apart.
+    solution, folder = synthetic
+    assert solution.elements.node_deg == pytest.approx(120.0, abs=1.0)  # visual: [0, 180)
+    vs = read_velocities(_write_velocities(folder / f"rv_{node:.0f}.csv", 11, node, omega))
+    sol = fit_combined(solution, vs)
+    v, err = sol.values, sol.errors
+    assert _angle_off(v["Omega"], node) < 3 * err["Omega"]
+    assert _angle_off(v["omega"], omega) < 3 * err["omega"]
+    assert 0.0 <= v["Omega"] < 360.0
+    assert _angle_off(sol.other_node["values"]["Omega"], node) == pytest.approx(180.0, abs=1.0)
+    assert sol.node_delta_chi2 > 100.0          # decisive: far beyond the 9 of the warning
+    assert not any("not decided" in w for w in sol.warnings)
+    for key, truth in (("gamma", GAMMA), ("K1", K1), ("K2", K2)):
+        assert abs(v[key] - truth) < 3 * err[key], key
+    assert sol.chi2 == pytest.approx(sol.chi2_astrometric + sol.chi2_rv, rel=1e-12)
+    assert sol.dof == 2 * 40 + 60 - 10
+
+
+def test_masses_and_orbital_parallax_within_intervals(synthetic):
+    solution, folder = synthetic
+    vs = read_velocities(_write_velocities(folder / "rv_masses.csv", 12, 300.0, 40.0))
+    blocks = combined_blocks(fit_combined(solution, vs), seed=3)
+    plx = blocks["orbital_parallax"]
+    assert plx["low95"] < PLX_MAS < plx["high95"]
+    assert plx["error"] < 0.05 * PLX_MAS                 # informative, not a wide net
+    assert blocks["parallax"]["kind"] == "orbital"
+    mass = blocks["mass"]
+    for key, truth in (("total", M_TOTAL), ("primary", M1), ("secondary", M2)):
+        assert mass[key]["low95"] < truth < mass[key]["high95"], key
+        assert mass[key]["high"] - mass[key]["low"] < 0.3 * truth
+    assert mass["parallax_used"] == "orbital" and mass["seed"] == 3
+
+
+def test_uninformative_velocities_leave_the_node_open(synthetic):
+    # sigma_rv of 100 km/s against K of a few km/s: both node choices fit alike.
+    solution, folder = synthetic
+    vs = read_velocities(_write_velocities(folder / "rv_poor.csv", 13, 300.0, 40.0,
+                                           sigma=(100.0, 100.0)))
+    sol = fit_combined(solution, vs)
+    assert sol.node_delta_chi2 < 9.0
+    assert any("node is not decided" in w for w in sol.warnings)
+
+
+def test_single_lined_with_parallax(synthetic):
+    solution, folder = synthetic
+    vs = read_velocities(_write_velocities(folder / "rv_sb1.csv", 14, 300.0, 40.0,
+                                           components=(1,)))
+    sol = fit_combined(solution, vs)
+    assert "K2" not in sol.keys and not sol.double_lined
+    assert _angle_off(sol.values["Omega"], 300.0) < 3 * sol.errors["Omega"]
+    blocks = combined_blocks(sol, parallax=(PLX_MAS + 0.1, 0.3), seed=4)
+    assert "orbital_parallax" not in blocks
+    for key, truth in (("total", M_TOTAL), ("primary", M1), ("secondary", M2)):
+        assert blocks["mass"][key]["low95"] < truth < blocks["mass"][key]["high95"], key
+    f_true = mass_function_msun(K1, TRUE.period_yr * 365.25, TRUE.e)
+    f = blocks["mass_function"]
+    assert f["low95"] < f_true < f["high95"]
+    # without a parallax: mass function only, and a warning saying what is missing
+    bare = combined_blocks(sol, seed=4)
+    assert "mass" not in bare and "mass_function" in bare
+    assert any("only the mass function" in w for w in bare["warnings"])
+
+
+def test_single_lined_route_obeys_the_mass_function(synthetic):
+    # Route: M = f (a/plx)^3/P^2, M2 = M a1/a with a1 = K1 P sqrt(1-e^2)/(2 pi sin i).
+    # Independent check: the definition f(M) = (M2 sin i)^3 / (M1 + M2)^2 must hold.
+    solution, folder = synthetic
+    vs = read_velocities(_write_velocities(folder / "rv_sb1b.csv", 15, 300.0, 40.0,
+                                           components=(1,)))
+    sol = fit_combined(solution, vs)
+    sharp = dataclasses.replace(sol, covariance=sol.covariance * 1e-14)  # draws = best
+    mass = combined_blocks(sharp, parallax=(PLX_MAS, 1e-9), n_draws=50)["mass"]
+    v = sol.values
+    f = mass_function_msun(v["K1"], v["P"] * 365.25, v["e"])
+    m2, total = mass["secondary"]["value"], mass["total"]["value"]
+    assert (m2 * np.sin(np.radians(v["i"]))) ** 3 / total**2 == pytest.approx(f, rel=1e-5)
+    assert mass["primary"]["value"] + m2 == pytest.approx(total, rel=1e-9)
+
+
+def test_combined_parallax_and_agreement(synthetic):
+    solution, folder = synthetic
+    vs = read_velocities(_write_velocities(folder / "rv_comb.csv", 16, 300.0, 40.0))
+    sol = fit_combined(solution, vs)
+    trig = (29.2, 0.4)
+    blocks = combined_blocks(sol, parallax=trig, combine=True, seed=2)
+    orb, plx = blocks["orbital_parallax"], blocks["parallax"]
+    # inverse-variance weighted mean and its error (common practice, no source)
+    w1, w2 = 1 / orb["error"] ** 2, 1 / trig[1] ** 2
+    assert plx["combined"]["value"] == pytest.approx((w1 * orb["value"] + w2 * trig[0])
+                                                     / (w1 + w2), rel=1e-12)
+    assert plx["combined"]["error"] == pytest.approx((w1 + w2) ** -0.5, rel=1e-12)
+    assert plx["orbital"]["agreement_sigma"] == pytest.approx(
+        (orb["value"] - trig[0]) / np.hypot(orb["error"], trig[1]), rel=1e-12)
+    assert blocks["mass"]["parallax_used"] == "combined"
+    assert blocks["mass"]["total"]["low95"] < M_TOTAL < blocks["mass"]["total"]["high95"]
+
+
+def test_sample_pair_combined_solution():
+    # True values: sample_measurements/README.md (invented pair, seed 47047).
+    data = read_measurements(SAMPLE / "measurements.csv", target_ra_deg="14h27m13.4s",
+                             target_dec_deg="+38d41m06s")
+    sol = fit_combined(fit_orbit(data, FitOptions(seed=1)),
+                       read_velocities(SAMPLE / "velocities.csv"))
+    v, err = sol.values, sol.errors
+    assert abs(v["Omega"] - 236.40) < 3 * err["Omega"]
+    assert abs(v["omega"] - 131.70) < 3 * err["omega"]
+    assert sol.node_delta_chi2 > 100.0
+    for key, truth in (("gamma", -14.60), ("K1", 3.930), ("K2", 5.038)):
+        assert abs(v[key] - truth) < 3 * err[key], key
+    flagged = sol.velocities.line[sol.velocities.excluded]
+    assert list(flagged) == [19] and sol.data.t_rv.size == 50
+    blocks = combined_blocks(sol, parallax=(40.68, 0.40), seed=1)
+    for key, truth in (("total", 1.9300), ("primary", 1.0842), ("secondary", 0.8457)):
+        assert blocks["mass"][key]["low95"] < truth < blocks["mass"][key]["high95"], key
+    orbital = blocks["parallax"]["orbital"]
+    assert orbital["low95"] < 41.30 < orbital["high95"]
+    assert abs(orbital["agreement_sigma"]) < 3.0
+
+
+def _run(capsys, *argv):
+    status = main(["fit", *map(str, argv)])
+    out, err = capsys.readouterr()
+    assert "Traceback" not in out + err
+    return status, out, err
+
+
+def test_cli_fit_with_velocities(synthetic, capsys, tmp_path):
+    _, folder = synthetic
+    rv = _write_velocities(folder / "rv_cli.csv", 17, 300.0, 40.0)
+    out_json = tmp_path / "result.json"
+    status, out, _ = _run(capsys, folder / "positions.csv", "--rv", rv, "--period-range", 30, 80,
+                          "--parallax", 30.1, 0.3, "--json", out_json)
+    assert status == 0
+    doc = json.loads(out_json.read_text())
+    assert 180.0 <= doc["elements"]["Omega"]["value"] < 360.0        # true node 300 deg
+    assert doc["node"]["decisive"] and doc["node"]["delta_chi2"] > 100
+    assert {doc[k]["unit"] for k in ("gamma", "K1", "K2")} == {"km/s"}
+    assert doc["orbital_parallax"]["unit"] == "mas"
+    assert doc["parallax"]["kind"] == "trigonometric" and "orbital" in doc["parallax"]
+    rows = doc["rv_residuals"]
+    assert len(rows) == 60 and all(r["status"] == "used" for r in rows)
+    assert rows[0]["residual"] == pytest.approx(rows[0]["rv"] - rows[0]["model"], abs=1e-12)
+    assert doc["mass"]["primary"]["low95"] < M1 < doc["mass"]["primary"]["high95"]
+    assert "Omega runs over [0, 360)" in doc["node"]["note"]
+    assert "orbital parallax" in out and "delta chi2" in out
+
+
+def test_cli_refuses_conflicting_options(synthetic, capsys):
+    _, folder = synthetic
+    status, _, err = _run(capsys, folder / "positions.csv", "--rv", folder / "rv_cli.csv",
+                          "--mass-ratio", 0.7, 0.05)
+    assert status == 2 and "drop --mass-ratio" in err
+    status, _, err = _run(capsys, folder / "positions.csv", "--combine-parallax")
+    assert status == 2 and "--rv RVLOG" in err
+
+
+def test_cli_bad_velocity_log(tmp_path, synthetic, capsys):
+    _, folder = synthetic
+    bad = tmp_path / "bad.csv"
+    bad.write_text("epoch,component,rv,sigma_rv\nJ2010.5,3,1.0,0.2\n")
+    status, _, err = _run(capsys, folder / "positions.csv", "--rv", bad, "--strict")
+    assert status == 2 and "line 2" in err and "component" in err
