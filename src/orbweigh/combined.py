@@ -42,7 +42,7 @@ from .spectroscopic import (component_masses_from_orbit, mass_function_msun,
                             radial_velocities, semi_major_axis_au_from_rv)
 
 __all__ = ["PARAMETER_KEYS", "PARAMETER_UNITS", "NODE_DECISIVE_DELTA_CHI2", "JointData",
-           "CombinedSolution", "fit_combined", "parameter_draws", "combined_blocks",
+           "CombinedSolution", "rv_model", "joint_residuals", "fit_combined", "parameter_draws", "combined_blocks",
            "add_to_document", "format_combined"]
 
 #: Order of the joint parameters (SB1: the amplitude of the missing component is absent).
@@ -53,6 +53,9 @@ PARAMETER_UNITS = {"P": "yr", "T": "yr", "e": "", "a": "arcsec", "i": "deg", "Om
 NODE_DECISIVE_DELTA_CHI2 = 9.0
 _E_MAX = 0.995
 _RV_OUTLIER_SIGMA = 4.0
+# Physical ranges; K >= 0 keeps the wrong node from mimicking the right one with K < 0.
+_BOUNDS = {"P": (0.0, np.inf), "e": (0.0, _E_MAX), "a": (0.0, np.inf), "i": (0.0, 180.0),
+           "K1": (0.0, np.inf), "K2": (0.0, np.inf)}
 _DAYS_PER_YEAR = 365.25
 
 
@@ -226,9 +229,7 @@ def _least_squares(v0, data, keys):
 
     pars = lmfit.Parameters()
     for k in keys:
-        bounds = {"P": (0.0, np.inf), "e": (0.0, _E_MAX), "a": (0.0, np.inf),
-                  "i": (0.0, 180.0), "K1": (0.0, np.inf), "K2": (0.0, np.inf)}
-        lo, hi = bounds.get(k, (-np.inf, np.inf))
+        lo, hi = _BOUNDS.get(k, (-np.inf, np.inf))
         value = v0[k] if k != "e" else min(max(v0[k], 1e-4), _E_MAX - 1e-3)
         pars.add(k, value=value, min=lo, max=hi)
 
@@ -273,8 +274,8 @@ def fit_combined(solution, velocities):
             for shift in (False, True)]
     fits.sort(key=lambda f: f[1])
     (values, chi2, covar), (other, other_chi2, _) = fits
-    values["Omega"], values["omega"] = np.mod(values["Omega"], 360.0), np.mod(values["omega"], 360.0)
-    other["Omega"], other["omega"] = np.mod(other["Omega"], 360.0), np.mod(other["omega"], 360.0)
+    for v in (values, other):
+        v["Omega"], v["omega"] = float(np.mod(v["Omega"], 360.0)), float(np.mod(v["omega"], 360.0))
     dof = max(2 * data.t_ast.size + data.t_rv.size - len(keys), 1)
     reduced = chi2 / dof
     cov = None if covar is None else covar * max(reduced, 1.0)
