@@ -5,6 +5,8 @@ from __future__ import annotations
 import dataclasses
 import json
 import os
+import shutil
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -18,6 +20,7 @@ from orbweigh.manifest import read_manifest
 
 TRUE = CampbellElements(12.0, 2005.3, 0.4, 0.5, 50.0, 120.0, 60.0)
 SIGMA_THETA, SIGMA_RHO = 1.0, 0.01
+SAMPLE = Path(__file__).resolve().parents[1] / "sample_measurements"
 LAST = "J2015.0"   # the old orbits "used" data up to here; 8 of 25 epochs are newer
 
 
@@ -50,28 +53,35 @@ def catalogue(tmp_path_factory):
     (root / "secret.csv").write_text("epoch,theta,rho\n2000,1,1\n")
     (cat / "link.csv").symlink_to(root / "secret.csv")
     (cat / "logs" / "garbled.csv").write_text("when,where\n2000,1\n")
+    for name in ("measurements.csv", "velocities.csv"):
+        shutil.copy(SAMPLE / name, cat / "logs" / f"sample-{name}")
     drift = dataclasses.replace(TRUE, node_deg=TRUE.node_deg + 2.0)    # ~2 sigma in theta
     wrong_p = dataclasses.replace(TRUE, period_yr=TRUE.period_yr * 1.1)  # P 10 % off
     manifest = cat / "manifest.csv"
     manifest.write_text(
-        "id,log,P,T,e,a,i,Omega,omega,last_epoch,parallax_mas,parallax_err_mas\n"
-        f"consistent,logs/consistent.csv,{_old(TRUE)},{LAST},20,0.5\n"
-        f"drifting,logs/drifting.csv,{_old(drift)},{LAST},,\n"
-        f"contradicted,logs/contradicted.csv,{_old(wrong_p)},{LAST},,\n"
-        "fresh,logs/fresh.csv,,,,,,,,,,\n"
-        "up,../secret.csv,,,,,,,,,,\n"
-        f"absolute,{root / 'secret.csv'},,,,,,,,,,\n"
-        "symlink,link.csv,,,,,,,,,,\n"
-        "missing,logs/none.csv,,,,,,,,,,\n"
-        f"broken,logs/fresh.csv,{_old(TRUE).replace(',0.4,', ',1.4,')},{LAST},,\n"
-        "garbled,logs/garbled.csv,,,,,,,,,,\n")
+        "id,log,P,T,e,a,i,Omega,omega,last_epoch,parallax_mas,parallax_err_mas,rv_log,ra_deg,"
+        "dec_deg\n"
+        f"consistent,logs/consistent.csv,{_old(TRUE)},{LAST},20,0.5,,,\n"
+        f"drifting,logs/drifting.csv,{_old(drift)},{LAST},,,,,\n"
+        f"contradicted,logs/contradicted.csv,{_old(wrong_p)},{LAST},,,,,\n"
+        "fresh,logs/fresh.csv,,,,,,,,,,,,,\n"
+        "up,../secret.csv,,,,,,,,,,,,,\n"
+        f"absolute,{root / 'secret.csv'},,,,,,,,,,,,,\n"
+        "symlink,link.csv,,,,,,,,,,,,,\n"
+        "missing,logs/none.csv,,,,,,,,,,,,,\n"
+        f"broken,logs/fresh.csv,{_old(TRUE).replace(',0.4,', ',1.4,')},{LAST},,,,,\n"
+        "garbled,logs/garbled.csv,,,,,,,,,,,,,\n"
+        # The shipped sample pair, with its velocities, parallax and coordinates (README).
+        "sample,logs/sample-measurements.csv,,,,,,,,,40.68,0.40,logs/sample-velocities.csv,"
+        "216.805833,38.685\n")
     return manifest
 
 
 @pytest.fixture(scope="module")
 def full_run(catalogue, tmp_path_factory):
     out = tmp_path_factory.mktemp("full")
-    table = run_batch(catalogue, out, BatchOptions(seed=7), workers=1, progress=False)
+    table = run_batch(catalogue, out, BatchOptions(seed=7, report=False), workers=1,
+                      progress=False)
     return out, {row["id"]: row for row in table}
 
 
@@ -104,7 +114,7 @@ def test_summary_order_files_and_mass(full_run):
     table = Table.read(out / "summary.ecsv", format="ascii.ecsv")
     assert list(table["id"][:2]) == ["contradicted", "drifting"]      # most urgent first
     assert list(table["rank"]) == list(range(1, len(table) + 1))
-    assert len(Table.read(out / "summary.csv", format="ascii.csv")) == 10
+    assert len(Table.read(out / "summary.csv", format="ascii.csv")) == 11
     folder = out / "systems" / system_key("contradicted")
     record = json.loads((folder / "batch.json").read_text())
     assert record["revision"]["verdict"] == "contradicted"
@@ -112,14 +122,28 @@ def test_summary_order_files_and_mass(full_run):
     assert len(record["revision"]["residuals"]) == 25
     doc = json.loads((folder / "result.json").read_text())
     assert doc["schema"] == "orbweigh.result/1" and doc["seed"] == record["seed"]
-    assert (folder / "report.html").is_file()
     index = (out / "index.html").read_text()
-    assert f'href="systems/{system_key("contradicted")}/report.html"' in index
+    assert f'href="systems/{system_key("contradicted")}/result.json"' in index
     assert index.index(">contradicted<") < index.index(">consistent<")
     # Third law, a = 0.5", parallax 20 mas -> 25 au; (25)^3 / 12^2 = 108.5 Msun
     # (DESIGN.md, solar units); the fitted a and P scatter by a few per mille.
     assert rows["consistent"]["mass_msun"] == pytest.approx(25.0**3 / 12.0**2, rel=0.05)
     assert not any(p.name.endswith(".tmp") for p in out.rglob("*"))
+
+
+def test_velocities_give_the_combined_solution(full_run):
+    out, rows = full_run
+    doc = json.loads((out / "systems" / system_key("sample") / "result.json").read_text())
+    # True values of the invented sample pair (sample_measurements/README.md): the
+    # velocities pick the ascending node 236.40 deg; K1 = 3.930, K2 = 5.038 km/s;
+    # total mass 1.930 Msun with the published parallax 40.68 +/- 0.40 mas.
+    assert rows["sample"]["status"] == "done", rows["sample"]["error"]
+    omega = doc["elements"]["Omega"]
+    assert abs(omega["value"] - 236.40) < 4 * omega["error"]
+    for key, truth in (("K1", 3.930), ("K2", 5.038)):
+        assert abs(doc[key]["value"] - truth) < 4 * doc[key]["error"]
+    total = doc["mass"]["total"]
+    assert total["low95"] < 1.930 < total["high95"]
 
 
 def test_each_broken_system_fails_alone_with_its_reason(full_run, catalogue):
@@ -200,7 +224,11 @@ def test_command_line(catalogue, tmp_path, capsys):
                    "--only-contradicted", "--seed", "7", "--quiet"])
     assert status == 1                   # six broken systems: the batch reports failure
     assert "6 system(s) failed" in capsys.readouterr().err
-    assert (out / "summary.ecsv").is_file() and (out / "index.html").is_file()
+    # The command writes each fitted system's report and links it from the index.
+    key = system_key("contradicted")
+    assert "Apparent orbit" in (out / "systems" / key / "report.html").read_text()
+    assert f'href="systems/{key}/report.html"' in (out / "index.html").read_text()
+    assert Table.read(out / "summary.ecsv")["report"][0] == f"systems/{key}/report.html"
     assert main(["batch", str(tmp_path / "none.csv"), "--out", str(out)]) == 2
     assert "cannot read the manifest" in capsys.readouterr().err
     assert main(["batch", str(catalogue), "--out", str(out), "--workers", "2",

@@ -104,6 +104,16 @@ def test_pairs_coordinates_duplicates_and_field_count(folder):
     assert (n.ra_deg, n.dec_deg, n.parallax_mas) == (10.0, 20.0, (12.0, 1.0))
 
 
+def test_velocities_and_mass_ratio_exclude_each_other(folder):
+    (folder / "v.csv").write_text("epoch,component,rv\n2450000.5,1,3.0\n")
+    path = _write(folder, "id,log,rv_log,q,q_err\nv,a.csv,v.csv,,\nboth,a.csv,v.csv,0.8,0.1\n"
+                  "out,a.csv,../../outside.csv,,\n")
+    v, both, out = read_manifest(path)
+    assert v.problem is None and v.rv_log == str((folder / "v.csv").resolve())
+    assert "line 3, column 'q': with rv_log the velocities give K1, K2" in both.problem
+    assert "line 4, column 'rv_log'" in out.problem and "outside" in out.problem
+
+
 def test_whole_manifest_errors(folder, tmp_path):
     with pytest.raises(InputError, match="unknown column.*'paralax_mas'"):
         read_manifest(_write(folder, "id,log,paralax_mas\nx,a.csv,3\n"))

@@ -48,7 +48,7 @@ __all__ = ["BatchOptions", "system_seed", "system_key", "input_hash", "process_s
 #: Order of the summary: most urgent first ('failed' = no verdict because of an error).
 URGENCY = ("contradicted", "drifting", "failed", "no previous orbit", "no new data",
            "consistent")
-_MASS_DRAWS = 4000
+_JULIAN_YEAR_D = 365.25
 
 
 @dataclass(frozen=True)
@@ -158,11 +158,12 @@ def _process(entry, options, seed, record):
         return
     doc = solution.to_document()
     record["fitted"], record["document"] = True, doc
-    if entry.parallax_mas is not None:
-        _stage(record, "masses", _add_masses, doc, solution, entry, seed)
+    if entry.rv_log is not None:
+        _stage(record, "radial velocities", _add_combined, doc, solution, entry, seed)
+    elif entry.parallax_mas is not None:
+        _stage(record, "masses", _add_masses, doc, entry, seed)
     if check is not None:
-        record["comparison"] = _stage(record, "comparison", _compare, entry, solution, data,
-                                      check)
+        record["comparison"] = _stage(record, "comparison", _compare, entry, doc, data, check)
     if options.report and not record["error"]:
         record["report"] = _stage(record, "report", _report_files, doc)
 
@@ -172,29 +173,35 @@ def _fit(data, seed):
     return fit_orbit(data, FitOptions(seed=seed))
 
 
-def _add_masses(doc, solution, entry, seed):
-    """Masses from the fit's covariance draws (no sampling) and the manifest parallax."""
-    from .masses import mass_blocks
-    from .result import element_draws
-    draws = element_draws(doc, _MASS_DRAWS, seed)
-    if draws is None:
-        raise InputError("the fit has no covariance, so no mass can be derived")
-    cov_pa = solution.covariance[np.ix_([0, 3], [0, 3])]
-    blocks = mass_blocks(draws[:, 0], draws[:, 3], parallax=entry.parallax_mas,
-                         mass_ratio=entry.mass_ratio, seed=seed,
-                         best=(solution.elements.period_yr, solution.elements.a_arcsec),
-                         cov_Pa=cov_pa)
-    blocks["mass"]["draws_source"] = "covariance"
+def _add_masses(doc, entry, seed):
+    """Mass blocks from the fit's covariance draws and the manifest parallax (as ``fit``)."""
+    from .masses import masses_for_document
+    blocks = masses_for_document(doc, parallax=entry.parallax_mas, mass_ratio=entry.mass_ratio,
+                                 seed=seed)
     doc["mass"], doc["parallax"] = blocks["mass"], blocks["parallax"]
     doc["warnings"].extend(blocks["warnings"])
 
 
-def _compare(entry, solution, data, check):
+def _add_combined(doc, solution, entry, seed):
+    """Combined visual-spectroscopic solution with the RV log (as ``fit --rv``)."""
+    from .combined import add_to_document, combined_blocks, fit_combined
+    from .spectroscopic import read_velocities
+    combined = fit_combined(solution, read_velocities(entry.rv_log))
+    add_to_document(doc, combined, combined_blocks(combined, parallax=entry.parallax_mas,
+                                                   seed=seed))
+
+
+def _compare(entry, doc, data, check):
+    """Old against new: the new elements are the document's (combined ones with an RV log)."""
+    from .reductions import epoch_unit
+    from .result import elements_from_document
     from .revision import compare_orbits, typical_sigma_arcsec
     usable = data.usable
     new = np.array([r["new"] for r in check.residuals]) & usable
-    errors = {k: v for k, v in solution.errors.items() if v is not None}
-    return compare_orbits(entry.previous, solution.elements,
+    errors = {k: v["error"] for k, v in doc["elements"].items() if v.get("error") is not None}
+    if "T" in errors and epoch_unit(doc["elements"]["T"].get("scale", "besselian")) == "d":
+        errors["T"] /= _JULIAN_YEAR_D
+    return compare_orbits(entry.previous, elements_from_document(doc),
                           start_yr=float(data.epoch_yr[usable].max()),
                           sigma_arcsec=typical_sigma_arcsec(data, new if new.any() else usable),
                           old_errors=entry.previous_errors, new_errors=errors)

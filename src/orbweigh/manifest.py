@@ -15,7 +15,8 @@ last_epoch         epoch of the last measurement the previous orbit used; newer 
 parallax_mas       trigonometric parallax and its error [mas]; both or none
 parallax_err_mas
 q, q_err           mass ratio M2/M1 and its error
-rv_log             radial-velocity log, relative to the manifest's folder like ``log``
+rv_log             radial-velocity log, relative to the manifest's folder like ``log``: the
+                   system gets the combined visual-spectroscopic solution (not with q)
 ra_deg, dec_deg    target coordinates (J2000) [deg] for position-angle precession
 ================== ==========================================================================
 
@@ -271,6 +272,9 @@ def _set_log(entry, row):
 
 def _set_rv_log(entry, row):
     if row.get("rv_log"):
+        if row.get("q"):
+            raise _RowProblem("q", "with rv_log the velocities give K1, K2 and hence q; "
+                              "leave q and q_err empty")
         entry.rv_log = _inside(entry, row, "rv_log")
 
 
