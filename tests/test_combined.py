@@ -235,3 +235,24 @@ def test_cli_bad_velocity_log(tmp_path, synthetic, capsys):
     bad.write_text("epoch,component,rv,sigma_rv\nJ2010.5,3,1.0,0.2\n")
     status, _, err = _run(capsys, folder / "positions.csv", "--rv", bad, "--strict")
     assert status == 2 and "line 2" in err and "component" in err
+
+
+def test_joint_posterior_matches_least_squares(synthetic):
+    # With many data the posterior is nearly Gaussian: its medians and spreads must agree
+    # with the least-squares values and errors (Laplace approximation; common practice).
+    pytest.importorskip("orbweigh.sampling")
+    from orbweigh.combined import sample_combined
+
+    solution, folder = synthetic
+    vs = read_velocities(_write_velocities(folder / "rv_post.csv", 18, 300.0, 40.0))
+    sol = fit_combined(solution, vs)
+    draws, info = sample_combined(sol, walkers=22, steps=300, seed=7)
+    assert info["seed"] == 7 and info["n_draws"] == len(draws) > 100
+    for j, key in enumerate(sol.keys):
+        assert abs(np.median(draws[:, j]) - sol.values[key]) < 0.5 * sol.errors[key], key
+        assert 0.6 < np.std(draws[:, j]) / sol.errors[key] < 1.5, key
+    assert np.all((draws[:, 5] >= 0) & (draws[:, 5] < 360))
+    blocks = combined_blocks(sol, draws=draws, seed=7)
+    assert blocks["mass"]["draws_source"] == "posterior"
+    assert blocks["mass"]["draws"] == len(draws)
+    assert blocks["mass"]["total"]["low95"] < M_TOTAL < blocks["mass"]["total"]["high95"]

@@ -29,6 +29,7 @@ a1 = K1 P sqrt(1 - e^2) / (2 pi sin i).
 """
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -42,8 +43,9 @@ from .spectroscopic import (component_masses_from_orbit, mass_function_msun,
                             radial_velocities, semi_major_axis_au_from_rv)
 
 __all__ = ["PARAMETER_KEYS", "PARAMETER_UNITS", "NODE_DECISIVE_DELTA_CHI2", "JointData",
-           "CombinedSolution", "rv_model", "joint_residuals", "fit_combined", "parameter_draws", "combined_blocks",
-           "add_to_document", "format_combined"]
+           "CombinedSolution", "rv_model", "joint_residuals", "fit_combined", "parameter_draws",
+           "JointPosterior", "sample_combined", "combined_blocks", "add_to_document",
+           "format_combined"]
 
 #: Order of the joint parameters (SB1: the amplitude of the missing component is absent).
 PARAMETER_KEYS = ("P", "T", "e", "a", "i", "Omega", "omega", "gamma", "K1", "K2")
@@ -120,12 +122,16 @@ def rv_model(v, t, component):
 
 
 def joint_residuals(v, data):
-    """Normalised residuals: astrometric tangential, radial, then velocities."""
+    """Normalised residuals: astrometric tangential, radial, then velocities.
+
+    Values may be arrays of shape (n, 1) (n parameter sets): the residuals then have
+    shape (n, 2 n_ast + n_rv).
+    """
     r_theta, r_rho, _, _ = normalised_residuals(
         _orbit_params(v), data.t_ast, data.theta_deg, data.rho_arcsec,
         data.sigma_theta_deg, data.sigma_rho_arcsec)
     r_rv = (data.rv_kms - rv_model(v, data.t_rv, data.component)) / data.sigma_rv_kms
-    return np.concatenate([r_theta, r_rho, r_rv])
+    return np.concatenate([r_theta, r_rho, r_rv], axis=-1)
 
 
 @dataclass
@@ -352,7 +358,7 @@ def _interval(samples, unit):
     return {**s, "error": 0.5 * (s["high"] - s["low"])}
 
 
-def combined_blocks(sol, parallax=None, combine=False, n_draws=4000, seed=1):
+def combined_blocks(sol, parallax=None, combine=False, n_draws=4000, seed=1, draws=None):
     """Orbital parallax, parallax and mass blocks of a combined solution.
 
     Parameters
@@ -369,6 +375,9 @@ def combined_blocks(sol, parallax=None, combine=False, n_draws=4000, seed=1):
     seed : int
         Seed of the parameter draws (``default_rng(seed)``); the trigonometric parallax
         is drawn from ``default_rng(SeedSequence(seed).spawn(1)[0])``.
+    draws : ndarray, optional
+        Posterior draws of ``sol.keys`` (``sample_combined``) to use instead of the
+        covariance draws; ``n_draws`` is then their number.
 
     Returns
     -------
@@ -376,7 +385,7 @@ def combined_blocks(sol, parallax=None, combine=False, n_draws=4000, seed=1):
         Keys "orbital_parallax" (double-lined only), "parallax", "mass" (when masses
         follow), "mass_function" (single-lined), "warnings".
     """
-    if sol.covariance is None:
+    if sol.covariance is None and draws is None:
         return {"warnings": []}
     if combine and (parallax is None or not sol.double_lined):
         raise InputError("--combine-parallax needs a trigonometric parallax (--parallax VALUE "
@@ -386,12 +395,16 @@ def combined_blocks(sol, parallax=None, combine=False, n_draws=4000, seed=1):
         if not (np.isfinite(value) and value > 0 and np.isfinite(error) and error > 0):
             raise InputError(f"the trigonometric parallax must be positive with a positive "
                              f"error to be combined with the orbit; got {value} +/- {error} mas")
-    d = dict(zip(sol.keys, parameter_draws(sol, n_draws, seed).T))
+    source = "covariance" if draws is None else "posterior"
+    if draws is None:
+        draws = parameter_draws(sol, n_draws, seed)
+    n_draws = len(draws)
+    d = dict(zip(sol.keys, np.asarray(draws, float).T))
     trig = None
     if parallax is not None:
         rng = np.random.default_rng(np.random.SeedSequence(seed).spawn(1)[0])
         trig = rng.normal(value, error, n_draws)
-    mass = {"draws": int(n_draws), "seed": int(seed), "draws_source": "covariance"}
+    mass = {"draws": int(n_draws), "seed": int(seed), "draws_source": source}
     if sol.double_lined:
         blocks = _double_lined(d, trig, parallax, combine, mass)
     else:
@@ -471,6 +484,109 @@ def _single_lined(sol, d, trig, parallax, mass):
     return blocks
 
 
+# ------------------------------------------------------------------ joint posterior
+class JointPosterior:
+    """Log-posterior of the joint parameters given positions and velocities.
+
+    Sampled coordinates (``names``): ln P [P in yr], T [Julian yr], e, ln a [a in arcsec],
+    cos i, Omega [deg], omega [deg], gamma [km/s], K1 and/or K2 [km/s].
+
+    Priors: ``PRIORS``. ln L = -chi2/2 of ``joint_residuals``, with every sigma scaled
+    by sqrt(reduced chi2) of the joint fit when that exceeds 1, as for the fit's own errors.
+    """
+
+    E_MAX = 0.99
+    PRIORS = {"P": "log-uniform over the visual fit's period search range",
+              "T": "uniform over one period (density 1/P); reported in the period centred on "
+                   "the best T",
+              "e": "uniform on [0, 0.99)", "a": "log-uniform from 1/100 to 100 times the best a",
+              "i": "uniform in cos i (isotropic orientation)",
+              "Omega": "uniform on the circle; reported in [0, 360) deg",
+              "omega": "uniform on the circle; reported in [0, 360) deg",
+              "gamma": "uniform",
+              "K": "uniform on [0, inf): positive, so the node is not mimicked by a sign change"}
+
+    def __init__(self, sol):
+        self.keys = sol.keys
+        self.names = ("ln_P", "T", "e", "ln_a", "cos_i") + sol.keys[5:]
+        scale = np.sqrt(max(sol.reduced_chi2, 1.0))
+        d = sol.data
+        self.data = dataclasses.replace(
+            d, sigma_theta_deg=d.sigma_theta_deg * scale,
+            sigma_rho_arcsec=d.sigma_rho_arcsec * scale, sigma_rv_kms=d.sigma_rv_kms * scale)
+        self.sigma_scale = float(scale)
+        self.ln_p_range = np.log(sol.visual.statistics["period_range_yr"])
+        self.ln_a_range = np.log(sol.values["a"]) + np.log(100.0) * np.array([-1.0, 1.0])
+        self.t_ref = sol.values["T"]
+
+    def values(self, q):
+        """Joint parameters in ``PARAMETER_UNITS`` from walker coordinates q, (n, ndim)."""
+        q = np.atleast_2d(q)
+        v = dict(zip(self.keys, q.T))
+        v["P"], v["a"] = np.exp(q[:, 0]), np.exp(q[:, 3])
+        v["i"] = np.degrees(np.arccos(np.clip(q[:, 4], -1.0, 1.0)))
+        return v
+
+    def coordinates(self, values):
+        """Walker coordinates of a dict of joint parameters."""
+        q = [values[k] for k in self.keys]
+        q[0], q[3] = np.log(q[0]), np.log(q[3])
+        q[4] = np.cos(np.radians(q[4]))
+        return np.array(q, float)
+
+    def __call__(self, q):
+        q = np.atleast_2d(q)
+        amps = q[:, 8:]
+        inside = ((q[:, 0] >= self.ln_p_range[0]) & (q[:, 0] <= self.ln_p_range[1])
+                  & (q[:, 2] >= 0.0) & (q[:, 2] < self.E_MAX) & (np.abs(q[:, 4]) <= 1.0)
+                  & (q[:, 3] >= self.ln_a_range[0]) & (q[:, 3] <= self.ln_a_range[1])
+                  & np.all(amps >= 0.0, axis=1))
+        out = np.full(len(q), -np.inf)
+        if inside.any():
+            v = {k: x[:, None] for k, x in self.values(q[inside]).items()}
+            r = joint_residuals(v, self.data)
+            out[inside] = -q[inside, 0] - 0.5 * np.einsum("ij,ij->i", r, r)
+        return out
+
+
+def sample_combined(sol, walkers=40, steps=2000, seed=0, progress=False):
+    """Sample the joint posterior (``JointPosterior``) with ``sampling.sample_posterior``.
+
+    Walkers start around the least-squares solution with ball sizes from its errors.
+
+    Returns
+    -------
+    draws : ndarray, shape (n, len(sol.keys))
+        Draws in ``PARAMETER_UNITS`` (T in the period centred on the best T; Omega and
+        omega in [0, 360)), ready for ``combined_blocks``.
+    info : dict
+        Walkers, steps, burn, thin, acceptance, converged, seed, sigma scale, priors and
+        the sampler's warnings, for the result document.
+    """
+    from .sampling import sample_posterior
+
+    if sol.covariance is None:
+        raise InputError("the combined fit has no covariance: cannot size the walkers' start")
+    post = JointPosterior(sol)
+    best = post.coordinates(sol.values)
+    err = np.array([sol.errors[k] for k in sol.keys])
+    scales = err.copy()
+    scales[0], scales[3] = err[0] / sol.values["P"], err[3] / sol.values["a"]
+    scales[4] = np.sin(np.radians(sol.values["i"])) * np.radians(err[4])
+    sample = sample_posterior(post, [best], scales, post.names, walkers=walkers, steps=steps,
+                              seed=seed, progress=progress)
+    v = post.values(sample.draws())
+    v["T"] = post.t_ref + np.mod(v["T"] - post.t_ref + 0.5 * v["P"], v["P"]) - 0.5 * v["P"]
+    v["Omega"], v["omega"] = np.mod(v["Omega"], 360.0), np.mod(v["omega"], 360.0)
+    info = {"walkers": int(walkers), "steps": int(steps), "burn": int(sample.burn),
+            "thin": int(sample.thin), "n_draws": int(len(sample.draws())),
+            "acceptance": float(sample.acceptance), "converged": bool(sample.converged),
+            "seed": int(seed), "sigma_scale": post.sigma_scale,
+            "priors": dict(JointPosterior.PRIORS),
+            "warnings": list(sample.warnings)}
+    return np.column_stack([v[k] for k in sol.keys]), info
+
+
 # ------------------------------------------------------------------- result document
 def _entry(value, error, unit):
     return {"value": float(value), "error": None if error is None else float(error),
@@ -535,12 +651,14 @@ def _update_astrometry(doc, sol):
     return [r for r in rows if r["status"] in ("used", "flipped")]
 
 
-def add_to_document(doc, sol, blocks):
+def add_to_document(doc, sol, blocks, posterior=None):
     """Write a combined solution and its blocks into a visual fit's result document.
 
     The elements (Omega now in [0, 360)), Thiele-Innes constants, covariance, position
     residuals and statistics become those of the joint fit; "gamma", "K1", "K2", "node",
     "combined", "velocities", "rv_residuals" and the blocks of ``combined_blocks`` are added.
+    ``posterior``: (draws, info) of ``sample_combined``, summarised in
+    doc["combined"]["posterior"] (median and 68 % interval of every parameter).
     """
     fitted = _update_astrometry(doc, sol)
     s = doc["statistics"]
@@ -572,6 +690,12 @@ def add_to_document(doc, sol, blocks):
         "visual_chi2": float(sol.visual.chi2), "visual_dof": int(sol.visual.dof),
         "double_lined": sol.double_lined,
         "weighting": "each datum by its own sigma (no relative factor)"}
+    if posterior is not None:
+        draws, info = posterior
+        doc["combined"]["posterior"] = {
+            **info, "parameters": {k: summarise(draws[:, j], PARAMETER_UNITS[k])
+                                   for j, k in enumerate(sol.keys)}}
+        doc["warnings"].extend(f"Joint posterior: {w}" for w in info["warnings"])
     doc["velocities"] = {"source": str(vs.source), "n_input": int(vs.n_lines or len(vs)),
                          "n_used": int(vs.usable.sum()), "n_excluded": int((~vs.usable).sum()),
                          "n_rejected": len(vs.rejected), "epoch_scale": vs.epoch_scale}
@@ -604,6 +728,11 @@ def format_combined(doc):
     out.append(f"  chi2 {s['chi2']:.2f} for {s['dof']} degrees of freedom: astrometry "
                f"{s['chi2_astrometric']:.2f}, velocities {s['chi2_rv']:.2f} "
                f"(rms {s['rms_rv_kms']:.3f} km/s)")
+    post = doc["combined"].get("posterior")
+    if post:
+        out.append(f"  joint posterior: {post['walkers']} walkers x {post['steps']} steps, "
+                   f"{post['n_draws']} draws, acceptance {post['acceptance']:.2f}, "
+                   f"{'converged' if post['converged'] else 'NOT converged'}, seed {post['seed']}")
     if "orbital_parallax" in doc:
         o = doc["orbital_parallax"]
         out.append(f"  orbital parallax {o['value']:.3f} mas, 68% [{o['low']:.3f}, "

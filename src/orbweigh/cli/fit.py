@@ -92,9 +92,14 @@ def _add_combined(doc, solution, velocities, args):
     from ..combined import add_to_document, combined_blocks, fit_combined
 
     combined = fit_combined(solution, velocities)
+    posterior = None
+    if getattr(args, "sample", False):  # the joint posterior instead of covariance draws
+        from ..combined import sample_combined
+        posterior = sample_combined(combined, walkers=args.walkers, steps=args.steps,
+                                    seed=args.seed)
     blocks = combined_blocks(combined, parallax=args.parallax, combine=args.combine_parallax,
-                             seed=args.seed)
-    add_to_document(doc, combined, blocks)
+                             seed=args.seed, draws=None if posterior is None else posterior[0])
+    add_to_document(doc, combined, blocks, posterior)
 
 
 def _add_masses(doc, args):
