@@ -102,6 +102,8 @@ def test_pairs_coordinates_duplicates_and_field_count(folder):
     assert "line 4, column 'id'" in dup.problem and "already used on line 2" in dup.problem
     assert "line 5" in n.problem and "7 fields where the header has 6" in n.problem
     assert (n.ra_deg, n.dec_deg, n.parallax_mas) == (10.0, 20.0, (12.0, 1.0))
+    q = read_manifest(_write(folder, "id,log,q,q_err\nq,a.csv,0.8,0.1\n"))[0]
+    assert "column 'q'" in q.problem and "give parallax_mas" in q.problem
 
 
 def test_velocities_and_mass_ratio_exclude_each_other(folder):

@@ -119,7 +119,8 @@ def process_system(entry, options):
     Returns
     -------
     dict
-        The record: ``id``, ``key``, ``seed``, ``status`` ('done' or 'failed'),
+        The record: ``id``, ``key``, ``line`` and ``manifest_row`` (the row as
+        written), ``seed``, ``status`` ('done' or 'failed'),
         ``error``, ``verdict`` (one of ``revision.VERDICTS``, 'no previous orbit' or
         None), ``revision`` (numbers behind the verdict), ``fitted``, ``fit_note``,
         ``document`` (result document or None), ``comparison``, ``report``
@@ -407,7 +408,8 @@ def _index_html(table, manifest, options):
 def _failed_record(entry, options):
     """Record of a system that cannot even start (its problem is the reason)."""
     return {"id": entry.id, "key": system_key(entry.id), "line": entry.line,
-            "seed": system_seed(options.seed, entry.id), "status": "failed",
+            "manifest_row": dict(entry.fields), "seed": system_seed(options.seed, entry.id),
+            "status": "failed",
             "error": entry.problem, "verdict": None,
             "revision": None, "fitted": False, "fit_note": None, "document": None,
             "comparison": None, "report": None, "seconds": 0.0}

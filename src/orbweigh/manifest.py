@@ -338,6 +338,9 @@ def _set_parallax(entry, row):
 
 def _set_mass_ratio(entry, row):
     entry.mass_ratio = _pair(row, "q", "q_err", "a mass ratio M2/M1")
+    if entry.mass_ratio is not None and not row.get("parallax_mas") and not row.get("rv_log"):
+        raise _RowProblem("q", "a mass ratio splits a total mass, which needs a distance: "
+                          "give parallax_mas and parallax_err_mas too")
 
 
 def _set_coordinates(entry, row):
