@@ -51,7 +51,8 @@ def _residuals(el, rng, scale_factor):
         for _ in range(n):
             theta = float(pred.theta_deg[k] + rng.normal(0, s_theta)) % 360.0
             rho = float(pred.rho_arcsec[k] + rng.normal(0, s_rho * scale_factor))
-            rows.append({"line": line, "epoch": float(besselian[k]),
+            rows.append({"line": line, "epoch": round(float(besselian[k]), 4),
+                         "epoch_text": f"{besselian[k]:.4f}",
                          "epoch_yr": float(epochs[k]), "theta_deg": theta, "rho_arcsec": rho,
                          "sigma_theta_deg": s_theta, "sigma_rho_arcsec": s_rho * scale_factor,
                          "technique": tech, "theta_pred_deg": float(pred.theta_deg[k]),
@@ -146,9 +147,11 @@ def build_document(seed=2024, elements=TRUE_ELEMENTS, n_draws=3000):
            "alternatives": [{"elements": alt, "chi2": stats["chi2"] + 41.5, "delta_chi2": 41.5}],
            "options": {"period_range_yr": [5.0, 200.0], "loss": "linear", "flips": True,
                        "outlier_sigma": 4.0},
-           "warnings": ["Omega and omega are known only up to a common 180 deg shift "
-                        "(no radial velocities); Omega is given in [0, 180) deg.",
-                        "1 measurement was flipped by 180 deg (line 7)."] + masses["warnings"],
+           "warnings": ["1 measurement was flipped by 180 deg (line 7).",
+                        "1 measurement left out as an outlier beyond 4 sigma (line 11)."]
+           + masses["warnings"],
+           "notes": ["Omega and omega are known only up to a common 180 deg shift (no radial "
+                     "velocities); Omega is given in [0, 180) deg."],
            "seed": seed, "version": "0.1.0",
            "parallax": masses["parallax"], "mass": masses["mass"],
            "posterior": {"draws_file": None, "n_draws": n_draws, "sampler": "emcee",

@@ -57,9 +57,11 @@ def measurement_rows(doc):
     get = lambda key: np.array([_float(r.get(key)) for r in rows], float)  # noqa: E731
     status = np.array([r.get("status", "used") for r in rows], dtype=object)
     theta = np.radians(get("theta_deg") + np.where(status == "flipped", 180.0, 0.0))
-    rho, theta_p, rho_p = get("rho_arcsec"), np.radians(get("theta_pred_deg")), get("rho_pred_arcsec")
+    rho, theta_p = get("rho_arcsec"), np.radians(get("theta_pred_deg"))
+    rho_p = get("rho_pred_arcsec")
+    technique = [str(r.get("technique") or "unknown") for r in rows]
     return {"line": np.array([r.get("line") for r in rows]), "epoch_yr": get("epoch_yr"),
-            "technique": np.array([str(r.get("technique") or "unknown") for r in rows], dtype=object),
+            "technique": np.array(technique, dtype=object),
             "status": status,
             "x_obs": rho * np.cos(theta), "y_obs": rho * np.sin(theta),
             "x_pred": rho_p * np.cos(theta_p), "y_pred": rho_p * np.sin(theta_p),
@@ -116,6 +118,15 @@ def _legend_handles(rows, styles):
     return handles
 
 
+def _visible_proxy(handle):
+    """A legend stand-in for the faint band of orbits, which would be invisible at its size."""
+    from matplotlib.collections import LineCollection
+    from matplotlib.lines import Line2D
+    if not isinstance(handle, LineCollection):
+        return handle
+    return Line2D([], [], color=style.BAND, lw=2.0, alpha=0.6, label=handle.get_label())
+
+
 def _draw_compass(ax):
     # N up and E left, drawn in the lower right corner in axes coordinates.
     origin, length = (0.93, 0.07), 0.10
@@ -162,8 +173,10 @@ def plot_orbit(doc, ax=None, n_band=80, seed=None):
         if draws is not None and len(draws):
             bx, by = _ellipses(draws)
             lines = np.stack([by * scale, bx * scale], axis=-1)
+            source = ("posterior orbits" if (doc.get("posterior") or {}).get("draws_file")
+                      else "orbits from the covariance")
             ax.add_collection(LineCollection(lines, colors=style.BAND, linewidths=0.5,
-                                             alpha=0.15, zorder=1, label="posterior orbits",
+                                             alpha=0.15, zorder=1, label=source,
                                              gid="posterior band"))
         reach = 1.08 * float(np.max(np.hypot(x, y)))
         node = np.radians(best.node_deg)
@@ -177,6 +190,7 @@ def plot_orbit(doc, ax=None, n_band=80, seed=None):
         # Eccentric anomaly grows with time, so the arrow E = pi -> pi + 0.3 shows the motion.
         k = np.searchsorted(_E_GRID, np.pi)
         ax.annotate("", xy=(y[k + 17], x[k + 17]), xytext=(y[k], x[k]), zorder=5,
+                    gid="direction of motion",
                     arrowprops={"arrowstyle": "-|>,head_length=0.6,head_width=0.3",
                                 "color": style.ORBIT, "lw": 1.4})
         rows = measurement_rows(doc)
@@ -187,11 +201,11 @@ def plot_orbit(doc, ax=None, n_band=80, seed=None):
         _draw_compass(ax)
         ax.set_aspect("equal", adjustable="datalim")
         ax.autoscale_view()
-        ax.margins(0.06)
+        ax.margins(0.08)
         ax.invert_xaxis()  # East to the left
         ax.set_xlabel(f"East offset, $\\rho\\,\\sin\\theta$ [{unit}]")
         ax.set_ylabel(f"North offset, $\\rho\\,\\cos\\theta$ [{unit}]")
-        geometry = ax.get_legend_handles_labels()[0]
+        geometry = [_visible_proxy(h) for h in ax.get_legend_handles_labels()[0]]
         ax.legend(handles=geometry + _legend_handles(rows, styles), loc="upper center",
                   bbox_to_anchor=(0.5, -0.16), ncol=2, handlelength=1.8, columnspacing=1.0)
     return ax
@@ -253,6 +267,8 @@ def _corner(data, labels, truths, fig):
                       plot_datapoints=False, fill_contours=True, levels=(0.393, 0.865),
                       smooth=1.0, bins=30, max_n_ticks=4, labelpad=0.12,
                       label_kwargs={"fontsize": 8}, hist_kwargs={"color": style.ORBIT})
+        # corner sizes its margins for its own (larger) default figure; ours is narrower.
+        fig.subplots_adjust(left=0.12, bottom=0.12, right=0.98, top=0.98)
         for ax in fig.axes:
             ax.tick_params(labelsize=6.5)
     return fig
@@ -323,7 +339,8 @@ def plot_mass_histogram(masses, ax=None):
                    gid="interval 95")
         ax.axvspan(p16, p84, color=style.BAND, alpha=0.45, lw=0, label="68 % interval",
                    gid="interval 68")
-        ax.hist(m, bins=np.linspace(lo, hi, 61), histtype="step", color=style.ORBIT, lw=0.9)
+        bins = np.histogram_bin_edges(m, bins="auto", range=(lo, hi))  # Freedman-Diaconis/Sturges
+        ax.hist(m, bins=bins, histtype="step", color=style.ORBIT, lw=0.9)
         ax.axvline(p50, color=style.PERIASTRON, lw=1.0, label="median", gid="median")
         ax.set_xlim(lo, hi)
         ax.set_xlabel(r"Total mass $\mathcal{M}$ [M$_\odot$]")

@@ -155,6 +155,14 @@ def _warnings_section(doc):
             f"<ul>{items}</ul></section>")
 
 
+def _notes_section(doc):
+    notes = doc.get("notes") or []
+    if not notes:
+        return ""
+    items = "".join(f"<li>{escape(str(n))}</li>" for n in notes)
+    return f"<section id='notes'><h2>Notes</h2><ul>{items}</ul></section>"
+
+
 def _residual_rows(doc):
     rows, classes = [], []
     for r in doc.get("residuals", []):
@@ -224,7 +232,8 @@ def _alternatives_section(doc):
     rows = []
     for alt in alternatives:
         el = alt.get("elements", {})
-        vals = [el[k].get("value") if isinstance(el.get(k), dict) else el.get(k) for k in ELEMENT_KEYS]
+        vals = [el[k].get("value") if isinstance(el.get(k), dict) else el.get(k)
+                for k in ELEMENT_KEYS]
         rows.append([tb.format_number(v) for v in vals]
                     + [tb.format_number(alt.get("chi2")), tb.format_number(alt.get("delta_chi2"))])
     return ("<h2 id='alternatives'>Alternative solutions</h2>"
@@ -262,7 +271,7 @@ def render_html(doc, figures, seed, report_version):
             f"orbweigh {escape(str(doc.get('version', '?')))} \u00b7 fit seed "
             f"{escape(str(doc.get('seed', 'not recorded')))} \u00b7 figure seed {seed} \u00b7 "
             f"report by orbweigh {escape(report_version)}</p>",
-            _warnings_section(doc), figs.get("orbit", ""), _elements_section(doc),
+            _warnings_section(doc), _notes_section(doc), figs.get("orbit", ""), _elements_section(doc),
             _mass_section(doc), _alternatives_section(doc), figs.get("residuals", ""),
             _residual_section(doc), _summary_section(doc), _method_section(doc)]
     if posterior_figs:

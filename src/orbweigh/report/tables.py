@@ -12,7 +12,8 @@ from ..elements import ELEMENT_KEYS
 from ..reductions import epoch_unit
 from ..result import epoch_scale_of
 
-__all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "THIELE_INNES_KEYS", "MASS_KEYS", "RESIDUAL_COLUMNS", "decimals_for",
+__all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "THIELE_INNES_KEYS", "MASS_KEYS",
+           "RESIDUAL_COLUMNS", "decimals_for",
            "format_value_error", "format_interval", "format_number", "format_epoch",
            "elements_latex", "residuals_table"]
 
@@ -27,7 +28,8 @@ ROUNDING_RULE = (
 ELEMENT_NAMES = {"P": ("Period", r"$P$", "P"), "T": ("Epoch of periastron", r"$T$", "T"),
                  "e": ("Eccentricity", r"$e$", "e"), "a": ("Semi-major axis", r"$a$", "a"),
                  "i": ("Inclination", r"$i$", "i"),
-                 "Omega": ("Position angle of the node", r"$\Omega$", "\N{GREEK CAPITAL LETTER OMEGA}"),
+                 "Omega": ("Position angle of the node", r"$\Omega$",
+                           "\N{GREEK CAPITAL LETTER OMEGA}"),
                  "omega": ("Argument of periastron", r"$\omega$", "\N{GREEK SMALL LETTER OMEGA}")}
 THIELE_INNES_KEYS = ("A", "B", "F", "G")
 MASS_KEYS = ("total", "primary", "secondary")
@@ -178,7 +180,8 @@ def _latex_masses(doc):
 def residuals_table(doc):
     """The residual rows as an astropy Table with units (rejected rows masked).
 
-    Columns follow ``RESIDUAL_COLUMNS`` (the document's keys); ``epoch`` is in the
+    Columns follow ``RESIDUAL_COLUMNS`` (the document's keys; plus ``epoch_text``, the
+    epoch as written in the log, when the rows carry it); ``epoch`` is in the
     document's epoch scale (unit yr or d), ``epoch_yr`` in Julian years. Values are the
     JSON's, unrounded.
     """
@@ -188,10 +191,13 @@ def residuals_table(doc):
     table = Table(meta={"source": doc.get("source", ""), "schema": doc.get("schema", ""),
                         "epoch_scale": scale, "seed": doc.get("seed"),
                         "version": doc.get("version", "")})
-    for key, unit in RESIDUAL_COLUMNS:
+    columns = list(RESIDUAL_COLUMNS)
+    if any("epoch_text" in r for r in rows):  # the epoch exactly as the log wrote it
+        columns.insert(2, ("epoch_text", None))
+    for key, unit in columns:
         values = [r.get(key) for r in rows]
         missing = np.array([v is None for v in values], bool)
-        if key in ("technique", "status", "reason", "note"):
+        if key in ("epoch_text", "technique", "status", "reason", "note"):
             data = np.array(["" if v is None else str(v) for v in values], dtype=str)
         elif key == "line":
             data = np.array([0 if v is None else int(v) for v in values], dtype=int)
