@@ -26,20 +26,29 @@ th{background:#eef3f7} td.num{text-align:right;font-variant-numeric:tabular-nums
 .warnings{background:#fff4e0;border:2px solid #e07b39;border-radius:6px;padding:.5rem 1rem}
 .warnings h2{border:none;margin-top:.3rem;color:#a04a12}
 figure{margin:1rem 0} figure img{max-width:100%;height:auto;border:1px solid #e3e9ef}
-figcaption{font-size:.85rem;color:#5a6b7b} .scroll{overflow-x:auto}
+figcaption{font-size:.85rem;color:#5a6b7b} .scroll{overflow-x:auto} .scroll td{white-space:nowrap}
 tr.status-flipped td{background:#f1f1f1} tr.status-outlier td{background:#fdecea}
 tr.status-excluded td,tr.status-rejected td{color:#8a8a8a}
 footer{margin-top:2rem;font-size:.8rem;color:#5a6b7b}
 """
 
 
+def _is_number(text):
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
 def _table(header, rows, row_classes=None, numeric=()):
-    """HTML table; ``numeric`` lists the column indices aligned right."""
+    """HTML table; numbers in the columns listed in ``numeric`` are aligned right."""
     out = ["<table>", "<thead><tr>" + "".join(f"<th>{escape(h)}</th>" for h in header)
            + "</tr></thead>", "<tbody>"]
     for k, row in enumerate(rows):
         cls = f' class="{row_classes[k]}"' if row_classes else ""
-        cells = "".join(f'<td class="num">{escape(str(c))}</td>' if j in numeric
+        cells = "".join(f'<td class="num">{escape(str(c))}</td>'
+                        if j in numeric and _is_number(str(c))
                         else f"<td>{escape(str(c))}</td>" for j, c in enumerate(row))
         out.append(f"<tr{cls}>{cells}</tr>")
     return "\n".join(out + ["</tbody></table>"])
@@ -271,7 +280,8 @@ def render_html(doc, figures, seed, report_version):
             f"orbweigh {escape(str(doc.get('version', '?')))} \u00b7 fit seed "
             f"{escape(str(doc.get('seed', 'not recorded')))} \u00b7 figure seed {seed} \u00b7 "
             f"report by orbweigh {escape(report_version)}</p>",
-            _warnings_section(doc), _notes_section(doc), figs.get("orbit", ""), _elements_section(doc),
+            _warnings_section(doc), _notes_section(doc), figs.get("orbit", ""),
+            _elements_section(doc),
             _mass_section(doc), _alternatives_section(doc), figs.get("residuals", ""),
             _residual_section(doc), _summary_section(doc), _method_section(doc)]
     if posterior_figs:
