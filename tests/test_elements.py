@@ -64,9 +64,6 @@ def test_round_trip_campbell_thiele_innes(a, i, node, omega):
     assert_round_trip(a, i, node, omega, i_tol=1e-9, node_tol=1e-9, a_rtol=1e-12)
 
 
-@pytest.mark.xfail(strict=True, reason="campbell_from_thiele_innes: a and i from "
-                   "a^2 = k + sqrt(k^2 - j^2) lose ~half the digits near i = 0 or 180 deg "
-                   "(reported; the sums A+-G, B-+F give a(1 +- cos i) directly)")
 @settings(max_examples=300, deadline=None)
 @given(semi_axes, st.floats(math.radians(0.01), math.radians(179.99)), angles, angles)
 def test_round_trip_at_floating_point_limit(a, i, node, omega):
@@ -90,8 +87,6 @@ def test_round_trip_thiele_innes_campbell(abfg):
     assert np.allclose(back, abfg, rtol=0, atol=1e-7 * scale)
 
 
-@pytest.mark.xfail(strict=True, reason="same precision loss as "
-                   "test_round_trip_at_floating_point_limit (reported)")
 def test_round_trip_thiele_innes_campbell_exact():
     abfg = [0.0, 1.75, 1.75, 5.960464477539063e-08]   # found by hypothesis: i ~ 180 deg
     back = thiele_innes_from_campbell(*campbell_from_thiele_innes(*abfg))
@@ -115,8 +110,6 @@ def test_degenerate_inclination(i_deg, a, node, omega, shift):
     assert abs(a2 / a - 1.0) < 1e-7 and abs(i2 - i) < 1e-3
 
 
-@pytest.mark.xfail(strict=True, reason="same precision loss as "
-                   "test_round_trip_at_floating_point_limit (reported)")
 def test_degenerate_inclination_a_and_i_exact():
     rng = np.random.default_rng(7)  # seed 7
     a = 10 ** rng.uniform(-3, 2, 1000)
@@ -149,9 +142,6 @@ def test_normalise_node(node, omega):
     assert_same_orientation(n2, w2, n_ref, w_ref, 1e-12)
 
 
-@pytest.mark.xfail(strict=True, reason="normalise_node: rounding can return Omega = pi, "
-                   "omega = 2 pi or Omega = -5e-324, outside the documented half-open "
-                   "ranges (reported)")
 def test_half_open_ranges_at_rounding_edges():
     # Cases found by hypothesis above.
     _, w = normalise_node(0.0, -5.499745249025908e-95)

@@ -120,14 +120,17 @@ def campbell_from_thiele_innes(A, B, F, G):
     -----
     A + G = a(1 + cos i) cos(w + W),  B - F = a(1 + cos i) sin(w + W),
     A - G = a(1 - cos i) cos(w - W), -B - F = a(1 - cos i) sin(w - W),
-    so both sums come from atan2 without quadrant guessing. With
-    k = (A^2 + B^2 + F^2 + G^2)/2 and j = AG - BF = a^2 cos i:  a^2 = k + sqrt(k^2 - j^2).
+    so both sums come from atan2 without quadrant guessing, and with
+    p = a(1 + cos i), q = a(1 - cos i) the hypotenuses of those pairs:
+    a = (p + q)/2 and tan(i/2) = sqrt(q/p).
     """
     A, B, F, G = (np.asarray(v, float) for v in (A, B, F, G))
-    k = 0.5 * (A**2 + B**2 + F**2 + G**2)
-    j = A * G - B * F
-    a = np.sqrt(k + np.sqrt(np.maximum(k**2 - j**2, 0.0)))
-    i = np.arccos(np.clip(j / a**2, -1.0, 1.0))
+    # p = a(1 + cos i) and q = a(1 - cos i) from the same sums as the angles: no
+    # cancellation near face-on orbits, unlike a^2 = k + sqrt(k^2 - j^2).
+    p = np.hypot(A + G, B - F)
+    q = np.hypot(A - G, B + F)
+    a = 0.5 * (p + q)
+    i = 2.0 * np.arctan2(np.sqrt(q), np.sqrt(p))
     w_plus = np.arctan2(B - F, A + G)
     w_minus = np.arctan2(-B - F, A - G)
     node, omega = normalise_node(0.5 * (w_plus - w_minus), 0.5 * (w_plus + w_minus))
@@ -140,5 +143,10 @@ def normalise_node(node, omega):
     The apparent orbit is unchanged by the common shift; omega is returned in [0, 2 pi).
     """
     node = np.asarray(node, float)
+    omega = np.asarray(omega, float)
     shift = np.floor(node / np.pi) * np.pi
-    return node - shift, np.mod(np.asarray(omega, float) - shift, 2.0 * np.pi)
+    node, omega = node - shift, omega - shift
+    wrap = node >= np.pi                       # rounding can land exactly on pi
+    node = np.maximum(np.where(wrap, node - np.pi, node), 0.0)
+    omega = np.mod(np.where(wrap, omega - np.pi, omega), 2.0 * np.pi)
+    return node, np.where(omega >= 2.0 * np.pi, 0.0, omega)

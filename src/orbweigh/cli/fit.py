@@ -39,6 +39,8 @@ def add_arguments(parser):
                         help="write the result document to PATH ('-' for standard output)")
     parser.add_argument("--out", metavar="DIR",
                         help="write result.json (and any draws) into DIR")
+    parser.add_argument("--report", metavar="DIR",
+                        help="also write the HTML report, figures and tables into DIR")
 
 
 def run(args):
@@ -67,6 +69,14 @@ def run(args):
                                            "warnings": doc["mass"].get("warnings", [])})
     print(text, file=sys.stderr if args.json == "-" else sys.stdout)
     _write_outputs(doc, args)
+    if args.report:
+        from ..report import write_report
+        saved = Path(args.out) / "result.json" if args.out else args.json
+        if saved and saved != "-":   # saved draws are found relative to the document
+            doc = {**doc, "_path": str(saved)}
+        written = write_report(doc, args.report)
+        print(f"report: {Path(args.report) / 'report.html'} ({len(written)} files)",
+              file=sys.stderr if args.json == "-" else sys.stdout)
     return 0
 
 
