@@ -234,3 +234,16 @@ def test_command_line(catalogue, tmp_path, capsys):
     assert main(["batch", str(catalogue), "--out", str(out), "--workers", "2",
                  "--scheduler", "tcp://127.0.0.1:1"]) == 2
     assert "either --workers" in capsys.readouterr().err
+
+
+def test_a_lost_worker_fails_only_its_system(catalogue):
+    from concurrent.futures import Future
+
+    from orbweigh.batch import _collect
+    future = Future()
+    future.set_exception(MemoryError("worker ran out of memory"))
+    entry = read_manifest(catalogue)[0]
+    record = _collect(future, entry, BatchOptions(seed=7))
+    assert record["status"] == "failed" and record["id"] == "consistent"
+    assert record["error"] == "worker: MemoryError: worker ran out of memory"
+    assert record["seed"] == system_seed(7, "consistent")

@@ -409,10 +409,19 @@ def _failed_record(entry, options):
     """Record of a system that cannot even start (its problem is the reason)."""
     return {"id": entry.id, "key": system_key(entry.id), "line": entry.line,
             "manifest_row": dict(entry.fields), "seed": system_seed(options.seed, entry.id),
-            "status": "failed",
-            "error": entry.problem, "verdict": None,
-            "revision": None, "fitted": False, "fit_note": None, "document": None,
-            "comparison": None, "report": None, "seconds": 0.0}
+            "status": "failed", "error": entry.problem, "verdict": None, "revision": None,
+            "fitted": False, "fit_note": None, "document": None, "comparison": None,
+            "report": None, "seconds": 0.0}
+
+
+def _collect(future, entry, options):
+    """A finished future's record; a lost worker fails only its system."""
+    try:
+        return future.result()
+    except Exception as exc:  # worker killed, out of memory, cluster gone: record why
+        record = _failed_record(entry, options)
+        record["error"] = f"worker: {type(exc).__name__}: {exc}"
+        return record
 
 
 def _run_local(entries, options, workers):
@@ -427,7 +436,8 @@ def _run_local(entries, options, workers):
     with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("spawn")) as pool:
         futures = {pool.submit(process_system, e, options): k for k, e in enumerate(entries)}
         for future in as_completed(futures):
-            yield futures[future], future.result()
+            k = futures[future]
+            yield k, _collect(future, entries[k], options)
 
 
 def _run_dask(entries, options, address):
@@ -442,7 +452,8 @@ def _run_dask(entries, options, address):
         futures = {client.submit(process_system, e, options, pure=False): k
                    for k, e in enumerate(entries)}
         for future in as_completed(futures):
-            yield futures[future], future.result()
+            k = futures[future]
+            yield k, _collect(future, entries[k], options)
 
 
 def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=False,
