@@ -125,6 +125,7 @@ def test_summary_order_files_and_mass(full_run):
     index = (out / "index.html").read_text()
     assert f'href="systems/{system_key("contradicted")}/result.json"' in index
     assert index.index(">contradicted<") < index.index(">consistent<")
+    assert f'href="systems/{system_key("up")}/batch.json"' in index  # failed: its record
     # Third law, a = 0.5", parallax 20 mas -> 25 au; (25)^3 / 12^2 = 108.5 Msun
     # (DESIGN.md, solar units); the fitted a and P scatter by a few per mille.
     assert rows["consistent"]["mass_msun"] == pytest.approx(25.0**3 / 12.0**2, rel=0.05)
@@ -228,7 +229,7 @@ def test_command_line(catalogue, tmp_path, capsys):
     key = system_key("contradicted")
     assert "Apparent orbit" in (out / "systems" / key / "report.html").read_text()
     assert f'href="systems/{key}/report.html"' in (out / "index.html").read_text()
-    assert Table.read(out / "summary.ecsv")["report"][0] == f"systems/{key}/report.html"
+    assert Table.read(out / "summary.ecsv")["link"][0] == f"systems/{key}/report.html"
     assert main(["batch", str(tmp_path / "none.csv"), "--out", str(out)]) == 2
     assert "cannot read the manifest" in capsys.readouterr().err
     assert main(["batch", str(catalogue), "--out", str(out), "--workers", "2",

@@ -290,7 +290,7 @@ _SUMMARY_COLUMNS = (
     ("max_separation_arcsec", float, "arcsec"), ("max_separation_sigma", float, ""),
     ("mass_msun", float, "solMass"), ("mass_low_msun", float, "solMass"),
     ("mass_high_msun", float, "solMass"),
-    ("seed", int, ""), ("report", str, ""), ("error", str, ""))
+    ("seed", int, ""), ("link", str, ""), ("reason", str, ""), ("error", str, ""))
 
 
 def _summary_row(record):
@@ -321,7 +321,8 @@ def _summary_row(record):
     for key, name in (("value", "mass_msun"), ("low", "mass_low_msun"),
                       ("high", "mass_high_msun")):
         row[name] = nan if total.get(key) is None else float(total[key])
-    row["report"] = ""
+    row["link"] = ""
+    row["reason"] = rev.get("reason", "")
     return row
 
 
@@ -340,8 +341,9 @@ def _summary_table(records):
     for rank, rec in enumerate(sorted(records, key=lambda r: _urgency(r["summary"])), 1):
         row = dict(rec["summary"], rank=rank)
         rows.append(row)
-        link = next((f for f in ("report.html", "result.json") if f in rec["files"]), None)
-        row["report"] = f"systems/{rec['key']}/{link}" if link else ""
+        link = next((f for f in ("report.html", "result.json") if f in rec["files"]),
+                    "batch.json")
+        row["link"] = f"systems/{rec['key']}/{link}"
     table = Table(rows=[[row[name] for name, _, _ in _SUMMARY_COLUMNS] for row in rows],
                   names=[n for n, _, _ in _SUMMARY_COLUMNS],
                   dtype=[t for _, t, _ in _SUMMARY_COLUMNS]) if rows else Table()
@@ -380,10 +382,11 @@ def _index_html(table, manifest, options):
     lines = []
     for row in table:
         name = escape(row["id"])
-        if row["report"]:
-            name = f'<a href="{escape(row["report"])}">{name}</a>'
+        name = f'<a href="{escape(row["link"])}">{name}</a>'
+        verdict = (f'<span title="{escape(row["reason"])}">'
+                   f'{escape(row["verdict"] or row["status"])}</span>')
         lines.append("<tr>" + "".join(f"<td>{c}</td>" for c in (
-            row["rank"], name, escape(row["verdict"] or row["status"]), row["n_new"] or "",
+            row["rank"], name, verdict, row["n_new"] or "",
             cell(row, "reduced_chi2_new", "{:.2f}"), cell(row, "p_value_inflated", "{:.2g}"),
             cell(row, "P", "{:.4g}"), cell(row, "e", "{:.3f}"), cell(row, "a", "{:.4g}"),
             cell(row, "max_element_change_sigma", "{:.1f}"),
@@ -533,5 +536,6 @@ def _announce(bar, record, resumed=False):
         if record["error"]:
             what += f"; FAILED: {record['error']}"
         tail = " (done before, inputs unchanged)" if resumed else f" ({record['seconds']:.1f} s)"
-        bar.write(f"[{bar.n + 1}/{bar.total}] {record['id']}: {what.lstrip('; ')}{tail}", file=sys.stdout)
+        bar.write(f"[{bar.n + 1}/{bar.total}] {record['id']}: {what.lstrip('; ')}{tail}",
+                  file=sys.stdout)
     bar.update(1)
