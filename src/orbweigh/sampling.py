@@ -19,9 +19,16 @@ Priors of the astrometric posterior (walker coordinates in brackets):
 * a log-uniform from 1/100 to 100 times the fit's a [ln a]: scale-free, so the prior
   favours no mass scale (M goes as a^3); the bounds only make it proper;
 * cos i uniform on [-1, 1] (isotropic orientation of the orbit) [cos i];
-* Omega and omega uniform [rad]: the likelihood is periodic in them and in T, so the
-  walkers move freely across every seam; drawn values are normalised to Omega in
-  [0, 180) deg and omega in [0, 360) deg (the node ambiguity without radial velocities).
+* Omega and omega uniform [rad]; drawn values are normalised to Omega in [0, 180) deg
+  and omega in [0, 360) deg (the node ambiguity without radial velocities).
+
+The likelihood is periodic in T (period P), Omega and omega (2 pi). The walkers move in
+a window of two periods centred on the fit's values (T within +-P, the angles within
++-2 pi), where the prior is uniform: a mode near a seam of the reported ranges lies whole
+inside the window, so walkers cross the seam instead of being stopped by it, and after
+mapping into one period the prior is exactly uniform. The window's walls keep the
+ensemble from spreading without bound along a direction the data leave free (Omega -
+omega of a face-on orbit, every angle under a flat likelihood), which would stall it.
 """
 from __future__ import annotations
 
@@ -299,7 +306,10 @@ class AstrometricPosterior:
     a_range : (float, float)
         Bounds of the log-uniform a prior [arcsec].
     t_ref : float
-        Centre of the period in which drawn T are reported [Julian yr].
+        Centre of the window of T and of the period in which drawn T are reported
+        [Julian yr].
+    angle_ref : (float, float)
+        Centres of the windows of Omega and omega [rad].
     sigma_scale : float
         Factor applied to the measurement sigmas: sqrt(reduced chi2) of the fit when that
         exceeds 1, as for the fit's own errors; else 1.
@@ -323,6 +333,7 @@ class AstrometricPosterior:
     period_range: tuple
     a_range: tuple
     t_ref: float
+    angle_ref: tuple = (0.0, 0.0)
     sigma_scale: float = 1.0
 
     @classmethod
@@ -351,7 +362,9 @@ class AstrometricPosterior:
                    inv_sigma_rho=1.0 / (scale * col["sigma_rho_arcsec"]),
                    period_range=tuple(float(p) for p in doc["options"]["period_range_yr"]),
                    a_range=(best.a_arcsec / _A_PRIOR_FACTOR, best.a_arcsec * _A_PRIOR_FACTOR),
-                   t_ref=best.periastron_yr, sigma_scale=scale)
+                   t_ref=best.periastron_yr,
+                   angle_ref=(math.radians(best.node_deg), math.radians(best.omega_deg)),
+                   sigma_scale=scale)
 
     def priors(self):
         """The priors in words, keyed by element."""
@@ -375,7 +388,10 @@ class AstrometricPosterior:
         inside = ((ln_p >= math.log(self.period_range[0]))
                   & (ln_p <= math.log(self.period_range[1]))
                   & (e >= 0.0) & (e < E_MAX) & (np.abs(cos_i) <= 1.0)
-                  & (ln_a >= math.log(self.a_range[0])) & (ln_a <= math.log(self.a_range[1])))
+                  & (ln_a >= math.log(self.a_range[0])) & (ln_a <= math.log(self.a_range[1]))
+                  & (np.abs(q[:, 1] - self.t_ref) < np.exp(ln_p))          # windows of two
+                  & (np.abs(q[:, 5] - self.angle_ref[0]) < 2.0 * np.pi)     # periods
+                  & (np.abs(q[:, 6] - self.angle_ref[1]) < 2.0 * np.pi))
         return np.where(inside, -ln_p, -np.inf)
 
     def log_likelihood(self, q):
@@ -407,10 +423,15 @@ class AstrometricPosterior:
         return out
 
     def coordinates(self, elements):
-        """Walker coordinates of a ``CampbellElements``."""
-        return np.array([math.log(elements.period_yr), elements.periastron_yr, elements.e,
-                         math.log(elements.a_arcsec), math.cos(math.radians(elements.i_deg)),
-                         math.radians(elements.node_deg), math.radians(elements.omega_deg)])
+        """Walker coordinates of a ``CampbellElements``, T and the angles moved by whole
+        periods to the middle of their windows."""
+        period = elements.period_yr
+        t_peri = self.t_ref + math.remainder(elements.periastron_yr - self.t_ref, period)
+        node, omega = (ref + math.remainder(math.radians(angle) - ref, 2.0 * math.pi)
+                       for ref, angle in zip(self.angle_ref,
+                                             (elements.node_deg, elements.omega_deg)))
+        return np.array([math.log(period), t_peri, elements.e, math.log(elements.a_arcsec),
+                         math.cos(math.radians(elements.i_deg)), node, omega])
 
     def elements(self, q):
         """Element draws (P, T, e, a, i, Omega, omega) [yr, Julian yr, -, arcsec, deg x3].

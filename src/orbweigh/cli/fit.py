@@ -2,6 +2,7 @@
 from __future__ import annotations
 
 import json
+import os
 import sys
 from pathlib import Path
 
@@ -39,6 +40,7 @@ def add_arguments(parser):
                         help="write the result document to PATH ('-' for standard output)")
     parser.add_argument("--out", metavar="DIR",
                         help="write result.json (and any draws) into DIR")
+    _add_sampling_arguments(parser)
     parser.add_argument("--report", metavar="DIR",
                         help="also write the HTML report, figures and tables into DIR")
 
@@ -48,6 +50,7 @@ def run(args):
     from ..summary import format_result
 
     check_mass_arguments(args)
+    _check_sampling_arguments(args)
     velocities = _read_velocities(args)  # before the fit: a bad log fails fast
     data = load_log(args)
     options = FitOptions(period_range=tuple(args.period_range) if args.period_range else None,
@@ -55,11 +58,16 @@ def run(args):
                          outlier_sigma=args.outlier_sigma, seed=args.seed)
     solution = fit_orbit(data, options)
     doc = solution.to_document()
+    if args.sample and not args.rv:   # with --rv the joint posterior is sampled instead
+        _add_posterior(doc, args)
     if args.rv:
         _add_combined(doc, solution, velocities, args)
     elif args.parallax is not None or args.magnitudes is not None:
         _add_masses(doc, args)
     text = format_result(doc)
+    if "posterior" in doc:
+        from ..sampling import format_posterior
+        text += "\n" + format_posterior(doc["posterior"])
     if "node" in doc:
         from ..combined import format_combined
         text += "\n" + format_combined(doc)
@@ -123,18 +131,91 @@ def _add_masses(doc, args):
 
 
 def _write_outputs(doc, args):
-    payload = json.dumps(doc, indent=2) + "\n"
     if args.json == "-":
-        sys.stdout.write(payload)
+        sys.stdout.write(_payload(doc, Path(args.out) / "result.json" if args.out else None))
     elif args.json:
-        _atomic_write(Path(args.json), payload)
+        _atomic_write(Path(args.json), _payload(doc, Path(args.json)))
     if args.out:
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
-        _atomic_write(out / "result.json", payload)
+        _atomic_write(out / "result.json", _payload(doc, out / "result.json"))
+
+
+def _payload(doc, where):
+    """The document as JSON text; a draws file is named relative to ``where``'s folder."""
+    out = {k: v for k, v in doc.items() if k != "_path"}
+    if (out.get("posterior") or {}).get("draws_file") and where is not None:
+        draws = Path(doc["_path"]).parent / out["posterior"]["draws_file"]
+        out["posterior"] = {**out["posterior"],
+                            "draws_file": os.path.relpath(draws, where.parent)}
+    return json.dumps(out, indent=2) + "\n"
 
 
 def _atomic_write(path, text):
     tmp = path.with_name(path.name + ".tmp")
     tmp.write_text(text)
     tmp.replace(path)
+
+
+# ------------------------------------------------------------------ posterior sampling
+def _add_sampling_arguments(parser):
+    from ..sampling import DEFAULT_STEPS, DEFAULT_WALKERS
+
+    parser.add_argument("--sample", action="store_true",
+                        help="sample the posterior of the elements (emcee) and save the draws "
+                             "beside the result (DIR/draws.ecsv with --out, else "
+                             "<stem>.draws.ecsv beside --json PATH); masses then come from "
+                             "the draws")
+    parser.add_argument("--walkers", type=int, metavar="N",
+                        help=f"walkers of the ensemble (default {DEFAULT_WALKERS})")
+    parser.add_argument("--steps", type=int, metavar="N",
+                        help=f"steps of every walker (default {DEFAULT_STEPS})")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+
+
+def _check_sampling_arguments(args):
+    """Refuse sampling options that cannot work, before the (slow) fit."""
+    from ..errors import InputError
+    from ..sampling import DEFAULT_STEPS, DEFAULT_WALKERS
+
+    if not args.sample:
+        if args.walkers is not None or args.steps is not None:
+            raise InputError("--walkers and --steps set up the posterior sampling; add "
+                             "--sample, or drop them")
+        return
+    args.walkers = DEFAULT_WALKERS if args.walkers is None else args.walkers
+    args.steps = DEFAULT_STEPS if args.steps is None else args.steps
+    if args.walkers < 14:
+        raise InputError(f"--walkers must be at least 14 (twice the seven elements), "
+                         f"got {args.walkers}")
+    if args.steps < 2:
+        raise InputError(f"--steps must be at least 2, got {args.steps}")
+    if not args.rv and args.out is None and args.json in (None, "-"):
+        raise InputError("--sample saves its draws in a file beside the result document: "
+                         "give --out DIR (draws in DIR/draws.ecsv), or --json PATH (draws in "
+                         "<stem>.draws.ecsv beside PATH)")
+
+
+def _add_posterior(doc, args):
+    """Sample, save the draws beside the result, and point the document at them.
+
+    doc["_path"] is the result's location, so that the masses read the draws (it is not
+    written out).
+    """
+    from ..errors import FitError
+    from ..sampling import attach_posterior, posterior_block, sample_document, write_draws
+
+    if args.out:
+        where, draws = Path(args.out) / "result.json", Path(args.out) / "draws.ecsv"
+    else:
+        where = Path(args.json)
+        draws = where.with_name(where.stem + ".draws.ecsv")
+    try:
+        sample, posterior = sample_document(doc, walkers=args.walkers, steps=args.steps,
+                                            seed=args.seed, progress=not args.quiet)
+    except ValueError as exc:
+        raise FitError(f"{doc['source']}: cannot sample the posterior: {exc}") from None
+    draws.parent.mkdir(parents=True, exist_ok=True)
+    write_draws(draws, sample, posterior)
+    attach_posterior(doc, posterior_block(doc, sample, posterior, draws.name))
+    doc["_path"] = str(where)
