@@ -59,6 +59,7 @@ _MAX_REDRAWS = 100             # attempts to put a start walker inside the prior
 _LOW_ACCEPTANCE = 0.1
 _A_PRIOR_FACTOR = 100.0
 _PERCENTILES = (15.865525393145708, 50.0, 84.13447460685429)   # median and central 68.27 %
+_BLOCK_ELEMENTS = 5000         # walkers x points per likelihood block
 
 
 # ------------------------------------------------------------------- generic sampler
@@ -257,9 +258,8 @@ def cos_sin_eccentric_anomaly(mean_anom, e):
     Three rounds give |dE| < 1e-11 rad for e <= 0.99 (checked against
     ``kepler.eccentric_anomaly`` in the tests).
     """
-    m = mean_anom - (2.0 * np.pi) * np.rint(mean_anom * (0.5 / np.pi))   # [-pi, pi]
-    negative = m < 0.0
-    m = np.abs(m)
+    signed = mean_anom - (2.0 * np.pi) * np.rint(mean_anom * (0.5 / np.pi))   # [-pi, pi]
+    m = np.abs(signed)
     sin_m = _SIN_TABLE.take(_node(m), mode="clip")
     E = m + e * sin_m / (1.0 - _SIN_TABLE.take(_node(m + e), mode="clip") + sin_m)
     for _ in range(_KEPLER_ROUNDS):
@@ -276,9 +276,8 @@ def cos_sin_eccentric_anomaly(mean_anom, e):
     h2 = step * step
     sin_step = step * (1.0 - h2 * (1.0 / 6.0) * (1.0 - h2 * (1.0 / 20.0)))
     cos_step = 1.0 - h2 * 0.5 * (1.0 - h2 * (1.0 / 12.0) * (1.0 - h2 * (1.0 / 30.0)))
-    sin_E = s * cos_step - c * sin_step                 # sin(node - step)
-    np.negative(sin_E, out=sin_E, where=negative)
-    return c * cos_step + s * sin_step, sin_E
+    # sin(node - step) >= 0 on [0, pi] (up to rounding); it takes the sign of M
+    return c * cos_step + s * sin_step, np.copysign(s * cos_step - c * sin_step, signed)
 
 
 # ----------------------------------------------------------- astrometric posterior
@@ -414,12 +413,19 @@ class AstrometricPosterior:
                        + np.einsum("ij,ij->i", r_rho, r_rho))
 
     def __call__(self, q):
-        """Log-posterior (up to a constant), vectorised: (n, 7) -> (n,)."""
+        """Log-posterior (up to a constant), vectorised: (n, 7) -> (n,).
+
+        Walkers are taken in blocks of about ``_BLOCK_ELEMENTS`` walker-points, which keeps
+        the temporary arrays in the processor's cache (measured: ~1.3 times faster than
+        one block of 256 walkers x 100 points, see benchmarks/bench_likelihood.py).
+        """
         q = np.atleast_2d(q)
         out = self.log_prior(q)
-        ok = np.isfinite(out)
-        if ok.any():
-            out[ok] += self.log_likelihood(q[ok])
+        ok = np.flatnonzero(np.isfinite(out))
+        block = max(1, _BLOCK_ELEMENTS // self.t.size)
+        for start in range(0, ok.size, block):
+            rows = ok[start:start + block]
+            out[rows] += self.log_likelihood(q[rows])
         return out
 
     def coordinates(self, elements):
