@@ -50,7 +50,7 @@ from .reductions import (EPOCH_SCALES, julian_years_of, parse_target_coordinates
 __all__ = ["RowProblem", "MeasurementSet", "LogTable", "Suspicion", "REQUIRED_COLUMNS",
            "OPTIONAL_COLUMNS", "MISSING_MARKERS", "TECHNIQUE_DEFAULTS", "TECHNIQUE_ALIASES",
            "technique_class", "default_sigmas", "parse_column_mapping", "read_table",
-           "read_measurements", "suspicious_rows"]
+           "read_measurements", "suspicious_rows", "collect_rows", "epochs_in_days"]
 
 REQUIRED_COLUMNS = ("epoch", "theta", "rho")
 OPTIONAL_COLUMNS = ("sigma_theta", "sigma_rho", "weight", "technique", "flag", "note")
@@ -520,6 +520,41 @@ class _RowError(Exception):
         self.column, self.reason = column, reason
 
 
+def epochs_in_days(table):
+    """Whether the table's epoch column carries a day unit (ECSV), so plain numbers are
+    JD/MJD rather than years."""
+    unit = table.units.get("epoch")
+    return unit is not None and unit.strip().lower() in ("d", "day", "days")
+
+
+def collect_rows(table, parse, key_of, same_what, strict):
+    """Parse every data row of ``table``; return (records, problems), nothing dropped.
+
+    ``parse(cells)`` returns a record dict or raises ``_RowError``; rows whose
+    ``key_of(record)`` repeats an earlier row are rejected as duplicates. With ``strict``
+    the first problem raises ``LogFormatError`` instead.
+    """
+    problems, records, seen = list(table.problems), [], {}
+    for line, cells in table.rows:
+        try:
+            record = parse(cells)
+        except _RowError as exc:
+            problems.append(RowProblem(line, exc.column, exc.reason))
+            continue
+        key = key_of(record)
+        if key in seen:
+            problems.append(RowProblem(line, None, f"duplicate of line {seen[key]} (same "
+                                       f"{same_what}); delete one of the two lines"))
+            continue
+        seen[key] = record["line"] = line
+        records.append(record)
+    problems.sort(key=lambda p: p.line)
+    if strict and problems:
+        raise LogFormatError(table.path, problems[0].reason, line=problems[0].line,
+                             column=problems[0].column)
+    return records, problems
+
+
 def _number(cells, name, factors, header):
     """The cell as a float in internal units, None when missing."""
     text = cells.get(name, "")
@@ -665,27 +700,11 @@ def read_measurements(path, columns=None, target_ra_deg=None, target_dec_deg=Non
     """
     table = read_table(path, REQUIRED_COLUMNS, OPTIONAL_COLUMNS, columns)
     factors = _unit_factors(table)
-    epoch_unit = table.units.get("epoch")
-    day_unit = epoch_unit is not None and epoch_unit.strip().lower() in ("d", "day", "days")
-    problems, records, seen = list(table.problems), [], {}
-    for line, cells in table.rows:
-        try:
-            record = _complete(_parse_row(cells, factors, table.columns, day_unit))
-        except _RowError as exc:
-            problems.append(RowProblem(line, exc.column, exc.reason))
-            continue
-        key = (record["scale"], record["epoch_value"], record["theta"], record["rho"])
-        if key in seen:
-            problems.append(RowProblem(line, None, f"duplicate of line {seen[key]} (same epoch, "
-                                       "theta and rho); delete one of the two lines"))
-            continue
-        seen[key] = line
-        record["line"] = line
-        records.append(record)
-    problems.sort(key=lambda p: p.line)
-    if strict and problems:
-        raise LogFormatError(table.path, problems[0].reason, line=problems[0].line,
-                             column=problems[0].column)
+    day_unit = epochs_in_days(table)
+    records, problems = collect_rows(
+        table, lambda cells: _complete(_parse_row(cells, factors, table.columns, day_unit)),
+        lambda r: (r["scale"], r["epoch_value"], r["theta"], r["rho"]),
+        "epoch, theta and rho", strict)
     return _assemble(table, records, problems, _target(table.path, table, target_ra_deg,
                                                        target_dec_deg))
 

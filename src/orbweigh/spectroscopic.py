@@ -32,7 +32,8 @@ import numpy as np
 
 from .errors import LogFormatError
 from .kepler import eccentric_anomaly, mean_anomaly, true_anomaly
-from .measurements import _KEEP_FLAGS, MISSING_MARKERS, RowProblem, read_table
+from .measurements import (_KEEP_FLAGS, MISSING_MARKERS, _RowError, collect_rows,
+                           epochs_in_days, read_table)
 from .reductions import julian_years_of, split_epoch
 
 __all__ = [
@@ -247,12 +248,6 @@ class VelocitySet:
                     and np.any(self.component[self.usable] == 1))
 
 
-class _RowError(Exception):
-    def __init__(self, column, reason):
-        super().__init__(reason)
-        self.column, self.reason = column, reason
-
-
 def _velocity_factors(table):
     """Factor to km/s of the rv and sigma_rv columns (ECSV units; 1 without a unit)."""
     factors = {}
@@ -337,26 +332,11 @@ def read_velocities(path, columns=None, strict=False):
     """
     table = read_table(path, RV_REQUIRED_COLUMNS, RV_OPTIONAL_COLUMNS, columns)
     factors = _velocity_factors(table)
-    epoch_unit = table.units.get("epoch")
-    day_unit = epoch_unit is not None and epoch_unit.strip().lower() in ("d", "day", "days")
-    problems, records, seen = list(table.problems), [], {}
-    for line, cells in table.rows:
-        try:
-            record = _velocity_row(cells, table.columns, factors, day_unit)
-        except _RowError as exc:
-            problems.append(RowProblem(line, exc.column, exc.reason))
-            continue
-        key = (record["scale"], record["epoch_value"], record["component"], record["rv"])
-        if key in seen:
-            problems.append(RowProblem(line, None, f"duplicate of line {seen[key]} (same epoch, "
-                                       "component and rv); delete one of the two lines"))
-            continue
-        seen[key] = record["line"] = line
-        records.append(record)
-    problems.sort(key=lambda p: p.line)
-    if strict and problems:
-        raise LogFormatError(table.path, problems[0].reason, line=problems[0].line,
-                             column=problems[0].column)
+    day_unit = epochs_in_days(table)
+    records, problems = collect_rows(
+        table, lambda cells: _velocity_row(cells, table.columns, factors, day_unit),
+        lambda r: (r["scale"], r["epoch_value"], r["component"], r["rv"]),
+        "epoch, component and rv", strict)
     return _velocity_set(table, records, problems)
 
 

@@ -10,6 +10,7 @@ from collections import Counter
 from html import escape
 
 from ..elements import ELEMENT_KEYS
+from ..measurements import _is_number
 from ..result import epoch_scale_of
 from . import tables as tb
 
@@ -31,14 +32,6 @@ tr.status-flipped td{background:#f1f1f1} tr.status-outlier td{background:#fdecea
 tr.status-excluded td,tr.status-rejected td{color:#8a8a8a}
 footer{margin-top:2rem;font-size:.8rem;color:#5a6b7b}
 """
-
-
-def _is_number(text):
-    try:
-        float(text)
-    except ValueError:
-        return False
-    return True
 
 
 def _table(header, rows, row_classes=None, numeric=()):
