@@ -5,10 +5,11 @@ import numpy as np
 import pytest
 
 from orbweigh.errors import InputError
+from orbweigh.spectroscopic import orbital_parallax_mas
 from orbweigh.masses import (
     KMS_PER_AU_YR, THIRD_LAW_FACTOR, dynamical_parallax, eker_log_luminosity,
     eker_mass_from_log_luminosity, format_mass_blocks, linear_propagation, mann_mass_from_mks,
-    mass_blocks, mass_from_absolute_magnitude, orbital_parallax_mas, total_mass_msun,
+    mass_blocks, mass_from_absolute_magnitude, total_mass_msun,
 )
 
 JULIAN_YEAR_D = 365.25
@@ -245,12 +246,12 @@ def test_components_from_ratio_and_from_velocities():
 def test_orbital_parallax():
     # Earth: mean orbital speed 29.78 km/s (NASA planetary fact sheet, memory), e ~ 0,
     # seen edge-on from 1 pc: a = 1", orbital parallax 1000 mas.
-    assert orbital_parallax_mas(1.0, 365.256363 / JULIAN_YEAR_D, 0.0, 90.0, 29.78) == \
+    assert orbital_parallax_mas(1.0, 29.78, 0.0, 365.256363 / JULIAN_YEAR_D, 0.0, 90.0) == \
         pytest.approx(1000.0, rel=3e-4)
     # Consistency with the spectroscopic mass relation (Hilditch 2001, ch. 2; memory):
     # (M1 + M2) sin^3 i = 1.036149e-7 (1 - e^2)^(3/2) (K1 + K2)^3 P[d].
     a, period, e, i, k = 0.5, 10.0, 0.4, 60.0, 15.0
-    mass = total_mass_msun(a, orbital_parallax_mas(a, period, e, i, k), period)
+    mass = total_mass_msun(a, orbital_parallax_mas(a, k, 0.0, period, e, i), period)
     expected = 1.036149e-7 * (1 - e**2) ** 1.5 * k**3 * period * JULIAN_YEAR_D
     assert mass * math.sin(math.radians(i)) ** 3 == pytest.approx(expected, rel=2e-6)
 

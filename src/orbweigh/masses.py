@@ -23,10 +23,11 @@ import numpy as np
 from astropy import constants
 
 from .errors import InputError
+from .spectroscopic import orbital_parallax_mas
 
 __all__ = ["masses_for_document", 
     "THIRD_LAW_FACTOR", "KMS_PER_AU_YR", "EKER_RANGE_MSUN", "MANN_RANGE_MKS", "M_BOL_SUN",
-    "BANDS", "total_mass_msun", "parallax_for_mass_mas", "orbital_parallax_mas",
+    "BANDS", "total_mass_msun", "parallax_for_mass_mas",
     "linear_propagation", "eker_log_luminosity", "eker_mass_from_log_luminosity",
     "mann_mass_from_mks", "mass_from_absolute_magnitude", "DynamicalParallax",
     "dynamical_parallax", "summarise", "mass_blocks", "format_mass_blocks",
@@ -95,20 +96,6 @@ def parallax_for_mass_mas(a_arcsec, period_yr, mass_msun):
     """
     ratio = THIRD_LAW_FACTOR / (np.asarray(period_yr, float) ** 2 * np.asarray(mass_msun, float))
     return 1e3 * np.asarray(a_arcsec, float) * np.cbrt(ratio)
-
-
-def orbital_parallax_mas(a_arcsec, period_yr, e, i_deg, k_sum_kms):
-    """Orbital parallax [mas] from the visual orbit and the sum of the velocity amplitudes.
-
-    The spectroscopic orbit gives the linear semi-major axis
-    a sin i = (K1 + K2) P sqrt(1 - e^2) / (2 pi) (K in au/yr, P in yr, a in au); the visual
-    orbit gives i and a in arcsec, hence plx = a["] / a[au].
-    """
-    k_au_yr = np.asarray(k_sum_kms, float) / KMS_PER_AU_YR
-    sin_i = np.abs(np.sin(np.radians(i_deg)))
-    a_au = k_au_yr * np.asarray(period_yr, float) * np.sqrt(1.0 - np.asarray(e, float) ** 2) \
-        / (2.0 * np.pi * sin_i)
-    return 1e3 * np.asarray(a_arcsec, float) / a_au
 
 
 def linear_propagation(period_yr, a_arcsec, cov_Pa, parallax_mas, parallax_err_mas):
@@ -516,7 +503,8 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
             mass.update(_components(total, q_draws, linear, q, q_rel))
             if k_sum is not None and e_draws is not None and i_draws is not None:
                 plx_block["orbital"] = summarise(orbital_parallax_mas(
-                    a, period, np.asarray(e_draws, float), np.asarray(i_draws, float), k_sum),
+                    a, k_sum, 0.0, period, np.asarray(e_draws, float),
+                    np.asarray(i_draws, float)),
                     "mas")
     else:
         draws, plx_block = _dynamical(period, a, magnitudes, band, best, warnings)
