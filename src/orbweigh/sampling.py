@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .elements import ELEMENT_KEYS, normalise_node, thiele_innes_from_campbell
+from .errors import FitError, InputError
 
 __all__ = ["PosteriorSample", "sample_posterior", "AstrometricPosterior", "sample_document",
            "write_draws", "posterior_block", "attach_posterior", "format_posterior",
@@ -132,7 +133,7 @@ def _start_ball(log_prob, start_points, scales, walkers, rng):
             return p0
         p0[bad] = (starts[owner[bad]]
                    + _BALL * scales * rng.standard_normal((int(bad.sum()), starts.shape[1])))
-    raise ValueError("could not start the walkers: the start points lie outside the prior "
+    raise FitError("could not start the walkers: the start points lie outside the prior "
                      "(log-posterior not finite around them)")
 
 
@@ -178,9 +179,10 @@ def sample_posterior(log_prob, start_points, scales, names, walkers=DEFAULT_WALK
 
     ndim = len(names)
     if walkers < 2 * ndim:
-        raise ValueError(f"need at least {2 * ndim} walkers for {ndim} parameters, got {walkers}")
+        raise InputError(f"--walkers: need at least {2 * ndim} walkers for {ndim} parameters, "
+                         f"got {walkers}")
     if steps < 2:
-        raise ValueError(f"need at least 2 steps, got {steps}")
+        raise InputError(f"--steps: need at least 2 steps, got {steps}")
     ball_seq, move_seq = np.random.SeedSequence(seed).spawn(2)
     p0 = _start_ball(log_prob, start_points, scales, walkers, np.random.default_rng(ball_seq))
     sampler = emcee.EnsembleSampler(walkers, ndim, log_prob, vectorize=True)
@@ -346,7 +348,7 @@ class AstrometricPosterior:
 
         rows = [r for r in doc["residuals"] if r["status"] in ("used", "flipped")]
         if len(rows) < 4:
-            raise ValueError(f"{len(rows)} fitted measurements; sampling needs at least 4")
+            raise InputError(f"{len(rows)} fitted measurements; sampling needs at least 4")
         col = {k: np.array([r[k] for r in rows], float)
                for k in ("epoch_yr", "theta_deg", "rho_arcsec", "sigma_theta_deg",
                          "sigma_rho_arcsec")}
