@@ -31,8 +31,8 @@ __all__ = ["FitOptions", "fit_orbit"]
 
 #: A flip must lower the point's chi2 by at least this much (decisive: 5 sigma-equivalent).
 FLIP_MIN_GAIN = 25.0
-_N_CANDIDATES = 8       # local minima of the period profile polished in (P, e, T)
-_N_FULL = 4             # of those, refined in all seven parameters
+_N_CANDIDATES = 6       # local minima of the period profile polished in (P, e, T)
+_N_FULL = 3             # of those, refined in all seven parameters
 _MAX_OUTLIER_FRACTION = 0.25
 _MIN_POINTS = 4         # 8 numbers for 7 parameters
 
