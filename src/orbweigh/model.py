@@ -9,8 +9,10 @@ from __future__ import annotations
 import numpy as np
 
 from .ephemeris import orbit_xy, xy_to_theta_rho
+from .kepler import eccentric_anomaly
 
-__all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "wrap_degrees"]
+__all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_jacobian",
+           "wrap_degrees"]
 
 #: Order of the refinement parameters.
 FIT_KEYS = ("P", "T", "e", "A", "B", "F", "G")
@@ -38,3 +40,33 @@ def normalised_residuals(params, t, theta, rho, sigma_theta, sigma_rho):
     d_theta = wrap_degrees(theta - theta_pred)
     d_rho = rho - rho_pred
     return d_theta / sigma_theta, d_rho / sigma_rho, d_theta, d_rho
+
+
+def residual_jacobian(params, t, sigma_theta, sigma_rho):
+    """Analytic Jacobian of (r_theta, r_rho) with respect to (P, T, e, A, B, F, G).
+
+    Rows as in ``normalised_residuals`` concatenated (all r_theta, then all r_rho).
+    With D = 1 - e cos E: dE/dM = 1/D, dE/de = sin E / D, dM/dP = -M/P, dM/dT = -2 pi/P;
+    d rho = (x dx + y dy)/rho and d theta = (x dy - y dx)/rho^2.
+    """
+    P, T, e, A, B, F, G = params
+    M = 2.0 * np.pi * (t - T) / P
+    E = eccentric_anomaly(M, e)
+    sin_e, cos_e = np.sin(E), np.cos(E)
+    s = np.sqrt(1.0 - e**2)
+    X, Y = cos_e - e, s * sin_e
+    D = 1.0 - e * cos_e
+    dE = {"P": -M / (P * D), "T": -2.0 * np.pi / (P * D), "e": sin_e / D}
+    dX = {k: -sin_e * v for k, v in dE.items()}
+    dY = {k: s * cos_e * v for k, v in dE.items()}
+    dX["e"] = dX["e"] - 1.0
+    dY["e"] = dY["e"] - (e / s) * sin_e
+    zero = np.zeros_like(t)
+    dx = [A * dX[k] + F * dY[k] for k in "PTe"] + [X, zero, Y, zero]
+    dy = [B * dX[k] + G * dY[k] for k in "PTe"] + [zero, X, zero, Y]
+    x, y = A * X + F * Y, B * X + G * Y
+    rho2 = x**2 + y**2
+    rho = np.sqrt(rho2)
+    cols_theta = [-np.degrees((x * gy - y * gx) / rho2) / sigma_theta for gx, gy in zip(dx, dy)]
+    cols_rho = [-((x * gx + y * gy) / rho) / sigma_rho for gx, gy in zip(dx, dy)]
+    return np.vstack([np.column_stack(cols_theta), np.column_stack(cols_rho)])

@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .kepler import eccentric_anomaly, mean_anomaly
-from .model import FIT_KEYS, normalised_residuals
+from .model import FIT_KEYS, normalised_residuals, residual_jacobian
 from .search import linear_thiele_innes
 
 __all__ = ["Refined", "refine_nonlinear", "refine_full"]
@@ -92,11 +92,16 @@ def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear"):
         r_theta, r_rho, _, _ = normalised_residuals(v, t, theta, rho, sigma_theta, sigma_rho)
         return np.concatenate([r_theta, r_rho])
 
+    def jacobian(p):
+        return residual_jacobian(np.array([p[k].value for k in FIT_KEYS]), t,
+                                 sigma_theta, sigma_rho)
+
     if loss == "linear":
-        out = lmfit.minimize(resid, pars, method="leastsq", scale_covar=False)
+        out = lmfit.minimize(resid, pars, method="leastsq", scale_covar=False, Dfun=jacobian,
+                             col_deriv=0)
     else:
         out = lmfit.minimize(resid, pars, method="least_squares", loss=loss,
-                             scale_covar=False)
+                             scale_covar=False, Dfun=jacobian)
     best = np.array([out.params[k].value for k in FIT_KEYS])
     chi2 = float(np.sum(resid(out.params) ** 2))
     covar = out.covar if getattr(out, "covar", None) is not None else None
