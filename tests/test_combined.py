@@ -240,7 +240,6 @@ def test_cli_bad_velocity_log(tmp_path, synthetic, capsys):
 def test_joint_posterior_matches_least_squares(synthetic):
     # With many data the posterior is nearly Gaussian: its medians and spreads must agree
     # with the least-squares values and errors (Laplace approximation; common practice).
-    pytest.importorskip("orbweigh.sampling")
     from orbweigh.combined import sample_combined
 
     solution, folder = synthetic
