@@ -33,6 +33,7 @@ __all__ = ["FitOptions", "fit_orbit"]
 FLIP_MIN_GAIN = 25.0
 _N_CANDIDATES = 6       # local minima of the period profile polished in (P, e, T)
 _N_FULL = 3             # of those, refined in all seven parameters
+_CANDIDATE_BUDGET = 60  # model evaluations for each rival minimum (see refine_candidates)
 _MAX_OUTLIER_FRACTION = 0.25
 _MIN_POINTS = 4         # 8 numbers for 7 parameters
 
@@ -98,9 +99,21 @@ class _Points:
         return normalised_residuals(params, self.t, theta, self.rho,
                                     self.sigma_theta, self.sigma_rho)
 
-    def refine(self, params0, loss):
+    def refine(self, params0, loss, max_nfev=None):
         return refine_full(params0, self.t, self.theta, self.rho,
-                           self.sigma_theta, self.sigma_rho, loss)
+                           self.sigma_theta, self.sigma_rho, loss, max_nfev)
+
+    def refine_candidates(self, starts, loss):
+        """Refine every start on a small budget, then finish the best without one.
+
+        Near a true minimum Levenberg-Marquardt converges in a few evaluations; a start
+        still crawling after the budget is a poor minimum and is not pursued (nor
+        reported as an alternative)."""
+        runs = sorted((self.refine(s, loss, _CANDIDATE_BUDGET) for s in starts),
+                      key=lambda r: r.chi2)
+        if not runs[0].success:
+            runs[0] = self.refine(runs[0].params, loss)
+        return sorted(runs, key=lambda r: r.chi2)
 
 
 def fit_orbit(data, options=None) -> OrbitSolution:
@@ -134,8 +147,8 @@ def fit_orbit(data, options=None) -> OrbitSolution:
     period_range = tuple(options.period_range or default_period_range(points.t))
 
     starts, n_trials = _global_candidates(points, period_range)
-    first = sorted((points.refine(_near_mean_epoch(s, points.t), options.loss) for s in starts),
-                   key=lambda r: r.chi2)
+    first = points.refine_candidates([_near_mean_epoch(s, points.t) for s in starts],
+                                     options.loss)
     best, flipped = first[0], np.zeros(points.t.size, bool)
     if options.flips:
         best, flipped = _correct_flips(points, best, options.loss)
@@ -143,9 +156,9 @@ def fit_orbit(data, options=None) -> OrbitSolution:
     clean = points.subset(~outlier, flipped)
     final = first
     if flipped.any() or outlier.any():   # the other minima must be refound on clean data
-        final = [clean.refine(r.params, options.loss) for r in first[1:]]
-        final.append(clean.refine(_near_mean_epoch(best.params, clean.t), options.loss))
-        final.sort(key=lambda r: r.chi2)
+        final = clean.refine_candidates(
+            [_near_mean_epoch(best.params, clean.t)] + [r.params for r in first[1:]],
+            options.loss)
     return build_solution(
         data=data, rows=usable, points=points, best=final[0],
         alternatives=_distinct_alternatives(final, options, n_dof=2 * clean.t.size - 7),
@@ -238,6 +251,8 @@ def _distinct_alternatives(final, options, n_dof):
     for r in final[1:]:
         if (r.chi2 - best.chi2) / scale > options.alternative_delta_chi2:
             break
+        if not r.success:         # stopped on its budget: not a converged minimum
+            continue
         if all(not _same_orbit(r.params, k.params, tol=0.02) for k in kept):
             kept.append(r)
         if len(kept) > options.n_alternatives:

@@ -52,14 +52,14 @@ def refine_nonlinear(trial, t, x, y, w, period_range):
     q0 = np.clip([np.log(trial.period), trial.e, trial.t_peri], lo, hi)
     q0[1] = min(q0[1], _E_MAX - 1e-3)
     # A polish only (the full refinement follows), so loose tolerances suffice.
-    sol = least_squares(resid, q0, bounds=(lo, hi), x_scale="jac", max_nfev=80,
-                        ftol=1e-6, xtol=1e-6)
+    sol = least_squares(resid, q0, bounds=(lo, hi), x_scale="jac", max_nfev=40,
+                        ftol=1e-4, xtol=1e-4)
     period, e, t_peri = np.exp(sol.x[0]), sol.x[1], sol.x[2]
     A, B, F, G, chi2 = linear_thiele_innes(*_basis(t, period, t_peri, e), x, y, w)
     return Refined(np.array([period, t_peri, e, A, B, F, G]), float(chi2))
 
 
-def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear"):
+def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear", max_nfev=None):
     """Least-squares fit of all seven parameters with lmfit.
 
     Parameters
@@ -71,6 +71,8 @@ def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear"):
     loss : {'linear', 'soft_l1', 'huber'}
         'linear' uses Levenberg-Marquardt; robust losses use scipy's trust-region
         least squares through lmfit.
+    max_nfev : int, optional
+        Budget of model evaluations; ``success`` is False when it ran out.
 
     Returns
     -------
@@ -98,10 +100,10 @@ def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear"):
 
     if loss == "linear":
         out = lmfit.minimize(resid, pars, method="leastsq", scale_covar=False, Dfun=jacobian,
-                             col_deriv=0)
+                             col_deriv=0, max_nfev=max_nfev)
     else:
         out = lmfit.minimize(resid, pars, method="least_squares", loss=loss,
-                             scale_covar=False, Dfun=jacobian)
+                             scale_covar=False, Dfun=jacobian, max_nfev=max_nfev)
     best = np.array([out.params[k].value for k in FIT_KEYS])
     chi2 = float(np.sum(resid(out.params) ** 2))
     covar = out.covar if getattr(out, "covar", None) is not None else None
