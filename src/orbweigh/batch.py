@@ -445,7 +445,12 @@ def _run_local(entries, options, workers):
 
 def _run_dask(entries, options, address):
     """Yield (index, record) as systems finish on a Dask distributed cluster."""
-    from dask.distributed import Client, as_completed
+    try:
+        from dask.distributed import Client, as_completed
+    except ImportError:
+        raise InputError("--scheduler needs dask.distributed, which is not installed: "
+                         "pip install 'orbweigh[dask]' (or drop --scheduler to use local "
+                         "worker processes)") from None
     try:
         client = Client(address, timeout="20s")
     except (OSError, TimeoutError, ValueError) as exc:
