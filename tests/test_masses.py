@@ -294,3 +294,20 @@ def test_runaway_dynamical_parallax_is_refused():
     # range (4 < M_Ks < 11): the polynomial blows up and the command must say so.
     with pytest.raises(InputError, match="runs away"):
         mass_blocks([50.1284, 50.13], [7.4957, 7.4957], magnitudes=(-1.4, 8.4), band="K")
+
+
+def test_v_band_needs_bolometric_corrections_and_then_equals_the_bolometric_route():
+    # m_bol = m_V + BC_V (definition of the bolometric correction): V magnitudes with BCs
+    # must give exactly the parallax of the equivalent bolometric magnitudes.
+    period, a = np.array([50.0, 52.0]), np.array([1.0, 1.02])
+    with pytest.raises(InputError, match="bolometric-corrections"):
+        mass_blocks(period, a, magnitudes=(5.0, 6.0), band="V")
+    with pytest.raises(InputError, match="not to band 'bol'"):
+        mass_blocks(period, a, magnitudes=(5.0, 6.0), band="bol",
+                    bolometric_corrections=(-0.1, -0.3))
+    via_v = mass_blocks(period, a, magnitudes=(5.0, 6.0), band="V",
+                        bolometric_corrections=(-0.1, -0.3))
+    via_bol = mass_blocks(period, a, magnitudes=(4.9, 5.7), band="bol")
+    assert via_v["parallax"]["value"] == pytest.approx(via_bol["parallax"]["value"], rel=1e-12)
+    assert via_v["parallax"]["input_band"] == "V"
+    assert via_v["parallax"]["bolometric_corrections"] == [-0.1, -0.3]

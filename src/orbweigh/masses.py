@@ -201,8 +201,9 @@ def _check_band(band):
         listed = "; ".join(f"'{k}' ({v})" for k, v in BANDS.items())
         raise InputError(f"band {band!r} is not supported for the dynamical parallax: no "
                          f"relation with a published source for it is built in. Supported "
-                         f"bands: {listed}. For V magnitudes apply a bolometric correction "
-                         f"of your choice and give --band bol")
+                         f"bands: {listed}. For V (or any other band) give the bolometric "
+                         f"corrections of the two components from a table of your choice "
+                         f"with --bolometric-corrections BC1 BC2")
     return key
 
 
@@ -396,9 +397,22 @@ def _trigonometric(period, a, parallax, best, cov_Pa, rng, warnings):
     return total, block, _linear_block(mass, rel), budget, int(bad.sum())
 
 
-def _dynamical(period, a, magnitudes, band, best, warnings):
+def _bolometric(magnitudes, band, corrections):
+    """Magnitudes and band for the relation: with bolometric corrections BC (m_bol = m +
+    BC, the user's choice of table), any band becomes 'bol'."""
     mag1, mag2 = (float(v) for v in magnitudes)
-    band = _check_band(band)
+    if corrections is None:
+        return mag1, mag2, _check_band(band)
+    if str(band).lower() in ("bol", "k", "ks"):
+        raise InputError(f"bolometric corrections apply to magnitudes in a band such as V, "
+                         f"not to band {band!r}; drop --bolometric-corrections")
+    bc1, bc2 = (float(v) for v in corrections)
+    return mag1 + bc1, mag2 + bc2, "bol"
+
+
+def _dynamical(period, a, magnitudes, band, best, warnings, corrections=None):
+    given_band = band
+    mag1, mag2, band = _bolometric(magnitudes, band, corrections)
     draws = dynamical_parallax(a, period, mag1, mag2, band)
     at_best = dynamical_parallax(best[1], best[0], mag1, mag2, band)
     if not (np.all(np.isfinite(draws.parallax_mas)) and np.isfinite(at_best.parallax_mas[0])):
@@ -424,13 +438,16 @@ def _dynamical(period, a, magnitudes, band, best, warnings):
     block = {"value": summary["value"], "error": (summary["high"] - summary["low"]) / 2,
              "low": summary["low"], "high": summary["high"], "unit": "mas", "kind": "dynamical",
              "band": band, "relation": BANDS[band], "magnitudes": [mag1, mag2],
+             **({} if corrections is None else {
+                 "input_band": str(given_band), "input_magnitudes": list(map(float, magnitudes)),
+                 "bolometric_corrections": list(map(float, corrections))}),
              "iterations": at_best.iterations, "steps": steps}
     return draws, block
 
 
 def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplitudes=None,
                 magnitudes=None, band=None, seed=0, best=None, cov_Pa=None,
-                e_draws=None, i_draws=None):
+                e_draws=None, i_draws=None, bolometric_corrections=None):
     """The "mass" and "parallax" blocks of the result document, from (P, a) draws.
 
     Parameters
@@ -446,8 +463,11 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
         the orbital parallax is reported too.
     magnitudes : (m1, m2), optional
         Apparent magnitudes in ``band`` for a dynamical parallax (instead of ``parallax``).
-    band : {'bol', 'K'}, optional
-        Band of ``magnitudes``.
+    band : {'bol', 'K'} or str, optional
+        Band of ``magnitudes``; any other band (e.g. 'V') needs ``bolometric_corrections``.
+    bolometric_corrections : (BC1, BC2), optional
+        Bolometric corrections of the two components in ``band`` (m_bol = m + BC, from a
+        table of the user's choice); the bolometric relation is then used.
     seed : int
         Seed of the parallax and mass-ratio draws (reported in the block).
     best : (P, a), optional
@@ -507,7 +527,8 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
                     np.asarray(i_draws, float)),
                     "mas")
     else:
-        draws, plx_block = _dynamical(period, a, magnitudes, band, best, warnings)
+        draws, plx_block = _dynamical(period, a, magnitudes, band, best, warnings,
+                                      bolometric_corrections)
         mass["total"] = summarise(draws.mass1_msun + draws.mass2_msun, "solMass")
         mass["primary"] = summarise(draws.mass1_msun, "solMass")
         mass["secondary"] = summarise(draws.mass2_msun, "solMass")
@@ -557,7 +578,8 @@ def format_mass_blocks(blocks):
 
 
 def masses_for_document(doc, parallax=None, mass_ratio=None, rv_amplitudes=None,
-                        magnitudes=None, band=None, n_draws=4000, seed=1):
+                        magnitudes=None, band=None, n_draws=4000, seed=1,
+                        bolometric_corrections=None):
     """Mass blocks for a result document: element draws (posterior, else covariance,
     else independent errors) through ``mass_blocks``. Returns the blocks with
     ``mass["draws_source"]`` set; the document itself is not changed."""
@@ -568,7 +590,8 @@ def masses_for_document(doc, parallax=None, mass_ratio=None, rv_amplitudes=None,
     blocks = mass_blocks(draws[:, 0], draws[:, 3], parallax=parallax, mass_ratio=mass_ratio,
                          rv_amplitudes=rv_amplitudes, magnitudes=magnitudes, band=band,
                          seed=seed, best=(best.period_yr, best.a_arcsec), cov_Pa=cov_pa,
-                         e_draws=draws[:, 2], i_draws=draws[:, 4])
+                         e_draws=draws[:, 2], i_draws=draws[:, 4],
+                         bolometric_corrections=bolometric_corrections)
     blocks["warnings"][:0] = notes
     blocks["mass"]["warnings"][:0] = notes
     blocks["mass"]["draws_source"] = source

@@ -44,9 +44,14 @@ def add_mass_arguments(parser):
     parser.add_argument("--magnitudes", nargs=2, type=float, metavar=("M1", "M2"),
                         help="apparent magnitudes of primary and secondary, for a dynamical "
                              "parallax when no trigonometric one is known")
+    parser.add_argument("--bolometric-corrections", nargs=2, type=float, metavar=("BC1", "BC2"),
+                        help="bolometric corrections of primary and secondary in --band (e.g. "
+                             "V), from a table of your choice: m_bol = m + BC; the Eker et al. "
+                             "2018 relation is then used")
     parser.add_argument("--band", default=None,
-                        help="band of --magnitudes: 'bol' (bolometric; Eker et al. 2018) or "
-                             "'K' (2MASS Ks; Mann et al. 2019)")
+                        help="band of --magnitudes: 'bol' (bolometric; Eker et al. 2018), "
+                             "'K' (2MASS Ks; Mann et al. 2019), or e.g. 'V' with "
+                             "--bolometric-corrections")
 
 
 def check_mass_arguments(args):
@@ -55,5 +60,7 @@ def check_mass_arguments(args):
 
     if args.magnitudes is not None and args.band is None:
         raise InputError("--magnitudes needs --band: 'bol' (bolometric) or 'K' (2MASS Ks)")
+    if args.bolometric_corrections is not None and args.magnitudes is None:
+        raise InputError("--bolometric-corrections go with --magnitudes M1 M2 --band BAND")
     if args.band is not None and args.magnitudes is None:
         raise InputError("--band describes --magnitudes; give the magnitudes too, or drop --band")

@@ -125,7 +125,8 @@ def _add_masses(doc, args):
 
     blocks = masses_for_document(doc, parallax=args.parallax, mass_ratio=args.mass_ratio,
                                  rv_amplitudes=args.rv_amplitudes, magnitudes=args.magnitudes,
-                                 band=args.band, seed=args.seed)
+                                 band=args.band, seed=args.seed,
+                                 bolometric_corrections=args.bolometric_corrections)
     doc["mass"], doc["parallax"] = blocks["mass"], blocks["parallax"]
     doc["warnings"].extend(blocks["warnings"])
 

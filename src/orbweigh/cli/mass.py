@@ -41,7 +41,8 @@ def run(args):
     doc = load_result(args.result)
     blocks = masses_for_document(doc, parallax=args.parallax, mass_ratio=args.mass_ratio,
                                  rv_amplitudes=args.rv_amplitudes, magnitudes=args.magnitudes,
-                                 band=args.band, n_draws=args.draws, seed=args.seed)
+                                 band=args.band, n_draws=args.draws, seed=args.seed,
+                                 bolometric_corrections=args.bolometric_corrections)
     source = blocks["mass"]["draws_source"]
     text = f"{doc['_path']}: (P, a) from {source}\n" + format_mass_blocks(blocks)
     print(text, file=sys.stderr if args.json == "-" else sys.stdout)
