@@ -234,3 +234,28 @@ def test_published_orbit_of_eta_crb_is_recovered():
     at_1980 = ephemeris(sol.elements, [1980.0])
     assert abs(wrap180(at_1980.theta_deg[0] - 318.4)) < 0.3     # book gives 0.1 deg
     assert abs(at_1980.rho_arcsec[0] - 0.411) < 0.003           # book gives 0.001"
+
+
+# --- logs that cannot support an orbit ----------------------------------------------------
+
+def test_one_night_is_refused():
+    import pytest
+    from orbweigh.errors import FitError
+    ms = make_log(WELL_COVERED, np.full(6, 2020.25), 0.5, 0.005, seed=3)
+    with pytest.raises(FitError, match="1 distinct epoch"):
+        fit_orbit(ms)
+
+
+def test_short_arc_is_flagged_undetermined():
+    # 3 years of a 300-year orbit: the arc fixes the motion, not P or a.
+    truth = dict(WELL_COVERED, P=300.0, T=2100.0, a=2.0)
+    sol = fit(truth, np.linspace(2010.0, 2013.0, 12), seed=4)
+    assert any("undetermined" in w for w in sol.warnings)
+
+
+def test_flips_never_exceed_a_quarter_of_the_points():
+    # Half the points planted as flips: no longer "occasional quadrant errors"; at most a
+    # quarter may be corrected (the rest show up as outliers or a poor fit, not silently).
+    epochs = over_periods(WELL_COVERED, 24, 1.5)
+    sol = fit(WELL_COVERED, epochs, seed=5, plant_flips=tuple(range(0, 24, 2)))
+    assert (sol.status == "flipped").sum() <= 6

@@ -36,6 +36,7 @@ _N_FULL = 3             # of those, refined in all seven parameters
 _CANDIDATE_BUDGET = 60  # model evaluations for each rival minimum (see refine_candidates)
 _MAX_OUTLIER_FRACTION = 0.25
 _MIN_POINTS = 4         # 8 numbers for 7 parameters
+_MAX_FLIP_FRACTION = 0.25   # quadrant errors are occasional; more would redefine the orbit
 
 
 @dataclass(frozen=True)
@@ -148,6 +149,11 @@ def _fit(data, options):
     if usable.size < _MIN_POINTS:
         raise FitError(f"{data.source}: {usable.size} usable measurements; an orbit needs at "
                        f"least {_MIN_POINTS} (7 elements from 2 coordinates per point)")
+    epochs = np.unique(np.round(data.epoch_yr[usable], 3))
+    if epochs.size < _MIN_POINTS:
+        raise FitError(f"{data.source}: the usable measurements fall on {epochs.size} distinct "
+                       f"epoch(s); an orbit needs at least {_MIN_POINTS} epochs spread in time "
+                       "(measurements of one night constrain no orbit)")
     weight = np.sqrt(data.weight[usable])
     points = _Points(data.epoch_yr[usable], data.theta_deg[usable], data.rho_arcsec[usable],
                      data.sigma_theta_deg[usable] / weight,
@@ -219,9 +225,14 @@ def _correct_flips(points, best, loss, max_rounds=3):
     for _ in range(max_rounds):
         as_is = _point_chi2(points, best.params, flipped)
         other = _point_chi2(points, best.params, ~flipped)
-        candidates = (~flipped) & (as_is - other > FLIP_MIN_GAIN)
-        if not candidates.any():
+        gain = np.where(flipped, 0.0, as_is - other)
+        room = int(_MAX_FLIP_FRACTION * gain.size) - int(flipped.sum())
+        candidates = gain > FLIP_MIN_GAIN
+        if room <= 0 or not candidates.any():
             break
+        if candidates.sum() > room:                  # keep only the most decisive ones
+            candidates = np.zeros(gain.size, bool)
+            candidates[np.argsort(gain)[::-1][:room]] = True
         trial_flips = flipped | candidates
         refit = points.subset(np.ones(points.t.size, bool), trial_flips).refine(best.params, loss)
         if refit.chi2 >= best.chi2:

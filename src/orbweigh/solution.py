@@ -280,6 +280,12 @@ def _warnings(sol, data, rows, flipped, outlier, best):
     elif sol.reduced_chi2 < 0.3:
         out.append(f"Reduced chi2 = {sol.reduced_chi2:.2f}: the quoted sigmas look too large; "
                    "uncertainties may be overestimated.")
+    undetermined = [k for k in ("P", "a") if sol.errors.get(k) is not None
+                    and sol.errors[k] > 0.5 * abs(sol.elements.to_keys()[k])]
+    if undetermined:
+        out.append(f"{' and '.join(undetermined)} undetermined (error above half the value): "
+                   "the data constrain only the motion along the observed arc. Do not use "
+                   "these elements, nor any mass from them.")
     if best.covariance is None:
         out.append("The covariance could not be estimated (degenerate solution): "
                    "no uncertainties are given.")
