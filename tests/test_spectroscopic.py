@@ -212,7 +212,7 @@ def test_read_velocities_file_level_errors():
         read_velocities(DATA / "rv_wrong_unit.ecsv",
                         columns={"epoch": "mjd", "component": "comp", "rv": "v", "sigma_rv": "ev"})
     with pytest.raises(LogFormatError,
-                       match=r"required column\(s\) rv not found.*--columns rv=velocity"):
+                       match=r"required column\(s\) rv not found.*--rv-columns rv=velocity"):
         read_velocities(DATA / "rv_missing_column.csv")
 
 

@@ -272,7 +272,7 @@ class LogTable:
         return len(self.rows) + len(self.problems)
 
 
-def parse_column_mapping(text):
+def parse_column_mapping(text, option="--columns"):
     """``'epoch=date,theta=pa'`` -> ``{'epoch': 'date', 'theta': 'pa'}``.
 
     Raises
@@ -286,9 +286,9 @@ def parse_column_mapping(text):
             continue
         name, sep, header = pair.partition("=")
         if not sep or not name.strip() or not header.strip():
-            raise InputError(f"--columns: cannot read '{pair.strip()}'; expected pairs "
-                             "canonical=your_header separated by commas, e.g. "
-                             "--columns epoch=date,theta=pa,rho=sep")
+            raise InputError(f"{option}: cannot read '{pair.strip()}'; expected pairs "
+                             f"canonical=your_header separated by commas, e.g. "
+                             f"{option} epoch=date")
         mapping[name.strip().lower()] = header.strip()
     return mapping
 
@@ -344,12 +344,12 @@ def _ecsv_header(path, lines):
     return header.get("delimiter", " "), units, dict(header.get("meta") or {})
 
 
-def _match_columns(path, line, names, required, optional, columns):
+def _match_columns(path, line, names, required, optional, columns, option):
     """{canonical: index in names}; file-level errors for missing or unknown columns."""
     columns = {k.lower(): v for k, v in (columns or {}).items()}
     unknown = sorted(set(columns) - set(required) - set(optional))
     if unknown:
-        raise InputError(f"--columns names {', '.join(unknown)}, which the log does not use; "
+        raise InputError(f"{option} names {', '.join(unknown)}, which the log does not use; "
                          f"known columns: {', '.join(required + optional)}")
     lower = [n.strip().lower() for n in names]
     doubled = sorted({n for n in lower if lower.count(n) > 1})
@@ -362,7 +362,7 @@ def _match_columns(path, line, names, required, optional, columns):
         if wanted in lower:
             index[name] = lower.index(wanted)
         elif name in columns:
-            raise LogFormatError(path, f"--columns maps '{name}' to '{columns[name]}', but the "
+            raise LogFormatError(path, f"{option} maps '{name}' to '{columns[name]}', but the "
                                  f"header has no such column (found: {', '.join(names)})",
                                  line=line)
     missing = [n for n in required if n not in index]
@@ -371,7 +371,7 @@ def _match_columns(path, line, names, required, optional, columns):
         example = ",".join(f"{m}={s}" for m, s in zip(missing, spare)) or f"{missing[0]}=NAME"
         raise LogFormatError(path, f"required column(s) {', '.join(missing)} not found; the "
                              f"header has: {', '.join(names)}. Rename the header or map your "
-                             f"names with --columns, e.g. --columns {example}", line=line)
+                             f"names with {option}, e.g. {option} {example}", line=line)
     return index
 
 
@@ -431,7 +431,7 @@ def _shape_problem(cells, names, index, required, text, used, header_line):
                   f"{n} columns; quote values that contain the delimiter.{hint}")
 
 
-def read_table(path, required, optional=(), columns=None):
+def read_table(path, required, optional=(), columns=None, option="--columns"):
     """Read a CSV, whitespace-separated or ECSV table, keeping file line numbers.
 
     Parameters
@@ -442,6 +442,9 @@ def read_table(path, required, optional=(), columns=None):
         Canonical column names the caller needs / can use.
     columns : dict, optional
         Canonical name -> header name in this file (see ``parse_column_mapping``).
+    option : str
+        The command-line option that maps columns for this kind of log, named in the
+        messages ('--columns' for measurement logs, '--rv-columns' for velocity logs).
 
     Returns
     -------
@@ -465,7 +468,7 @@ def read_table(path, required, optional=(), columns=None):
                              "sigma_rho'")
     header_line = body[0][0]
     fmt, split, names, units, meta = _header(path, lines, body)
-    index = _match_columns(path, header_line, names, required, optional, columns)
+    index = _match_columns(path, header_line, names, required, optional, columns, option)
     if len(body) == 1:
         raise LogFormatError(path, f"no data rows after the header (line {header_line})",
                              line=header_line)

@@ -330,7 +330,8 @@ def read_velocities(path, columns=None, strict=False):
     LogFormatError
         For problems of the whole file, and for any bad row when ``strict``.
     """
-    table = read_table(path, RV_REQUIRED_COLUMNS, RV_OPTIONAL_COLUMNS, columns)
+    table = read_table(path, RV_REQUIRED_COLUMNS, RV_OPTIONAL_COLUMNS, columns,
+                       option="--rv-columns")
     factors = _velocity_factors(table)
     day_unit = epochs_in_days(table)
     records, problems = collect_rows(

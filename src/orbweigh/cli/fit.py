@@ -102,7 +102,8 @@ def _read_velocities(args):
                          "parallax; drop --mass-ratio, --rv-amplitudes and --magnitudes")
     if not args.rv:
         return None
-    columns = parse_column_mapping(args.rv_columns) if args.rv_columns else None
+    columns = (parse_column_mapping(args.rv_columns, option="--rv-columns")
+               if args.rv_columns else None)
     return read_velocities(args.rv, columns=columns, strict=args.strict)
 
 
