@@ -33,10 +33,11 @@ from .elements import ELEMENT_KEYS, CampbellElements
 from .ephemeris import ephemeris, ephemeris_bands
 from .errors import InputError
 from .reductions import to_julian_year
-from .result import element_draws, elements_from_document, epoch_scale_of
+from .result import (covariance_from_document, element_draws, elements_from_document,
+                     epoch_scale_of)
 
 __all__ = ["EpochAdvice", "Plan", "dawes_limit_arcsec", "centred_draws", "element_covariance",
-           "covariance_from_document", "position_jacobian", "variance_gains", "pick_epochs",
+           "position_jacobian", "variance_gains", "pick_epochs",
            "plan_observations"]
 
 #: Dawes' resolution limit, 116 arcsec mm (rule of thumb of the trade).
@@ -183,40 +184,6 @@ def element_covariance(doc, draws):
     return covariance_from_document(doc), "covariance"
 
 
-def covariance_from_document(doc):
-    """The document's 7x7 element covariance in ELEMENT_KEYS order, checked; or None.
-
-    Raises
-    ------
-    InputError
-        When the block misses an element, is not square, holds non-finite numbers or is
-        not a symmetric positive semi-definite matrix.
-    """
-    cov = doc.get("covariance")
-    if not cov:
-        return None
-    where = f"{doc.get('_path', 'result document')}: covariance"
-    try:
-        names = list(cov["parameters"])
-        order = [names.index(k) for k in ELEMENT_KEYS]
-        full = np.asarray(cov["matrix"], float)
-    except (KeyError, TypeError, ValueError):
-        raise InputError(f"{where}: expected 'parameters' naming {', '.join(ELEMENT_KEYS)} "
-                         "and a numeric square 'matrix' in that order") from None
-    if full.shape != (len(names), len(names)):
-        raise InputError(f"{where}: the matrix is {'x'.join(map(str, full.shape))} but "
-                         f"{len(names)} parameters are named")
-    matrix = full[np.ix_(order, order)]
-    if not np.isfinite(matrix).all():
-        raise InputError(f"{where}: the matrix holds non-finite values; refit the orbit")
-    scale = np.abs(matrix).max()
-    if (not np.allclose(matrix, matrix.T, rtol=1e-6, atol=1e-12 * scale)
-            or np.linalg.eigvalsh(matrix).min() < -1e-9 * scale):
-        raise InputError(f"{where}: the matrix is not symmetric positive semi-definite, so "
-                         "it cannot be an element covariance")
-    return matrix
-
-
 def position_jacobian(elements, epoch_yr):
     """d(x, y)/d(elements) at each epoch, by central differences.
 
@@ -324,7 +291,6 @@ def plan_observations(doc, epochs, sigma_arcsec=0.005, aperture_mm=None, top=3,
         raise InputError(f"--draws must be at least 2, got {n_draws}")
     if not min_separation_yr >= 0:
         raise InputError(f"--min-separation must not be negative, got {min_separation_yr}")
-    covariance_from_document(doc)   # a clear message for a broken block, before any draw
     draws = element_draws(doc, n_draws, seed)
     if draws is None:
         raise InputError(f"{doc.get('_path', 'result document')}: no posterior draws and no "

@@ -23,7 +23,7 @@ from .errors import InputError
 from .reductions import EPOCH_SCALES, to_julian_year
 
 __all__ = ["SCHEMA", "load_result", "elements_from_document", "element_draws", "epoch_scale_of",
-           "read_draws", "draws_for_masses"]
+           "read_draws", "draws_for_masses", "covariance_from_document"]
 
 SCHEMA = "orbweigh.result/1"
 
@@ -87,6 +87,40 @@ def read_draws(path):
     return np.column_stack([np.asarray(table[k], float) for k in ELEMENT_KEYS]), dict(table.meta)
 
 
+def covariance_from_document(doc):
+    """The document's 7x7 element covariance in ELEMENT_KEYS order, checked; or None.
+
+    Raises
+    ------
+    InputError
+        When the block misses an element, is not square, holds non-finite numbers or is
+        not a symmetric positive semi-definite matrix.
+    """
+    cov = doc.get("covariance")
+    if not cov:
+        return None
+    where = f"{doc.get('_path', 'result document')}: covariance"
+    try:
+        names = list(cov["parameters"])
+        order = [names.index(k) for k in ELEMENT_KEYS]
+        full = np.asarray(cov["matrix"], float)
+    except (KeyError, TypeError, ValueError):
+        raise InputError(f"{where}: expected 'parameters' naming {', '.join(ELEMENT_KEYS)} "
+                         "and a numeric square 'matrix' in that order") from None
+    if full.shape != (len(names), len(names)):
+        raise InputError(f"{where}: the matrix is {'x'.join(map(str, full.shape))} but "
+                         f"{len(names)} parameters are named")
+    matrix = full[np.ix_(order, order)]
+    if not np.isfinite(matrix).all():
+        raise InputError(f"{where}: the matrix holds non-finite values; refit the orbit")
+    scale = np.abs(matrix).max()
+    if (not np.allclose(matrix, matrix.T, rtol=1e-6, atol=1e-12 * scale)
+            or np.linalg.eigvalsh(matrix).min() < -1e-9 * scale):
+        raise InputError(f"{where}: the matrix is not symmetric positive semi-definite, so "
+                         "it cannot be an element covariance")
+    return matrix
+
+
 def element_draws(doc, n, seed):
     """Draws of the seven elements, shape (n, 7), internal units.
 
@@ -100,11 +134,9 @@ def element_draws(doc, n, seed):
         path = Path(doc.get("_path", ".")).parent / posterior["draws_file"]
         draws, _ = read_draws(path)
         return draws[rng.choice(len(draws), size=min(n, len(draws)), replace=False)]
-    cov = doc.get("covariance")
-    if not cov:
+    matrix = covariance_from_document(doc)
+    if matrix is None:
         return None
-    order = [cov["parameters"].index(k) for k in ELEMENT_KEYS]
-    matrix = np.asarray(cov["matrix"], float)[np.ix_(order, order)]
     best = np.array(elements_from_document(doc).as_tuple())
     draws = rng.multivariate_normal(best, matrix, size=n, method="eigh")
     # Keep the draws physical: e in [0, 1), a > 0, P > 0.
@@ -120,9 +152,8 @@ def draws_for_masses(doc, n, seed):
     if (doc.get("posterior") or {}).get("draws_file"):
         return draws, "posterior draws", None, []
     if draws is not None:
-        cov = doc["covariance"]
-        idx = [cov["parameters"].index(k) for k in ("P", "a")]
-        return draws, "covariance", np.asarray(cov["matrix"], float)[np.ix_(idx, idx)], []
+        idx = [ELEMENT_KEYS.index(k) for k in ("P", "a")]
+        return draws, "covariance", covariance_from_document(doc)[np.ix_(idx, idx)], []
     errors = []
     for key in ELEMENT_KEYS:
         entry = doc["elements"][key]

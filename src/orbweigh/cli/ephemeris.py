@@ -117,7 +117,6 @@ def ephemeris_rows(doc, epochs, n_draws=1000, seed=1):
         Number of draws behind the bands (0 when there are none).
     """
     from ..ephemeris import ephemeris, ephemeris_bands
-    from ..planning import covariance_from_document
     from ..reductions import to_julian_year
     from ..result import element_draws, elements_from_document, epoch_scale_of
 
@@ -129,7 +128,6 @@ def ephemeris_rows(doc, epochs, n_draws=1000, seed=1):
     eph = ephemeris(elements, t)
     columns = {"epoch": epochs, "theta_deg": eph.theta_deg, "rho_arcsec": eph.rho_arcsec,
                "x_arcsec": eph.x_arcsec, "y_arcsec": eph.y_arcsec}
-    covariance_from_document(doc)   # a clear message for a broken block, before any draw
     draws = element_draws(doc, n_draws, seed)
     if draws is not None:
         bands = ephemeris_bands(elements, draws, t)
