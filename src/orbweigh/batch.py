@@ -40,6 +40,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError, OrbweighError
+from .files import write_atomic
 from .manifest import read_manifest
 
 __all__ = ["BatchOptions", "system_seed", "system_key", "input_hash", "process_system",
@@ -222,17 +223,6 @@ def _report_files(doc):
 
 # ----------------------------------------------------------------------------- output files
 
-def _write_atomic(path, content):
-    """Write text or bytes to ``path`` through a temporary file in the same folder, renamed."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(content.encode("utf-8") if isinstance(content, str) else content)
-        os.replace(tmp, path)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
 
 
 def _json_text(obj):
@@ -252,15 +242,15 @@ def _save_record(out, record):
     folder = out / "systems" / record["key"]
     files = []
     if record["document"] is not None:
-        _write_atomic(folder / "result.json", _json_text(record["document"]))
+        write_atomic(folder / "result.json", _json_text(record["document"]))
         files.append("result.json")
     for name, content in sorted((record["report"] or {}).items()):
-        _write_atomic(folder / name, content)
+        write_atomic(folder / name, content)
         files.append(name)
     kept = {k: v for k, v in record.items() if k not in ("document", "report")}
     kept["files"] = files
     kept["summary"] = _summary_row(record)
-    _write_atomic(folder / "batch.json", _json_text(kept))
+    write_atomic(folder / "batch.json", _json_text(kept))
     return kept
 
 
@@ -362,8 +352,8 @@ def _write_summary(out, records, manifest, options):
     for fmt, name in (("ascii.ecsv", "summary.ecsv"), ("ascii.csv", "summary.csv")):
         buffer = io.StringIO()
         table.write(buffer, format=fmt)
-        _write_atomic(out / name, buffer.getvalue())
-    _write_atomic(out / "index.html", _index_html(table, manifest, options))
+        write_atomic(out / name, buffer.getvalue())
+    write_atomic(out / "index.html", _index_html(table, manifest, options))
     return table
 
 

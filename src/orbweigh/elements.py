@@ -26,6 +26,7 @@ __all__ = [
     "thiele_innes_from_campbell",
     "campbell_from_thiele_innes",
     "normalise_node",
+    "wrap_degrees",
 ]
 
 #: Keys of the elements in result documents, in the order used everywhere.
@@ -150,3 +151,8 @@ def normalise_node(node, omega):
     node = np.maximum(np.where(wrap, node - np.pi, node), 0.0)
     omega = np.mod(np.where(wrap, omega - np.pi, omega), 2.0 * np.pi)
     return node, np.where(omega >= 2.0 * np.pi, 0.0, omega)
+
+
+def wrap_degrees(angle):
+    """Wrap an angle difference [deg] into (-180, 180]."""
+    return 180.0 - np.mod(180.0 - np.asarray(angle, float), 360.0)

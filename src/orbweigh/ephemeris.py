@@ -5,7 +5,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .elements import thiele_innes_from_campbell
+from .elements import thiele_innes_from_campbell, wrap_degrees
 from .kepler import eccentric_anomaly, mean_anomaly
 
 __all__ = ["Ephemeris", "EphemerisBands", "orbit_xy", "ephemeris", "xy_to_theta_rho",
@@ -114,7 +114,7 @@ def ephemeris_bands(elements, draws, epoch_yr):
         x, y = orbit_xy(t[None, sl], d[:, 0, None], d[:, 1, None], d[:, 2, None],
                         A[:, None], B[:, None], F[:, None], G[:, None])
         theta, rho = xy_to_theta_rho(x, y)
-        dtheta = 180.0 - np.mod(180.0 - (theta - best.theta_deg[sl]), 360.0)
+        dtheta = wrap_degrees(theta - best.theta_deg[sl])
         parts.append((np.percentile(dtheta, _BAND_PERCENTILES, axis=0),
                       np.percentile(rho, _BAND_PERCENTILES, axis=0)))
     dq = np.concatenate([p[0] for p in parts], axis=1)

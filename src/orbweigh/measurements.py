@@ -43,6 +43,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .elements import wrap_degrees
 from .errors import InputError, LogFormatError
 from .reductions import (EPOCH_SCALES, julian_years_of, parse_target_coordinates,
                          precess_theta_to_j2000, split_epoch)
@@ -761,10 +762,6 @@ class Suspicion:
     message: str
 
 
-def _wrap180(x):
-    return (np.asarray(x) + 180.0) % 360.0 - 180.0
-
-
 def suspicious_rows(ms):
     """Rows worth a second look; they stay in the set (advice only).
 
@@ -795,7 +792,7 @@ def suspicious_rows(ms):
         if message and not ms.sigma_defaulted[use[k]]:
             out.append(Suspicion(int(lines[k]), "small_sigma", message))
     for i, j in _pairs_within(t, SAME_EPOCH_YR):
-        d_th, d_rho = abs(_wrap180(th[i] - th[j])), abs(rho[i] - rho[j])
+        d_th, d_rho = abs(wrap_degrees(th[i] - th[j])), abs(rho[i] - rho[j])
         if (d_th > DISCORDANT_SIGMAS * np.hypot(s_th[i], s_th[j])
                 or d_rho > DISCORDANT_SIGMAS * np.hypot(s_rho[i], s_rho[j])):
             out.append(Suspicion(int(lines[j]), "discordant_same_epoch",
@@ -825,7 +822,7 @@ def _flips(t, th, rho, lines):
                 & (np.abs(rho[j] - rho[i]) <= FLIP_RHO_TOL * np.minimum(rho[i], rho[j])))
         np.add.at(n_near, i[near], 1)
         np.add.at(n_near, j[near], 1)
-        for a in i[near & (np.abs(_wrap180(th[j] - th[i])) >= FLIP_MIN_DEG)]:
+        for a in i[near & (np.abs(wrap_degrees(th[j] - th[i])) >= FLIP_MIN_DEG)]:
             partners[a].append(a + d)
             partners[a + d].append(a)
     return [Suspicion(int(lines[k]), "quadrant_flip",

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .elements import wrap_degrees
 from .ephemeris import orbit_xy, xy_to_theta_rho
 from .kepler import eccentric_anomaly
 
@@ -16,11 +17,6 @@ __all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_ja
 
 #: Order of the refinement parameters.
 FIT_KEYS = ("P", "T", "e", "A", "B", "F", "G")
-
-
-def wrap_degrees(angle):
-    """Wrap an angle difference [deg] into (-180, 180]."""
-    return 180.0 - np.mod(180.0 - np.asarray(angle, float), 360.0)
 
 
 def predict_theta_rho(params, t):

@@ -6,7 +6,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .elements import ELEMENT_KEYS, ELEMENT_UNITS, CampbellElements, campbell_from_thiele_innes
-from .model import wrap_degrees
+from .model import predict_theta_rho, wrap_degrees
 from .reductions import epoch_unit, from_julian_year, interval_in_scale
 from .result import SCHEMA
 
@@ -212,7 +212,6 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     all_flips = np.zeros(len(data), bool)
     all_flips[rows[flipped]] = True
     theta_obs = np.mod(data.theta_deg + 180.0 * all_flips, 360.0)
-    from .model import predict_theta_rho
     theta_pred, rho_pred = predict_theta_rho(params, data.epoch_yr)
     d_theta = wrap_degrees(theta_obs - theta_pred)
     d_rho = data.rho_arcsec - rho_pred

@@ -6,6 +6,7 @@ import os
 import sys
 from pathlib import Path
 
+from ..files import write_atomic
 from .common import add_log_arguments, add_mass_arguments, check_mass_arguments, load_log
 
 __all__ = ["add_arguments", "run"]
@@ -136,11 +137,11 @@ def _write_outputs(doc, args):
     if args.json == "-":
         sys.stdout.write(_payload(doc, Path(args.out) / "result.json" if args.out else None))
     elif args.json:
-        _atomic_write(Path(args.json), _payload(doc, Path(args.json)))
+        write_atomic(Path(args.json), _payload(doc, Path(args.json)))
     if args.out:
         out = Path(args.out)
         out.mkdir(parents=True, exist_ok=True)
-        _atomic_write(out / "result.json", _payload(doc, out / "result.json"))
+        write_atomic(out / "result.json", _payload(doc, out / "result.json"))
 
 
 def _payload(doc, where):
@@ -151,12 +152,6 @@ def _payload(doc, where):
         out["posterior"] = {**out["posterior"],
                             "draws_file": os.path.relpath(draws, where.parent)}
     return json.dumps(out, indent=2) + "\n"
-
-
-def _atomic_write(path, text):
-    tmp = path.with_name(path.name + ".tmp")
-    tmp.write_text(text)
-    tmp.replace(path)
 
 
 # ------------------------------------------------------------------ posterior sampling
