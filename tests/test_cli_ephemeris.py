@@ -163,7 +163,7 @@ def test_bad_documents_exit_2(tmp_path, capsys):
     del missing["omega"]
     path = _write(tmp_path, _document(missing))
     assert main(["ephemeris", path, "--epochs", "2030"]) == 2
-    assert "element 'omega' is missing" in capsys.readouterr().err
+    assert "'elements.omega' is missing" in capsys.readouterr().err
     bad = tmp_path / "bad.json"
     bad.write_text('{"elements": {"P": 1,}}')
     assert main(["ephemeris", str(bad), "--epochs", "2030"]) == 2

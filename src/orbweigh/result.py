@@ -10,6 +10,13 @@ change. Keys read here:
   units: P [yr], T [Julian yr], e, a [arcsec], i, Omega, omega [deg].
 * ``posterior`` (optional): {"draws_file": path relative to the document, ...}; the draws
   file is an ECSV table with columns P, T (Julian yr), e, a, i, Omega, omega.
+* ``warnings`` (optional): a list of strings; ``seed`` (optional): an integer.
+
+``validate_document`` is the one check of a document at the boundary: every reader
+(``load_result``, batch, published-elements inputs) goes through it, so commands work on
+a document whose types and ranges are known. Physical ranges checked: P > 0 and a > 0
+finite, 0 <= e < 1, 0 <= i <= 180 deg, -360 <= Omega, omega <= 360 deg, T finite, errors
+finite and >= 0 (or absent).
 """
 from __future__ import annotations
 
@@ -22,29 +29,153 @@ from .elements import ELEMENT_KEYS, CampbellElements
 from .errors import InputError
 from .reductions import EPOCH_SCALES, to_julian_year
 
-__all__ = ["SCHEMA", "load_result", "elements_from_document", "element_draws", "epoch_scale_of",
+__all__ = ["SCHEMA", "MAX_DOCUMENT_BYTES", "load_result", "validate_document", "elements_from_document", "element_draws", "epoch_scale_of",
            "read_draws", "draws_for_masses", "covariance_from_document"]
 
 SCHEMA = "orbweigh.result/1"
 
 
-def load_result(path):
-    """Read a result (or bare elements) JSON document, with clear errors."""
+MAX_DOCUMENT_BYTES = 64 * 2 ** 20   # a result document is a few kB; refuse a runaway file
+
+#: Inclusive ranges of the element values (None: unbounded); P, a strictly positive.
+_RANGES = {"P": (0.0, None), "T": (None, None), "e": (0.0, 1.0), "a": (0.0, None),
+           "i": (0.0, 180.0), "Omega": (-360.0, 360.0), "omega": (-360.0, 360.0)}
+_STRICT = {"P": "> 0", "a": "> 0", "e": "< 1"}
+
+
+def load_result(path, needs=("elements",)):
+    """Read a result (or bare elements) JSON document and validate it (``validate_document``).
+
+    A file holding only the elements block (``{"P": {...}, "T": ..., ...}``) is accepted
+    and wrapped as ``{"elements": ...}``.
+    """
     path = Path(path)
+    from .tables import read_bounded_bytes
+    data = read_bounded_bytes(path, MAX_DOCUMENT_BYTES, what="result document")
     try:
-        text = path.read_text()
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read the file ({exc.strerror})") from None
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise InputError(f"{path}: not a UTF-8 text file (byte {exc.start} cannot be decoded); "
+                         "a result document is the JSON written by 'orbweigh fit --json'") from None
     try:
         doc = json.loads(text)
     except json.JSONDecodeError as exc:
         raise InputError(f"{path}, line {exc.lineno}: not valid JSON ({exc.msg})") from None
-    if not isinstance(doc, dict) or not isinstance(doc.get("elements"), dict):
-        raise InputError(f"{path}: expected a JSON object with an 'elements' block "
+    except RecursionError:
+        raise InputError(f"{path}: the JSON is nested too deeply to be a result document") from None
+    if isinstance(doc, dict) and "elements" not in doc and set(ELEMENT_KEYS) <= set(doc):
+        doc = {"elements": doc}
+    return validate_document(doc, path, needs=needs)
+
+
+def _fail(source, key, what):
+    raise InputError(f"{source}: '{key}' {what}")
+
+
+def _check_number(source, key, value, low=None, high=None, strict=None):
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        _fail(source, key, f"must be a number, not {type(value).__name__} {value!r:.40}")
+    value = float(value)
+    if not np.isfinite(value):
+        _fail(source, key, f"must be finite, not {value}")
+    bad_low = low is not None and (value <= low if strict and ">" in strict else value < low)
+    bad_high = high is not None and (value >= high if strict and "<" in strict else value > high)
+    if bad_low or bad_high:
+        rng = strict or f"in [{low}, {high}]"
+        if strict and low is not None and high is not None:
+            rng = f"in [{low}, {high})"
+        _fail(source, key, f"is {value:g}, outside its range ({rng})")
+    return value
+
+
+def _check_elements(source, block, name="elements"):
+    if not isinstance(block, dict):
+        _fail(source, name, "must be an object {P, T, e, a, i, Omega, omega}, as written by "
+              "'orbweigh fit --json'")
+    for key in ELEMENT_KEYS:
+        where = f"{name}.{key}"
+        if key not in block:
+            _fail(source, where, f"is missing; the elements block needs {', '.join(ELEMENT_KEYS)}")
+        entry = block[key]
+        value = entry.get("value") if isinstance(entry, dict) else entry
+        low, high = _RANGES[key]
+        _check_number(source, f"{where}.value" if isinstance(entry, dict) else where,
+                      value, low, high, _STRICT.get(key))
+        if isinstance(entry, dict):
+            for bound in ("error", "low", "high"):
+                if entry.get(bound) is not None:
+                    _check_number(source, f"{where}.{bound}", entry[bound],
+                                  0.0 if bound == "error" else None)
+
+
+def validate_document(doc, source, needs=("elements",)):
+    """Check a result document once, where it is read; return it with ``_path`` set.
+
+    Parameters
+    ----------
+    doc : object
+        The parsed JSON.
+    source : str or Path
+        The file it came from (named in every message).
+    needs : tuple of str
+        Blocks the caller uses and that must therefore be present: any of "elements",
+        "covariance", "draws" (a readable posterior draws file), "mass". Optional blocks
+        that are present are checked whatever ``needs`` says.
+
+    Raises
+    ------
+    InputError
+        Naming the file and the key at fault.
+    """
+    source = str(source)
+    if not isinstance(doc, dict):
+        raise InputError(f"{source}: expected a JSON object with an 'elements' block "
                          "(P, T, e, a, i, Omega, omega), as written by 'orbweigh fit --json'")
-    doc["_path"] = str(path)
-    elements_from_document(doc)  # validates now rather than deep inside a command
+    for block in needs:
+        present = (doc.get("posterior") or {}).get("draws_file") if block == "draws" \
+            else doc.get(block)
+        if block == "draws" and not isinstance(doc.get("posterior"), dict):
+            present = None
+        if not present:
+            _fail(source, "posterior.draws_file" if block == "draws" else block,
+                  "is missing; this command needs it (write it with 'orbweigh fit')")
+    _check_elements(source, doc.get("elements"))
+    doc["_path"] = source
+    epoch_scale_of(doc)
+    if "warnings" in doc and not (isinstance(doc["warnings"], list)
+                                  and all(isinstance(w, str) for w in doc["warnings"])):
+        _fail(source, "warnings", "must be a list of strings")
+    if doc.get("seed") is not None and (isinstance(doc["seed"], bool)
+                                        or not isinstance(doc["seed"], int)):
+        _fail(source, "seed", f"must be an integer, not {doc['seed']!r:.40}")
+    for block in ("mass", "parallax", "statistics", "options"):
+        if doc.get(block) is not None and not isinstance(doc[block], dict):
+            _fail(source, block, "must be an object")
+    if doc.get("alternatives") is not None:
+        if not isinstance(doc["alternatives"], list):
+            _fail(source, "alternatives", "must be a list")
+        for j, alt in enumerate(doc["alternatives"]):
+            _check_elements(source, alt.get("elements") if isinstance(alt, dict) else alt,
+                            f"alternatives[{j}].elements")
+    if doc.get("residuals") is not None and not (
+            isinstance(doc["residuals"], list)
+            and all(isinstance(r, dict) for r in doc["residuals"])):
+        _fail(source, "residuals", "must be a list of objects")
+    covariance_from_document(doc)
+    posterior = doc.get("posterior")
+    if posterior is not None:
+        if not isinstance(posterior, dict):
+            _fail(source, "posterior", "must be an object")
+        if posterior.get("draws_file") is not None:
+            if not isinstance(posterior["draws_file"], str):
+                _fail(source, "posterior.draws_file", "must be a file name (a string)")
+            read_draws(draws_path(doc))
     return doc
+
+
+def draws_path(doc):
+    """Location of the posterior draws file (relative to the document)."""
+    return Path(doc.get("_path", ".")).parent / doc["posterior"]["draws_file"]
 
 
 def _element_value(doc, key):
@@ -80,11 +211,38 @@ def elements_from_document(doc):
         raise InputError(f"{doc.get('_path', 'result document')}: {exc}") from None
 
 
+#: The draws file can be large (many thousand draws); a cap still keeps a runaway bounded.
+MAX_DRAWS_BYTES = 512 * 2 ** 20
+
+
 def read_draws(path):
-    """Posterior draws as an (n, 7) array in internal units, and the table's metadata."""
+    """Posterior draws as an (n, 7) array in internal units, and the table's metadata.
+
+    Raises
+    ------
+    InputError
+        When the file cannot be read, is not an ECSV table, lacks one of the seven element
+        columns, holds non-numeric or non-finite values, or has no rows.
+    """
     from astropy.table import Table
-    table = Table.read(path, format="ascii.ecsv")
-    return np.column_stack([np.asarray(table[k], float) for k in ELEMENT_KEYS]), dict(table.meta)
+
+    from .tables import read_bounded_bytes
+    path = Path(path)
+    data = read_bounded_bytes(path, MAX_DRAWS_BYTES, what="posterior draws file")
+    try:
+        table = Table.read(data.decode("utf-8").splitlines(), format="ascii.ecsv")
+        draws = np.column_stack([np.asarray(table[k], float) for k in ELEMENT_KEYS])
+    except KeyError as exc:
+        raise InputError(f"{path}: the posterior draws file has no column {exc}; it needs "
+                         f"{', '.join(ELEMENT_KEYS)} (rerun 'orbweigh fit --sample')") from None
+    except Exception as exc:  # astropy raises many kinds for a foreign or broken table
+        raise InputError(f"{path}: not a readable ECSV table of posterior draws "
+                         f"({type(exc).__name__}: {str(exc)[:200]}); rerun "
+                         "'orbweigh fit --sample'") from None
+    if draws.shape[0] == 0 or not np.isfinite(draws).all():
+        raise InputError(f"{path}: the posterior draws file has no rows or non-finite values; "
+                         "rerun 'orbweigh fit --sample'")
+    return draws, dict(table.meta)
 
 
 def covariance_from_document(doc):
@@ -131,8 +289,7 @@ def element_draws(doc, n, seed):
     rng = np.random.default_rng(seed)
     posterior = doc.get("posterior") or {}
     if posterior.get("draws_file"):
-        path = Path(doc.get("_path", ".")).parent / posterior["draws_file"]
-        draws, _ = read_draws(path)
+        draws, _ = read_draws(draws_path(doc))
         return draws[rng.choice(len(draws), size=min(n, len(draws)), replace=False)]
     matrix = covariance_from_document(doc)
     if matrix is None:
