@@ -127,7 +127,8 @@ def test_summary_order_files_and_mass(full_run):
     assert index.index(">contradicted<") < index.index(">consistent<")
     assert f'href="systems/{system_key("up")}/batch.json"' in index  # failed: its record
     # Third law, a = 0.5", parallax 20 mas -> 25 au; (25)^3 / 12^2 = 108.5 Msun
-    # (DESIGN.md, solar units); the fitted a and P scatter by a few per mille.
+    # (Kepler's third law in solar units; Aitken, The Binary Stars, 1935, memory); the
+    # fitted a and P scatter by a few per mille.
     assert rows["consistent"]["mass_msun"] == pytest.approx(25.0**3 / 12.0**2, rel=0.05)
     assert not any(p.name.endswith(".tmp") for p in out.rglob("*"))
 

@@ -128,7 +128,7 @@ def test_degenerate_inclination_a_and_i_exact():
 @given(semi_axes, st.floats(0.0, math.pi), angles, angles)
 def test_node_ambiguity_same_constants(a, i, node, omega):
     # (Omega + 180, omega + 180) flips the signs of both cos and sin of each angle, so
-    # every product in A, B, F, G is unchanged (DESIGN.md conventions).
+    # every product in A, B, F, G is unchanged (Heintz, Double Stars, 1978, ch. 4, memory).
     one = thiele_innes_from_campbell(a, i, node, omega)
     two = thiele_innes_from_campbell(a, i, node + math.pi, omega + math.pi)
     assert np.allclose(one, two, rtol=0, atol=1e-14 * a)
@@ -191,7 +191,7 @@ orbit_shapes = dict(P=st.floats(1.0, 500.0), T=st.floats(1900.0, 2100.0),
 @settings(max_examples=60, deadline=None)
 @given(i=st.floats(1.0, 88.0), **orbit_shapes)
 def test_direct_motion_below_90(P, T, e, a, i, node, omega):
-    # i < 90 deg: theta increases with time (DESIGN.md, convention of the trade)
+    # i < 90 deg: theta increases with time (Aitken, The Binary Stars, 1935, ch. 3, memory)
     sweep, cross = winding(CampbellElements(P, T, e, a, i, node, omega))
     assert np.all(cross > 0)
     assert sweep == pytest.approx(360.0, abs=1e-6)

@@ -87,7 +87,8 @@ def _display(ax, gid):
 
 # ----------------------------------------------------------------------------- figures
 def test_orbit_plot_north_up_east_left():
-    # Convention of the trade (DESIGN.md): theta from North through East, North up, East left.
+    # Convention of the trade (Aitken, The Binary Stars, 1935, ch. 3, memory): theta from
+    # North through East, North up, East left.
     doc = _minimal_doc([_row(1, 90.0, 1.0, "east"), _row(2, 0.0, 1.0, "north"),
                         _row(3, 270.0, 1.0, "reversed", status="flipped")])
     ax = figures.plot_orbit(doc, n_band=0)
@@ -105,7 +106,8 @@ def test_orbit_plot_north_up_east_left():
 
 
 def test_direct_orbit_arrow_runs_counterclockwise_on_the_sky():
-    # i < 90 deg is direct motion, theta increasing (DESIGN.md); with North up and East left,
+    # i < 90 deg is direct motion, theta increasing (Aitken 1935, ch. 3, memory); with
+    # North up and East left,
     # increasing theta turns counterclockwise on the page.
     for i_deg, sense in ((30.0, 1.0), (150.0, -1.0)):
         ax = figures.plot_orbit(_minimal_doc([_row(1, 45.0, 1.0, "any")], i=i_deg), n_band=0)

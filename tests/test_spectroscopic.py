@@ -20,7 +20,7 @@ def test_a1_sin_i_handbook_constant():
     # a1 sin i = 1.3751e4 km * K1 P sqrt(1-e^2): Hilditch, An Introduction to Close Binary
     # Stars (2001), ch. 2 (memory). Stated to 5 digits.
     assert f"{a1_sin_i_km(1.0, 1.0, 0.0):.4e}" == "1.3751e+04"
-    # fuller value 13750.987 km (86400 s / 2 pi; /work/shared/REFERENCES.md, memory)
+    # fuller value 13750.987 km (86400 s / 2 pi: the SI day and the definition of K; arithmetic)
     assert a1_sin_i_km(1.0, 1.0, 0.0) == pytest.approx(13750.987, abs=1e-3)
     # scaling with K, P and sqrt(1-e^2) = 0.8 at e = 0.6
     assert a1_sin_i_km(25.0, 40.0, 0.6) == pytest.approx(1.3751e4 * 25 * 40 * 0.8, rel=5e-5)
@@ -29,7 +29,8 @@ def test_a1_sin_i_handbook_constant():
 def test_mass_function_handbook_constant():
     # f(M) = 1.0361e-7 (1-e^2)^(3/2) K1^3 P [M_sun; km/s; d]: Hilditch (2001), ch. 2 (memory)
     assert f"{mass_function_msun(1.0, 1.0, 0.0):.4e}" == "1.0361e-07"
-    # fuller value 1.036149e-7 (/work/shared/REFERENCES.md, memory)
+    # fuller value 1.036149e-7 = 86400 s x (1 km)^3 / (2 pi GM_sun), GM_sun the nominal
+    # value of IAU 2015 Resolution B3 (arithmetic)
     assert mass_function_msun(1.0, 1.0, 0.0) == pytest.approx(1.036149e-7, rel=2e-6)
     # (1-e^2)^(3/2) = 0.512 at e = 0.6
     assert mass_function_msun(30.0, 12.0, 0.6) == pytest.approx(
@@ -68,10 +69,12 @@ def test_orbital_parallax_hand_evaluation():
 
 def test_component_masses_earth_year_and_split():
     # a = 1 au, P = 1 Julian year: M = (365.2568983 / 365.25)^2 = 1.0000378 M_sun with the
-    # IAU nominal GM_sun (Gaussian year 2 pi / k; /work/shared/REFERENCES.md)
+    # IAU nominal GM_sun (Gaussian year 2 pi / k, k = 0.01720209895 of the IAU 1976 System of
+    # Astronomical Constants; memory)
     m1, m2 = component_masses_from_orbit(1.0, 1.0, 1.0, 1.0)
     assert m1 + m2 == pytest.approx((365.2568983 / 365.25) ** 2, rel=1e-8)
-    # q = M2/M1 = K1/K2 (DESIGN.md conventions): K1 = 3, K2 = 4 -> M1 = 4/7, M2 = 3/7 of M
+    # q = M2/M1 = K1/K2 (momentum conservation M1 a1 = M2 a2; Hilditch 2001, ch. 2,
+    # memory): K1 = 3, K2 = 4 -> M1 = 4/7, M2 = 3/7 of M
     m1, m2 = component_masses_from_orbit(20.0, 60.0, 3.0, 4.0)
     total = 20.0**3 / 60.0**2 * 1.0000378
     assert m1 == pytest.approx(total * 4 / 7, rel=1e-6)
