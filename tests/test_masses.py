@@ -103,6 +103,20 @@ def test_mann_relation():
     # Mann et al. 2019, ApJ 871, 63, Table 6: M_Ks = 7.5 -> 0.22803 M_sun (= 10**-0.642).
     assert mann_mass_from_mks(7.5) == pytest.approx(0.22803, abs=5e-6)
     assert mass_from_absolute_magnitude(7.5, "Ks") == pytest.approx(0.22803, abs=5e-6)
+    # Every term of the polynomial, evaluated by hand from the coefficients of Mann et al.
+    # 2019, Table 6 (a0..a5 = -0.642, -0.208, -8.43e-4, 7.87e-3, 1.42e-4, -2.13e-4), with
+    # x = M_Ks - 7.5:
+    #   x = -2.5: -0.642 + 0.520 - 0.00526875 - 0.12296875 + 0.00554688 + 0.02080078
+    #           = -0.22388984 -> 0.59719 M_sun
+    #   x = -1.5: -0.642 + 0.312 - 0.00189675 - 0.02656125 + 0.00071888 + 0.00161747
+    #           = -0.35612165 -> 0.44043 M_sun
+    #   x = +1.5: -0.642 - 0.312 - 0.00189675 + 0.02656125 + 0.00071888 - 0.00161747
+    #           = -0.93023409 -> 0.11743 M_sun
+    #   x = +3.0: -0.642 - 0.624 - 0.0075870 + 0.212490 + 0.0115020 - 0.0517590
+    #           = -1.1013540 -> 0.07919 M_sun
+    hand = {5.0: 0.59719, 6.0: 0.44043, 9.0: 0.11743, 10.5: 0.07919}
+    for mks, mass in hand.items():
+        assert mann_mass_from_mks(mks) == pytest.approx(mass, abs=1e-5)
 
 
 def test_unsupported_band_is_refused():
