@@ -284,3 +284,22 @@ def test_rotation_matrices_reproduce_meeus_57a():
     north, east, _ = rotation_xyz(MEEUS) @ [r * math.cos(nu), r * math.sin(nu), 0.0]
     assert math.degrees(math.atan2(east, north)) % 360 == pytest.approx(318.4, abs=0.05)
     assert math.hypot(north, east) == pytest.approx(0.411, abs=5e-4)
+
+
+def test_centre_angles_across_the_seam():
+    # Draws around Omega = 0.2 deg wrapped into [0, 360): centred on the best value they
+    # form one cloud, and the 68 % interval crosses 0 (the median is the cloud's centre).
+    from orbweigh.elements import centre_angles
+
+    rng = np.random.default_rng(3)
+    node = np.mod(0.2 + rng.normal(0.0, 0.3, 4000), 360.0)
+    omega = np.mod(359.8 + rng.normal(0.0, 0.3, 4000), 360.0)
+    node_c, omega_c = centre_angles(node, omega, 0.2, 359.8, 360.0)
+    low, med, high = np.percentile(node_c, [16, 50, 84])
+    assert low < 0.0 < high and med == pytest.approx(0.2, abs=0.03)
+    assert np.percentile(omega_c, 50) == pytest.approx(359.8, abs=0.03)
+    assert np.ptp(omega_c) < 5.0
+    # Without velocities (Omega, omega) -> (Omega + 180, omega + 180) is the same orbit:
+    # a draw on the other node comes back with both angles shifted together.
+    node_c, omega_c = centre_angles([180.3], [179.8], 0.2, 359.8, 180.0)
+    assert node_c[0] == pytest.approx(0.3) and omega_c[0] == pytest.approx(359.8)

@@ -34,7 +34,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .elements import ELEMENT_KEYS, CampbellElements, thiele_innes_from_campbell
+from .elements import ELEMENT_KEYS, CampbellElements, centre_angles, thiele_innes_from_campbell
 from .errors import InputError
 from .masses import format_mass_blocks, summarise, total_mass_msun
 from .model import normalised_residuals, predict_theta_rho, wrap_degrees
@@ -558,7 +558,8 @@ def sample_combined(sol, walkers=40, steps=2000, seed=0, progress=False):
     -------
     draws : ndarray, shape (n, len(sol.keys))
         Draws in ``PARAMETER_UNITS`` (T in the period centred on the best T; Omega and
-        omega in [0, 360)), ready for ``combined_blocks``.
+        omega each within 180 deg of its best value, so a summary interval may cross
+        0 deg), ready for ``combined_blocks``.
     info : dict
         Walkers, steps, burn, thin, acceptance, converged, seed, sigma scale, priors and
         the sampler's warnings, for the result document.
@@ -577,7 +578,8 @@ def sample_combined(sol, walkers=40, steps=2000, seed=0, progress=False):
                               seed=seed, progress=progress)
     v = post.values(sample.draws())
     v["T"] = post.t_ref + np.mod(v["T"] - post.t_ref + 0.5 * v["P"], v["P"]) - 0.5 * v["P"]
-    v["Omega"], v["omega"] = np.mod(v["Omega"], 360.0), np.mod(v["omega"], 360.0)
+    v["Omega"], v["omega"] = centre_angles(v["Omega"], v["omega"], sol.values["Omega"],
+                                           sol.values["omega"], 360.0)
     info = {"walkers": int(walkers), "steps": int(steps), "burn": int(sample.burn),
             "thin": int(sample.thin), "n_draws": int(len(sample.draws())),
             "acceptance": float(sample.acceptance), "converged": bool(sample.converged),

@@ -27,6 +27,7 @@ __all__ = [
     "campbell_from_thiele_innes",
     "normalise_node",
     "wrap_degrees",
+    "centre_angles",
 ]
 
 #: Keys of the elements in result documents, in the order used everywhere.
@@ -156,3 +157,16 @@ def normalise_node(node, omega):
 def wrap_degrees(angle):
     """Wrap an angle difference [deg] into (-180, 180]."""
     return 180.0 - np.mod(180.0 - np.asarray(angle, float), 360.0)
+
+
+def centre_angles(node_deg, omega_deg, best_node_deg, best_omega_deg, node_period_deg):
+    """(Omega, omega) draws [deg] moved onto the branch nearest the best values.
+
+    Percentiles of draws wrapped into [0, 360) split a cloud near 0 deg in two; centred,
+    an interval may cross 0 deg. ``node_period_deg`` is 180 without radial velocities
+    (Omega and omega move together by 180 deg, the node ambiguity) and 360 with them.
+    """
+    node = np.asarray(node_deg, float)
+    shift = node_period_deg * np.round((node - best_node_deg) / node_period_deg)
+    omega = best_omega_deg + wrap_degrees(np.asarray(omega_deg, float) - shift - best_omega_deg)
+    return node - shift, omega

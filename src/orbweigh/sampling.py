@@ -526,12 +526,10 @@ def write_draws(path, sample, posterior):
 
 def _centred(draws, best):
     """Draws with the angles on the branch nearest the best values (for percentiles)."""
-    from .model import wrap_degrees
+    from .elements import centre_angles
 
     out = draws.copy()
-    shift = 180.0 * np.round((out[:, 5] - best[5]) / 180.0)   # (Omega, omega) move together
-    out[:, 5] -= shift
-    out[:, 6] = best[6] + wrap_degrees(out[:, 6] - shift - best[6])
+    out[:, 5], out[:, 6] = centre_angles(out[:, 5], out[:, 6], best[5], best[6], 180.0)
     return out
 
 
