@@ -17,13 +17,14 @@ Steps (each documented where it is done):
 from __future__ import annotations
 
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
+from .elements import ELEMENT_KEYS
 from .errors import FitError, InputError
 from .model import normalised_residuals
-from .refine import refine_full, refine_nonlinear
+from .refine import Constraints, refine_full, refine_nonlinear
 from .search import default_period_range, grid_search, isotropic_weights
 from .solution import OrbitSolution, build_solution
 
@@ -59,6 +60,13 @@ class FitOptions:
         At most this many alternatives.
     seed : int
         Seed recorded with the result and used by later random steps (sampling).
+    fixed : dict
+        Elements held at given values, keyed P, T, e, a, i, Omega, omega, in the result
+        document's units: P [yr], T in the log's epoch scale, a [arcsec], angles [deg].
+        Held in the search (P, e, T), the refinement and the degrees of freedom.
+    period_bounds : (float, float) or None
+        The period must lie in [lo, hi] yr: the search stays inside and the refinement
+        is bounded (a solution on the bound is warned of). The search range defaults to it.
     """
 
     period_range: tuple | None = None
@@ -68,6 +76,8 @@ class FitOptions:
     alternative_delta_chi2: float = 25.0
     n_alternatives: int = 3
     seed: int = 0
+    fixed: dict = field(default_factory=dict)
+    period_bounds: tuple | None = None
 
     def __post_init__(self):
         if self.loss not in ("linear", "soft_l1", "huber"):
@@ -78,6 +88,34 @@ class FitOptions:
                 raise InputError(f"period range must satisfy 0 < PMIN < PMAX; got {lo}, {hi}")
         if not self.outlier_sigma > 0:
             raise InputError("the outlier threshold must be positive")
+        if self.period_bounds is not None:
+            lo, hi = self.period_bounds
+            if not 0 < lo < hi:
+                raise InputError(f"period bounds must satisfy 0 < PMIN < PMAX; got {lo}, {hi}")
+        _check_fixed(self.fixed, self.period_bounds)
+
+
+_FIXED_LIMITS = {"P": (0.0, np.inf, "a positive period in years"),
+                 "e": (0.0, 0.995, "an eccentricity in [0, 0.995]"),
+                 "a": (0.0, np.inf, "a positive semi-major axis in arcsec"),
+                 "i": (0.0, 180.0, "an inclination in [0, 180] deg")}
+
+
+def _check_fixed(fixed, period_bounds):
+    """Refuse unknown names and impossible values of held elements."""
+    for name, value in fixed.items():
+        if name not in ELEMENT_KEYS:
+            raise InputError(f"cannot fix {name!r}: the elements are {', '.join(ELEMENT_KEYS)}")
+        if not np.isfinite(value):
+            raise InputError(f"the fixed value of {name} must be a finite number, got {value}")
+        lo, hi, what = _FIXED_LIMITS.get(name, (-np.inf, np.inf, ""))
+        strict_lo = name in ("P", "a")
+        if value > hi or value < lo or (strict_lo and value == lo):
+            raise InputError(f"the fixed value of {name} must be {what}; got {value:g}")
+    if "P" in fixed and period_bounds is not None and not (
+            period_bounds[0] <= fixed["P"] <= period_bounds[1]):
+        raise InputError(f"the fixed period {fixed['P']:g} yr lies outside the period range "
+                         f"{period_bounds[0]:g}-{period_bounds[1]:g} yr; drop one of them")
 
 
 @dataclass
@@ -89,11 +127,12 @@ class _Points:
     rho: np.ndarray
     sigma_theta: np.ndarray
     sigma_rho: np.ndarray
+    constraints: Constraints
 
     def subset(self, keep, flipped):
         theta = np.mod(self.theta + np.where(flipped, 180.0, 0.0), 360.0)
         return _Points(self.t[keep], theta[keep], self.rho[keep],
-                       self.sigma_theta[keep], self.sigma_rho[keep])
+                       self.sigma_theta[keep], self.sigma_rho[keep], self.constraints)
 
     def residuals(self, params, flipped=None):
         theta = self.theta if flipped is None else np.mod(self.theta + 180.0 * flipped, 360.0)
@@ -102,7 +141,7 @@ class _Points:
 
     def refine(self, params0, loss, max_nfev=None):
         return refine_full(params0, self.t, self.theta, self.rho,
-                           self.sigma_theta, self.sigma_rho, loss, max_nfev)
+                           self.sigma_theta, self.sigma_rho, loss, max_nfev, self.constraints)
 
     def refine_candidates(self, starts, loss):
         """Refine every start on a small budget, then finish the best without one.
@@ -155,14 +194,15 @@ def _fit(data, options):
                        f"epoch(s); an orbit needs at least {_MIN_POINTS} epochs spread in time "
                        "(measurements of one night constrain no orbit)")
     weight = np.sqrt(data.weight[usable])
+    constraints = _constraints(options, data)
     points = _Points(data.epoch_yr[usable], data.theta_deg[usable], data.rho_arcsec[usable],
                      data.sigma_theta_deg[usable] / weight,
-                     data.sigma_rho_arcsec[usable] / weight)
-    period_range = tuple(options.period_range or default_period_range(points.t))
+                     data.sigma_rho_arcsec[usable] / weight, constraints)
+    period_range = _search_range(options, points.t)
 
     starts, n_trials = _global_candidates(points, period_range)
-    first = points.refine_candidates([_near_mean_epoch(s, points.t) for s in starts],
-                                     options.loss)
+    first = points.refine_candidates(
+        [_near_mean_epoch(s, points.t, points.constraints) for s in starts], options.loss)
     best, flipped = first[0], np.zeros(points.t.size, bool)
     if options.flips:
         best, flipped = _correct_flips(points, best, options.loss)
@@ -171,13 +211,38 @@ def _fit(data, options):
     final = first
     if flipped.any() or outlier.any():   # the other minima must be refound on clean data
         final = clean.refine_candidates(
-            [_near_mean_epoch(best.params, clean.t)] + [r.params for r in first[1:]],
+            [_near_mean_epoch(best.params, clean.t, clean.constraints)]
+            + [r.params for r in first[1:]],
             options.loss)
     return build_solution(
         data=data, rows=usable, points=points, best=final[0],
-        alternatives=_distinct_alternatives(final, options, n_dof=2 * clean.t.size - 7),
+        alternatives=_distinct_alternatives(
+            final, options, n_dof=2 * clean.t.size - 7 + len(options.fixed)),
         flipped=flipped, outlier=outlier, options=options, period_range=period_range,
         n_trials=n_trials, fit_seconds=time.perf_counter() - started)
+
+
+def _constraints(options, data):
+    """The held elements in internal units (T as a Julian year) and the period bound."""
+    from .reductions import to_julian_year
+
+    fixed = {k: float(v) for k, v in options.fixed.items()}
+    if "T" in fixed:
+        fixed["T"] = float(to_julian_year(np.array([fixed["T"]]), data.epoch_scale)[0])
+    return Constraints(fixed, tuple(options.period_bounds) if options.period_bounds else None)
+
+
+def _search_range(options, t):
+    """Trial periods: the user's range, inside the bound, or a held period alone."""
+    if "P" in options.fixed:
+        return (float(options.fixed["P"]),) * 2
+    lo, hi = options.period_range or options.period_bounds or default_period_range(t)
+    if options.period_bounds is not None:
+        lo, hi = max(lo, options.period_bounds[0]), min(hi, options.period_bounds[1])
+        if not lo < hi:
+            raise InputError(f"the search range {options.period_range} lies outside the "
+                             f"period bounds {options.period_bounds}")
+    return float(lo), float(hi)
 
 
 def _global_candidates(points, period_range):
@@ -185,8 +250,11 @@ def _global_candidates(points, period_range):
     x = points.rho * np.cos(np.radians(points.theta))
     y = points.rho * np.sin(np.radians(points.theta))
     w = isotropic_weights(points.rho, points.sigma_rho, np.radians(points.sigma_theta))
-    trials, grid = grid_search(points.t, x, y, w, period_range, n_best=_N_CANDIDATES)
-    polished = sorted((refine_nonlinear(tr, points.t, x, y, w, period_range) for tr in trials),
+    fixed = points.constraints.fixed
+    trials, grid = grid_search(points.t, x, y, w, period_range, n_best=_N_CANDIDATES,
+                               e=fixed.get("e"), t_peri=fixed.get("T"))
+    polished = sorted((refine_nonlinear(tr, points.t, x, y, w, period_range,
+                                        points.constraints) for tr in trials),
                       key=lambda r: r.chi2)
     starts = []
     for r in polished:
@@ -204,13 +272,14 @@ def _same_orbit(p, q, tol=0.01):
             and np.max(np.abs(np.asarray(p[3:]) - q[3:])) < 5 * tol * scale)
 
 
-def _near_mean_epoch(params, t):
+def _near_mean_epoch(params, t, constraints):
     """Same orbit with T moved by whole periods to the passage nearest the mean epoch.
 
     T near the middle of the data has the least correlation with P.
     """
     p = np.array(params, float)
-    p[1] += p[0] * np.round((np.mean(t) - p[1]) / p[0])
+    if "T" not in constraints.fixed:
+        p[1] += p[0] * np.round((np.mean(t) - p[1]) / p[0])
     return p
 
 
@@ -249,13 +318,13 @@ def _set_aside_outliers(points, best, flipped, options, max_rounds=10):
     for _ in range(max_rounds):
         chi2_pt = _point_chi2(points, best.params, flipped)
         n_in = int((~outlier).sum())
-        red = chi2_pt[~outlier].sum() / max(2 * n_in - 7, 1)
+        red = chi2_pt[~outlier].sum() / max(2 * n_in - 7 + len(options.fixed), 1)
         dist = np.sqrt(chi2_pt / max(red, 1.0))
         new = dist > options.outlier_sigma
         if new.sum() > max_out:                      # keep only the worst ones
             new = np.zeros(n, bool)
             new[np.argsort(dist)[::-1][:max_out]] = True
-        if np.array_equal(new, outlier) or 2 * int((~new).sum()) <= 7:
+        if np.array_equal(new, outlier) or 2 * int((~new).sum()) <= 7 - len(options.fixed):
             break
         outlier = new
         best = points.subset(~outlier, flipped).refine(best.params, options.loss)

@@ -3,21 +3,46 @@
 Two stages: ``refine_nonlinear`` polishes a grid cell in (P, e, T) with the Thiele-Innes
 constants still solved linearly (variable projection, exact Kepler solutions);
 ``refine_full`` then fits all seven parameters with lmfit's Levenberg-Marquardt on the
-proper tangential and radial residuals.
+proper tangential and radial residuals. Both honour ``Constraints``: elements held at
+given values and a period bound. When a Campbell element (a, i, Omega, omega) is held,
+the full refinement runs in Campbell elements instead (``refine_campbell``), since a
+fixed a or angle is a non-linear constraint on A, B, F, G.
 """
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
+from .elements import campbell_from_thiele_innes, thiele_innes_from_campbell
 from .kepler import eccentric_anomaly, mean_anomaly
 from .model import FIT_KEYS, normalised_residuals, residual_jacobian
-from .search import linear_thiele_innes
 
-__all__ = ["Refined", "refine_nonlinear", "refine_full"]
+__all__ = ["Constraints", "Refined", "refine_nonlinear", "refine_full", "refine_campbell",
+           "thiele_innes_jacobian"]
 
 _E_MAX = 0.995
+CAMPBELL_KEYS = ("P", "T", "e", "a", "i", "Omega", "omega")
+
+
+@dataclass(frozen=True)
+class Constraints:
+    """Elements held fixed and the period bound, in internal units.
+
+    fixed : dict
+        Keys from P, T, e, a, i, Omega, omega; P [yr], T [Julian yr], a [arcsec],
+        angles [deg].
+    period_bounds : (float, float) or None
+        The refined period stays within [lo, hi] yr.
+    """
+
+    fixed: dict = field(default_factory=dict)
+    period_bounds: tuple | None = None
+
+    @property
+    def campbell(self):
+        """Whether a Campbell element is held (refinement then in Campbell elements)."""
+        return any(k in self.fixed for k in ("a", "i", "Omega", "omega"))
 
 
 @dataclass(frozen=True)
@@ -35,32 +60,89 @@ def _basis(t, period, t_peri, e):
     return np.cos(E) - e, np.sqrt(1.0 - e**2) * np.sin(E)
 
 
-def refine_nonlinear(trial, t, x, y, w, period_range):
-    """Polish a search cell in (ln P, e, T), solving A, B, F, G linearly each step."""
+def refine_nonlinear(trial, t, x, y, w, period_range, constraints=Constraints()):
+    """Polish a search cell in (ln P, e, T), solving A, B, F, G linearly each step.
+
+    Elements P, e, T held by ``constraints`` stay at their values.
+    """
     from scipy.optimize import least_squares
 
+    from .search import linear_thiele_innes
+
     sw = np.sqrt(w)
+    fixed = constraints.fixed
+    q_all = np.array([np.log(fixed.get("P", trial.period)), fixed.get("e", trial.e),
+                      fixed.get("T", trial.t_peri)], float)
+    free = np.array([k not in fixed for k in ("P", "e", "T")])
+
+    def full(q):
+        v = q_all.copy()
+        v[free] = q
+        return np.exp(v[0]), v[1], v[2]
 
     def resid(q):
-        period, e, t_peri = np.exp(q[0]), q[1], q[2]
+        period, e, t_peri = full(q)
         X, Y = _basis(t, period, t_peri, e)
         A, B, F, G, _ = linear_thiele_innes(X, Y, x, y, w)
         return np.concatenate([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)])
 
-    lo = [np.log(period_range[0]), 0.0, trial.t_peri - trial.period]
-    hi = [np.log(period_range[1]), _E_MAX, trial.t_peri + trial.period]
-    q0 = np.clip([np.log(trial.period), trial.e, trial.t_peri], lo, hi)
-    q0[1] = min(q0[1], _E_MAX - 1e-3)
-    # A polish only (the full refinement follows), so loose tolerances suffice.
-    sol = least_squares(resid, q0, bounds=(lo, hi), x_scale="jac", max_nfev=40,
-                        ftol=1e-4, xtol=1e-4)
-    period, e, t_peri = np.exp(sol.x[0]), sol.x[1], sol.x[2]
+    if free.any():
+        lo = np.array([np.log(period_range[0]), 0.0, trial.t_peri - trial.period])[free]
+        hi = np.array([np.log(period_range[1]), _E_MAX, trial.t_peri + trial.period])[free]
+        q0 = np.clip(q_all[free], lo, hi)
+        if free[1]:
+            q0[np.flatnonzero(free).tolist().index(1)] = min(q_all[1], _E_MAX - 1e-3)
+        # A polish only (the full refinement follows), so loose tolerances suffice.
+        q = least_squares(resid, q0, bounds=(lo, hi), x_scale="jac", max_nfev=40,
+                          ftol=1e-4, xtol=1e-4).x
+    else:
+        q = q_all[free]
+    period, e, t_peri = full(q)
     A, B, F, G, chi2 = linear_thiele_innes(*_basis(t, period, t_peri, e), x, y, w)
     return Refined(np.array([period, t_peri, e, A, B, F, G]), float(chi2))
 
 
-def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear", max_nfev=None):
-    """Least-squares fit of all seven parameters with lmfit.
+def _period_limits(p0, constraints):
+    if constraints.period_bounds is not None:
+        return constraints.period_bounds
+    return 1e-3 * p0, 1e3 * p0
+
+
+def _add_parameters(pars, values, constraints):
+    """P, T, e with their limits; held elements do not vary."""
+    lo, hi = _period_limits(values[0], constraints)
+    fixed = constraints.fixed
+    pars.add("P", value=fixed.get("P", min(max(values[0], lo), hi)), min=lo, max=hi,
+             vary="P" not in fixed)
+    pars.add("T", value=fixed.get("T", values[1]), vary="T" not in fixed)
+    e = fixed.get("e", min(max(values[2], 1e-4), _E_MAX - 1e-3))
+    pars.add("e", value=e, min=0.0, max=max(_E_MAX, e), vary="e" not in fixed)
+
+
+def _minimize(resid, jacobian, pars, loss, max_nfev):
+    import lmfit
+
+    if loss == "linear":
+        return lmfit.minimize(resid, pars, method="leastsq", scale_covar=False, Dfun=jacobian,
+                              col_deriv=0, max_nfev=max_nfev)
+    return lmfit.minimize(resid, pars, method="least_squares", loss=loss,
+                          scale_covar=False, Dfun=jacobian, max_nfev=max_nfev)
+
+
+def _full_covariance(out, keys):
+    """lmfit's covariance of the varied parameters embedded in a 7x7 (zeros when held)."""
+    covar = getattr(out, "covar", None)
+    if covar is None:
+        return None
+    index = [keys.index(k) for k in out.var_names]
+    full = np.zeros((len(keys), len(keys)))
+    full[np.ix_(index, index)] = covar
+    return full
+
+
+def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear", max_nfev=None,
+                constraints=Constraints()):
+    """Least-squares fit of the seven parameters with lmfit.
 
     Parameters
     ----------
@@ -73,42 +155,119 @@ def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear", m
         least squares through lmfit.
     max_nfev : int, optional
         Budget of model evaluations; ``success`` is False when it ran out.
+    constraints : Constraints
+        Held elements and the period bound; with a Campbell element held the fit runs
+        in Campbell elements (``refine_campbell``).
 
     Returns
     -------
     Refined
-        With the unscaled covariance (inverse curvature of chi2) when it exists.
+        With the unscaled covariance (inverse curvature of chi2) when it exists; rows and
+        columns of held elements are zero.
     """
+    if constraints.campbell:
+        return refine_campbell(params0, t, theta, rho, sigma_theta, sigma_rho, loss,
+                               max_nfev, constraints)
     import lmfit
 
-    P0, T0, e0 = params0[:3]
     pars = lmfit.Parameters()
-    pars.add("P", value=P0, min=1e-3 * P0, max=1e3 * P0)
-    pars.add("T", value=T0)
-    pars.add("e", value=min(max(e0, 1e-4), _E_MAX - 1e-3), min=0.0, max=_E_MAX)
+    _add_parameters(pars, params0, constraints)
     for key, value in zip("ABFG", params0[3:]):
         pars.add(key, value=value)
+    free = [k for k in FIT_KEYS if pars[k].vary]
+
+    def values(p):
+        return np.array([p[k].value for k in FIT_KEYS])
 
     def resid(p):
-        v = np.array([p[k].value for k in FIT_KEYS])
-        r_theta, r_rho, _, _ = normalised_residuals(v, t, theta, rho, sigma_theta, sigma_rho)
+        r_theta, r_rho, _, _ = normalised_residuals(values(p), t, theta, rho,
+                                                    sigma_theta, sigma_rho)
         return np.concatenate([r_theta, r_rho])
 
     def jacobian(p):
-        return residual_jacobian(np.array([p[k].value for k in FIT_KEYS]), t,
-                                 sigma_theta, sigma_rho)
+        jac = residual_jacobian(values(p), t, sigma_theta, sigma_rho)
+        return jac[:, [FIT_KEYS.index(k) for k in free]]
 
-    if loss == "linear":
-        out = lmfit.minimize(resid, pars, method="leastsq", scale_covar=False, Dfun=jacobian,
-                             col_deriv=0, max_nfev=max_nfev)
-    else:
-        out = lmfit.minimize(resid, pars, method="least_squares", loss=loss,
-                             scale_covar=False, Dfun=jacobian, max_nfev=max_nfev)
-    best = np.array([out.params[k].value for k in FIT_KEYS])
+    out = _minimize(resid, jacobian, pars, loss, max_nfev)
     chi2 = float(np.sum(resid(out.params) ** 2))
-    covar = out.covar if getattr(out, "covar", None) is not None else None
-    if covar is not None and list(out.var_names) != list(FIT_KEYS):
-        order = [list(out.var_names).index(k) for k in FIT_KEYS]
-        covar = covar[np.ix_(order, order)]
-    return Refined(best, chi2, covar, bool(out.success))
+    return Refined(values(out.params), chi2, _full_covariance(out, list(FIT_KEYS)),
+                   bool(out.success))
 
+
+def thiele_innes_jacobian(a, i_deg, node_deg, omega_deg):
+    """d(A, B, F, G) / d(a, i, Omega, omega), angles in degrees (4 x 4).
+
+    Differentiating A = a(cos w cos W - sin w sin W cos i) and its three siblings:
+    d/dW maps (A, B, F, G) to (-B, A, -G, F) and d/dw to (F, G, -A, -B).
+    """
+    i, node, omega = np.radians([i_deg, node_deg, omega_deg])
+    A, B, F, G = thiele_innes_from_campbell(a, i, node, omega)
+    si = np.sin(i)
+    sw, cw, sn, cn = np.sin(omega), np.cos(omega), np.sin(node), np.cos(node)
+    d_a = np.array(thiele_innes_from_campbell(1.0, i, node, omega))
+    d_i = a * si * np.array([sw * sn, -sw * cn, cw * sn, -cw * cn])
+    d_node = np.array([-B, A, -G, F])
+    d_omega = np.array([F, G, -A, -B])
+    return np.column_stack([d_a, np.radians(1.0) * d_i, np.radians(1.0) * d_node,
+                            np.radians(1.0) * d_omega])
+
+
+def _campbell_start(params0, fixed):
+    """Campbell start from (P, T, e, A, B, F, G), held values imposed.
+
+    A held node 180 deg away from the start's (the node ambiguity) turns omega too.
+    """
+    a, i, node, omega = campbell_from_thiele_innes(*params0[3:])
+    start = {"a": float(a), "i": float(np.degrees(i)), "Omega": float(np.degrees(node)),
+             "omega": float(np.degrees(omega))}
+    if "Omega" in fixed and np.cos(np.radians(fixed["Omega"] - start["Omega"])) < 0:
+        start["omega"] += 180.0
+    start.update({k: v for k, v in fixed.items() if k in start})
+    return start
+
+
+def refine_campbell(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear",
+                    max_nfev=None, constraints=Constraints()):
+    """``refine_full`` in Campbell elements, for held a, i, Omega or omega.
+
+    Returns the solution in (P, T, e, A, B, F, G) with the covariance carried over
+    exactly through the Thiele-Innes Jacobian (singular where held).
+    """
+    import lmfit
+
+    pars = lmfit.Parameters()
+    _add_parameters(pars, params0, constraints)
+    start, fixed = _campbell_start(params0, constraints.fixed), constraints.fixed
+    pars.add("a", value=start["a"], min=0.0, vary="a" not in fixed)
+    pars.add("i", value=start["i"], min=0.0, max=180.0, vary="i" not in fixed)
+    pars.add("Omega", value=start["Omega"], vary="Omega" not in fixed)
+    pars.add("omega", value=start["omega"], vary="omega" not in fixed)
+    free = [k for k in CAMPBELL_KEYS if pars[k].vary]
+
+    def campbell(p):
+        return np.array([p[k].value for k in CAMPBELL_KEYS])
+
+    def to_fit(c):
+        return np.concatenate([c[:3], thiele_innes_from_campbell(c[3], *np.radians(c[4:]))])
+
+    def resid(p):
+        r_theta, r_rho, _, _ = normalised_residuals(to_fit(campbell(p)), t, theta, rho,
+                                                    sigma_theta, sigma_rho)
+        return np.concatenate([r_theta, r_rho])
+
+    def chain(c):
+        jac = np.eye(7)
+        jac[3:, 3:] = thiele_innes_jacobian(*c[3:])
+        return jac
+
+    def jacobian(p):
+        c = campbell(p)
+        jac = residual_jacobian(to_fit(c), t, sigma_theta, sigma_rho) @ chain(c)
+        return jac[:, [CAMPBELL_KEYS.index(k) for k in free]]
+
+    out = _minimize(resid, jacobian, pars, loss, max_nfev)
+    c = campbell(out.params)
+    cov = _full_covariance(out, list(CAMPBELL_KEYS))
+    chi2 = float(np.sum(resid(out.params) ** 2))
+    return Refined(to_fit(c), chi2, None if cov is None else chain(c) @ cov @ chain(c).T,
+                   bool(out.success))

@@ -101,14 +101,14 @@ def _period_grid(pmin, pmax, span):
     return np.array(periods[:-1] + [pmax]) if periods[-1] > pmax else np.array(periods)
 
 
-def _anomaly_tables():
+def _anomaly_tables(eccentricities):
     mean_anom = 2.0 * np.pi * np.arange(_MEAN_ANOMALY_STEPS) / _MEAN_ANOMALY_STEPS
-    E = eccentric_anomaly(mean_anom[None, :], _ECCENTRICITIES[:, None])
-    e = _ECCENTRICITIES[:, None]
+    E = eccentric_anomaly(mean_anom[None, :], eccentricities[:, None])
+    e = eccentricities[:, None]
     return np.cos(E) - e, np.sqrt(1.0 - e**2) * np.sin(E)
 
 
-def grid_search(t, x, y, w, period_range, n_best=12):
+def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
     """Scan the (P, e, T) grid and return the best trials at distinct periods.
 
     Parameters
@@ -119,6 +119,9 @@ def grid_search(t, x, y, w, period_range, n_best=12):
         Shortest and longest trial period [yr].
     n_best : int
         Number of local minima of the chi2-versus-period profile to return.
+    e, t_peri : float, optional
+        Held eccentricity and periastron epoch [Julian yr]: the grid then has only that
+        eccentricity, or only that phase at each period.
 
     Returns
     -------
@@ -126,13 +129,14 @@ def grid_search(t, x, y, w, period_range, n_best=12):
         Best cell of each of the n_best deepest local minima over period, best first.
     grid : SearchGrid
     """
-    t0 = float(np.average(t, weights=w))
+    t0 = float(np.average(t, weights=w)) if t_peri is None else float(t_peri)
     dt = t - t0
     periods = _period_grid(*period_range, span=float(np.ptp(t)))
-    tab_x, tab_y = _anomaly_tables()
-    phases = np.arange(_PHASE_STEPS) / _PHASE_STEPS
-    n_e, n = len(_ECCENTRICITIES), len(t)
-    chunk = max(1, _CHUNK_ELEMENTS // (n_e * _PHASE_STEPS * n))
+    eccentricities = _ECCENTRICITIES if e is None else np.array([float(e)])
+    tab_x, tab_y = _anomaly_tables(eccentricities)
+    phases = np.arange(_PHASE_STEPS if t_peri is None else 1) / _PHASE_STEPS
+    n_e, n_phase, n = len(eccentricities), len(phases), len(t)
+    chunk = max(1, _CHUNK_ELEMENTS // (n_e * n_phase * n))
     best_chi2 = np.empty(len(periods))
     best_cell = np.empty((len(periods), 2), int)
     # float32 halves the memory traffic; the coarse chi2 only has to rank cells
@@ -145,16 +149,16 @@ def grid_search(t, x, y, w, period_range, n_best=12):
         idx = (frac * _MEAN_ANOMALY_STEPS).astype(np.intp) % _MEAN_ANOMALY_STEPS
         X = np.take(tab_x, idx, axis=1).reshape(-1, n)    # (e * P * phase, point)
         Y = np.take(tab_y, idx, axis=1).reshape(-1, n)
-        chi2 = linear_thiele_innes(X, Y, x32, y32, w32)[4].reshape(n_e, len(p), _PHASE_STEPS)
+        chi2 = linear_thiele_innes(X, Y, x32, y32, w32)[4].reshape(n_e, len(p), n_phase)
         flat = chi2.transpose(1, 0, 2).reshape(len(p), -1)
         k = np.argmin(flat, axis=1)
         best_chi2[start:start + chunk] = flat[np.arange(len(p)), k]
-        best_cell[start:start + chunk] = np.column_stack(np.unravel_index(k, (n_e, _PHASE_STEPS)))
+        best_cell[start:start + chunk] = np.column_stack(np.unravel_index(k, (n_e, n_phase)))
     minima = _profile_minima(best_chi2)[:n_best]
-    trials = [Trial(period=float(periods[j]), e=float(_ECCENTRICITIES[best_cell[j, 0]]),
+    trials = [Trial(period=float(periods[j]), e=float(eccentricities[best_cell[j, 0]]),
                     t_peri=t0 + phases[best_cell[j, 1]] * periods[j], chi2=float(best_chi2[j]))
               for j in minima]
-    n_trials = len(periods) * n_e * _PHASE_STEPS
+    n_trials = len(periods) * n_e * n_phase
     return trials, SearchGrid(periods, best_chi2, n_trials)
 
 

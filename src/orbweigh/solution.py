@@ -83,7 +83,8 @@ class OrbitSolution:
         from . import __version__
         scale = self.data.epoch_scale
         doc = {"schema": SCHEMA, "source": str(self.data.source),
-               "elements": _elements_block(self.elements, self.errors, scale),
+               "elements": _elements_block(self.elements, self.errors, scale,
+                                           self.options.fixed),
                "thiele_innes": {k: _entry(self.thiele_innes[k], self.thiele_innes_errors[k],
                                           "arcsec") for k in "ABFG"},
                "covariance": None if self.covariance is None else {
@@ -98,6 +99,9 @@ class OrbitSolution:
                            "loss": self.options.loss, "flips": self.options.flips,
                            "outlier_sigma": self.options.outlier_sigma,
                            "alternative_delta_chi2": self.options.alternative_delta_chi2},
+               "fit": {"fixed": {k: float(v) for k, v in self.options.fixed.items()},
+                       "period_bounds": (None if self.options.period_bounds is None else
+                                         [float(p) for p in self.options.period_bounds])},
                "warnings": list(self.warnings), "notes": list(self.notes),
                "seed": int(self.options.seed), "version": __version__}
         return doc
@@ -148,12 +152,15 @@ def _entry(value, error, unit):
             "unit": unit}
 
 
-def _elements_block(elements, errors, scale):
+def _elements_block(elements, errors, scale, fixed=()):
+    """Elements in the document's units; held ones carry "fixed": true and no error."""
     values = elements.to_keys()
     block = {}
     for k in ELEMENT_KEYS:
-        err = None if errors is None else errors.get(k)
+        err = None if errors is None or k in fixed else errors.get(k)
         block[k] = _entry(values[k], err, ELEMENT_UNITS[k])
+        if k in fixed:
+            block[k]["fixed"] = True
     block["T"]["value"] = float(from_julian_year(values["T"], scale))
     if block["T"]["error"] is not None:
         block["T"]["error"] = float(interval_in_scale(block["T"]["error"], scale))
@@ -171,20 +178,21 @@ def _campbell_vector(params):
 def campbell_covariance(params, fit_covariance):
     """Propagate the (P, T, e, A, B, F, G) covariance to Campbell elements.
 
-    Central differences of the exact inversion; angle differences are wrapped so the
-    node's 180 deg normalisation cannot create a jump.
+    The Jacobian of (a, i, Omega, omega) with respect to (A, B, F, G) is the inverse of
+    the analytic forward one (``refine.thiele_innes_jacobian``): no finite step, so none
+    can cross the Omega = 0/180 deg seam where omega jumps by 180 deg. It is singular
+    only for an exactly face-on orbit, where Omega and omega are individually undefined
+    (the pseudo-inverse then gives finite but meaningless angle errors; a warning says so).
     """
-    params = np.asarray(params, float)
-    jac = np.zeros((7, 7))
-    for k in range(7):
-        h = 1e-6 * max(abs(params[k]), 1e-3)
-        up, down = params.copy(), params.copy()
-        up[k] += h
-        down[k] -= h
-        diff = _campbell_vector(up) - _campbell_vector(down)
-        diff[4:] = wrap_degrees(diff[4:])
-        diff[5] = 90.0 - np.mod(90.0 - diff[5], 180.0)  # node is modulo 180 deg
-        jac[:, k] = diff / (2 * h)
+    from .refine import thiele_innes_jacobian
+
+    vec = _campbell_vector(np.asarray(params, float))
+    jac = np.eye(7)
+    forward = thiele_innes_jacobian(*vec[3:])
+    try:
+        jac[3:, 3:] = np.linalg.inv(forward)
+    except np.linalg.LinAlgError:
+        jac[3:, 3:] = np.linalg.pinv(forward)
     return jac @ fit_covariance @ jac.T
 
 
@@ -193,14 +201,15 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     """Assemble an ``OrbitSolution`` from the fit's pieces (see fitting.fit_orbit)."""
     params = best.params
     n_fit = int((~outlier).sum())
-    dof = max(2 * n_fit - 7, 1)
+    dof = max(2 * n_fit - 7 + len(options.fixed), 1)
     reduced = best.chi2 / dof
     scale = max(reduced, 1.0)
     fit_cov = None if best.covariance is None else best.covariance * scale
     vec = _campbell_vector(params)
     elements = CampbellElements(*vec)
     cov = None if fit_cov is None else campbell_covariance(params, fit_cov)
-    errors = {k: (None if cov is None else float(np.sqrt(max(cov[j, j], 0.0))))
+    errors = {k: (None if cov is None or k in options.fixed
+                  else float(np.sqrt(max(cov[j, j], 0.0))))
               for j, k in enumerate(ELEMENT_KEYS)}
     ti = dict(zip("ABFG", params[3:]))
     ti_err = {k: (None if fit_cov is None else float(np.sqrt(max(fit_cov[3 + j, 3 + j], 0.0))))
@@ -285,6 +294,15 @@ def _warnings(sol, data, rows, flipped, outlier, best):
         out.append(f"{' and '.join(undetermined)} undetermined (error above half the value): "
                    "the data constrain only the motion along the observed arc. Do not use "
                    "these elements, nor any mass from them.")
+    bounds = sol.options.period_bounds
+    if bounds is not None and "P" not in sol.options.fixed and any(
+            abs(np.log(el.period_yr / b)) < 1e-3 for b in bounds):
+        out.append(f"The period {el.period_yr:.4g} yr sits on the bound {bounds[0]:g}-"
+                   f"{bounds[1]:g} yr: the data prefer a period outside it, so the elements "
+                   "are those of the best orbit allowed, not of a minimum.")
+    if sol.options.fixed:
+        out.append("Held fixed (no error, not counted in the degrees of freedom): "
+                   + ", ".join(f"{k} = {v:g}" for k, v in sol.options.fixed.items()) + ".")
     if best.covariance is None:
         out.append("The covariance could not be estimated (degenerate solution): "
                    "no uncertainties are given.")

@@ -19,6 +19,8 @@ def _digits(error):
 def _value(entry):
     value, error, unit = entry["value"], entry.get("error"), entry.get("unit", "")
     d = _digits(error)
+    if entry.get("fixed"):
+        return f"{value:g} {unit} (fixed)".replace("  ", " ")
     text = f"{value:.{d}f}" + (f" ± {error:.{d}f}" if error is not None else " (no error)")
     return f"{text} {unit}".rstrip()
 

@@ -9,7 +9,7 @@ from pathlib import Path
 from ..files import write_atomic
 from .common import add_log_arguments, add_mass_arguments, check_mass_arguments, load_log
 
-__all__ = ["add_arguments", "run"]
+__all__ = ["add_arguments", "run", "parse_fixed"]
 
 
 def add_arguments(parser):
@@ -27,8 +27,14 @@ def add_arguments(parser):
                         help="with --rv and --parallax: masses from the weighted mean of the "
                              "orbital and trigonometric parallaxes (default: orbital only)")
     parser.add_argument("--period-range", nargs=2, type=float, metavar=("PMIN", "PMAX"),
-                        help="search periods between PMIN and PMAX years (default: from the "
-                             "sampling, up to 20 times the time span)")
+                        help="the period lies between PMIN and PMAX years: a bound of the "
+                             "search and the refinement, warned of when the solution sits "
+                             "on it (default: search from the sampling, up to 20 times the "
+                             "time span, unbounded)")
+    parser.add_argument("--fix", action="append", default=[], metavar="NAME=VALUE",
+                        help="hold an element at VALUE (repeatable; NAME one of P, T, e, a, "
+                             "i, Omega, omega; P in yr, T in the log's epoch scale, a in "
+                             "arcsec, angles in deg), e.g. --fix e=0 for a circular orbit")
     parser.add_argument("--loss", choices=("linear", "soft_l1", "huber"), default="linear",
                         help="loss of the refinement (default linear = plain least squares)")
     parser.add_argument("--no-flips", action="store_true",
@@ -54,9 +60,10 @@ def run(args):
     _check_sampling_arguments(args)
     velocities = _read_velocities(args)  # before the fit: a bad log fails fast
     data = load_log(args)
-    options = FitOptions(period_range=tuple(args.period_range) if args.period_range else None,
+    options = FitOptions(period_bounds=tuple(args.period_range) if args.period_range else None,
                          loss=args.loss, flips=not args.no_flips,
-                         outlier_sigma=args.outlier_sigma, seed=args.seed)
+                         outlier_sigma=args.outlier_sigma, seed=args.seed,
+                         fixed=parse_fixed(args.fix))
     solution = fit_orbit(data, options)
     doc = solution.to_document()
     if args.sample and not args.rv:   # with --rv the joint posterior is sampled instead
@@ -87,6 +94,27 @@ def run(args):
         print(f"report: {Path(args.report) / 'report.html'} ({len(written)} files)",
               file=sys.stderr if args.json == "-" else sys.stdout)
     return 0
+
+
+def parse_fixed(items):
+    """{name: value} from --fix NAME=VALUE items (names checked by FitOptions)."""
+    from ..errors import InputError
+
+    fixed = {}
+    for item in items:
+        name, sep, value = item.partition("=")
+        name = name.strip()
+        try:
+            number = float(value)
+        except ValueError:
+            number = None
+        if not sep or not name or number is None:
+            raise InputError(f"--fix {item!r}: expected NAME=VALUE with a number, e.g. "
+                             "--fix e=0 or --fix P=25.3")
+        if name in fixed:
+            raise InputError(f"--fix gives {name} twice; give each element once")
+        fixed[name] = number
+    return fixed
 
 
 def _read_velocities(args):

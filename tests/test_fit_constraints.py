@@ -1,0 +1,120 @@
+"""Held elements (--fix), the period bound (--period-range) and the analytic Campbell
+covariance, on synthetic logs from tests/synthetic.py (independent of orbweigh's model:
+brentq Kepler solutions and 3-D rotation matrices)."""
+import math
+
+import mpmath
+import numpy as np
+import pytest
+
+from orbweigh.errors import InputError
+from orbweigh.fitting import FitOptions, fit_orbit
+from orbweigh.solution import campbell_covariance
+from synthetic import make_log
+
+TRUTH = dict(P=24.0, T=2015.0, e=0.5, a=0.85, i=48.0, Omega=112.0, omega=250.0)
+
+
+def _log(truth, n=30, cycles=1.3, seed=7, sigma_theta=0.5, sigma_rho=0.005):
+    epochs = np.linspace(2000.0, 2000.0 + cycles * truth["P"], n)
+    return make_log(truth, epochs, sigma_theta, sigma_rho, seed=seed)
+
+
+def test_fixed_eccentricity_of_a_circular_orbit():
+    # A circular truth fitted with e held at 0: e is exactly 0, marked fixed with no
+    # error, and the degrees of freedom are 2n - 6 (six free parameters).
+    truth = dict(TRUTH, e=0.0, omega=0.0)
+    sol = fit_orbit(_log(truth), FitOptions(fixed={"e": 0.0}))
+    assert sol.elements.e == 0.0
+    assert sol.errors["e"] is None and sol.dof == 2 * 30 - 6
+    doc = sol.to_document()
+    assert doc["elements"]["e"]["fixed"] is True and doc["elements"]["e"]["error"] is None
+    assert doc["fit"] == {"fixed": {"e": 0.0}, "period_bounds": None}
+    # the other elements recovered within 4 sigma (common practice, no source)
+    assert abs(sol.elements.period_yr - 24.0) < 4 * sol.errors["P"]
+    assert abs(sol.elements.a_arcsec - 0.85) < 4 * sol.errors["a"]
+
+
+def test_fixed_period_is_held_and_the_rest_recovered():
+    # P held at its true value on a 40 % arc: the other elements from the arc alone.
+    sol = fit_orbit(_log(TRUTH, n=20, cycles=0.4), FitOptions(fixed={"P": 24.0}))
+    assert sol.elements.period_yr == 24.0 and sol.errors["P"] is None
+    assert sol.dof == 2 * 20 - 6
+    for key, true in (("e", 0.5), ("a", 0.85), ("i", 48.0)):
+        assert abs(sol.elements.to_keys()[key] - true) < 4 * sol.errors[key], key
+
+
+def test_fixed_campbell_angle_is_a_constrained_refinement():
+    # i held 10 deg off the truth: the refinement must keep i exactly, and the fit is
+    # then worse than the free one by far more than the noise (chi2 difference >> 1).
+    data = _log(TRUTH)
+    free = fit_orbit(data)
+    held = fit_orbit(data, FitOptions(fixed={"i": 58.0, "a": 0.85}))
+    assert held.elements.i_deg == pytest.approx(58.0, abs=1e-9)
+    assert held.elements.a_arcsec == pytest.approx(0.85, abs=1e-12)
+    assert held.errors["i"] is None and held.errors["a"] is None
+    assert held.dof == free.dof + 2 and held.chi2 > free.chi2 + 100
+    # held at the truth instead, the constrained fit is as good as the free one
+    truth_held = fit_orbit(data, FitOptions(fixed={"i": 48.0, "Omega": 112.0}))
+    assert truth_held.chi2 < free.chi2 + 10
+    assert abs(truth_held.elements.period_yr - 24.0) < 4 * truth_held.errors["P"]
+
+
+def test_fixed_periastron_in_the_log_scale():
+    # T given in the log's scale (here Julian years, the synthetic logs' scale)
+    sol = fit_orbit(_log(TRUTH), FitOptions(fixed={"T": 2015.0}))
+    assert sol.elements.periastron_yr == pytest.approx(2015.0, abs=1e-9)
+    assert sol.to_document()["elements"]["T"]["fixed"] is True
+
+
+def test_period_range_is_a_bound():
+    # The truth (24 yr) lies outside 30-40 yr: the answer must stay inside and say so.
+    sol = fit_orbit(_log(TRUTH), FitOptions(period_bounds=(30.0, 40.0)))
+    assert 30.0 <= sol.elements.period_yr <= 40.0
+    assert any("sits on the bound" in w for w in sol.warnings)
+    assert sol.to_document()["fit"]["period_bounds"] == [30.0, 40.0]
+    inside = fit_orbit(_log(TRUTH), FitOptions(period_bounds=(20.0, 30.0)))
+    assert abs(inside.elements.period_yr - 24.0) < 4 * inside.errors["P"]
+    assert not any("sits on the bound" in w for w in inside.warnings)
+
+
+@pytest.mark.parametrize("fixed", [{"x": 1.0}, {"e": 1.2}, {"P": -3.0}, {"i": 200.0}])
+def test_bad_fixed_values_are_refused(fixed):
+    with pytest.raises(InputError):
+        FitOptions(fixed=fixed)
+
+
+def _campbell_mp(A, B, F, G):
+    """(a, i, Omega, omega) [deg] from (A, B, F, G) with mpmath, on the continuous branch
+    of Omega near the given one (no 180 deg normalisation): the sums w +- W from atan2
+    (Heintz, Double Stars, 1978, ch. 4, the Thiele-Innes relations)."""
+    p = mpmath.sqrt((A + G) ** 2 + (B - F) ** 2)
+    q = mpmath.sqrt((A - G) ** 2 + (B + F) ** 2)
+    wp, wm = mpmath.atan2(B - F, A + G), mpmath.atan2(-B - F, A - G)
+    return [(p + q) / 2, mpmath.degrees(2 * mpmath.atan2(mpmath.sqrt(q), mpmath.sqrt(p))),
+            mpmath.degrees((wp - wm) / 2), mpmath.degrees((wp + wm) / 2)]
+
+
+@pytest.mark.parametrize("node_deg", [1e-5, 179.99999, 90.0])
+def test_campbell_covariance_across_the_node_seam(node_deg):
+    from orbweigh.elements import thiele_innes_from_campbell
+
+    mpmath.mp.dps = 40
+    a, i, omega = 0.85, 48.0, 250.0
+    ti = thiele_innes_from_campbell(a, *np.radians([i, node_deg, omega]))
+    params = np.array([24.0, 2015.0, 0.5, *ti])
+    cov = np.diag([0.1, 0.2, 0.01, 1e-6, 2e-6, 3e-6, 4e-6])
+    # independent Jacobian: mpmath central differences on the continuous branch
+    jac = np.eye(7)
+    x = [mpmath.mpf(float(v)) for v in ti]
+    h = mpmath.mpf("1e-15")
+    for k in range(4):
+        up, down = list(x), list(x)
+        up[k] += h
+        down[k] -= h
+        jac[3:, 3 + k] = [float((u - d) / (2 * h))
+                          for u, d in zip(_campbell_mp(*up), _campbell_mp(*down))]
+    expected = jac @ cov @ jac.T
+    got = campbell_covariance(params, cov)
+    np.testing.assert_allclose(got, expected, rtol=1e-6, atol=1e-12)
+    assert math.sqrt(got[6, 6]) < 1.0    # sigma(omega) a fraction of a degree, not 4e4
