@@ -33,8 +33,8 @@ from .elements import ELEMENT_KEYS, CampbellElements
 from .ephemeris import ephemeris, ephemeris_bands
 from .errors import InputError
 from .reductions import to_julian_year
-from .result import (covariance_from_document, element_draws, elements_from_document,
-                     epoch_scale_of)
+from .result import (covariance_from_document, element_draws, element_errors,
+                     elements_from_document, epoch_scale_of, independent_draws)
 
 __all__ = ["EpochAdvice", "Plan", "dawes_limit_arcsec", "centred_draws", "element_covariance",
            "position_jacobian", "variance_gains", "pick_epochs",
@@ -259,7 +259,7 @@ def pick_epochs(epoch_yr, score, top, min_separation_yr):
 
 
 def plan_observations(doc, epochs, sigma_arcsec=0.005, aperture_mm=None, top=3,
-                      n_draws=1000, seed=1, min_separation_yr=0.5):
+                      n_draws=1000, seed=1, min_separation_yr=0.5, epoch_scale=None):
     """Advise when one new measurement best improves P, a and the mass.
 
     Parameters
@@ -267,7 +267,7 @@ def plan_observations(doc, epochs, sigma_arcsec=0.005, aperture_mm=None, top=3,
     doc : dict
         Result document with a covariance or posterior draws.
     epochs : array_like
-        Candidate epochs in the document's scale (sorted).
+        Candidate epochs in ``epoch_scale`` (sorted).
     sigma_arcsec : float
         Expected precision of the new measurement in x and in y [arcsec].
     aperture_mm : float, optional
@@ -278,6 +278,8 @@ def plan_observations(doc, epochs, sigma_arcsec=0.005, aperture_mm=None, top=3,
         Element draws for the bands (and for the covariance of a posterior).
     min_separation_yr : float
         Smallest gap between two recommended epochs [Julian yr].
+    epoch_scale : str, optional
+        Scale of ``epochs`` (default: that of the document's T).
 
     Returns
     -------
@@ -292,14 +294,22 @@ def plan_observations(doc, epochs, sigma_arcsec=0.005, aperture_mm=None, top=3,
     if not min_separation_yr >= 0:
         raise InputError(f"--min-separation must not be negative, got {min_separation_yr}")
     draws = element_draws(doc, n_draws, seed)
+    independent = draws is None
+    if independent:
+        draws = independent_draws(doc, n_draws, seed)
     if draws is None:
         raise InputError(f"{doc.get('_path', 'result document')}: no posterior draws and no "
                          "covariance; planning needs the uncertainty of the elements, so use "
-                         "a result written by 'orbweigh fit --json'")
+                         "a result written by 'orbweigh fit --json' or elements with errors")
     epochs = np.asarray(epochs, float)
-    t = to_julian_year(epochs, epoch_scale_of(doc))
+    t = to_julian_year(epochs, epoch_scale if epoch_scale else epoch_scale_of(doc))
     elements = elements_from_document(doc)
-    cov, source = element_covariance(doc, draws)
+    if independent:
+        errors = element_errors(doc)
+        cov = np.diag([errors.get(k, 0.0) ** 2 for k in ELEMENT_KEYS])
+        source = "element errors taken as independent (correlations unknown)"
+    else:
+        cov, source = element_covariance(doc, draws)
     P, a = elements.period_yr, elements.a_arcsec
     grads = np.zeros((3, 7))
     grads[0, 0], grads[1, 3] = 1.0, 1.0

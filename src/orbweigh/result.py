@@ -27,10 +27,11 @@ import numpy as np
 
 from .elements import ELEMENT_KEYS, CampbellElements
 from .errors import InputError
-from .reductions import EPOCH_SCALES, to_julian_year
+from .reductions import EPOCH_SCALES, epoch_unit, to_julian_year
 
-__all__ = ["SCHEMA", "MAX_DOCUMENT_BYTES", "load_result", "validate_document", "elements_from_document", "element_draws", "epoch_scale_of",
-           "read_draws", "draws_for_masses", "covariance_from_document"]
+__all__ = ["SCHEMA", "MAX_DOCUMENT_BYTES", "load_result", "validate_document",
+           "elements_from_document", "element_draws", "epoch_scale_of", "read_draws",
+           "draws_for_masses", "covariance_from_document", "element_errors", "independent_draws"]
 
 SCHEMA = "orbweigh.result/1"
 
@@ -311,17 +312,47 @@ def draws_for_masses(doc, n, seed):
     if draws is not None:
         idx = [ELEMENT_KEYS.index(k) for k in ("P", "a")]
         return draws, "covariance", covariance_from_document(doc)[np.ix_(idx, idx)], []
-    errors = []
+    draws = independent_draws(doc, n, seed, required=("P", "a"))
+    errors = element_errors(doc)
+    note = ("The result has no covariance matrix: P and a were drawn independently from "
+            "their errors, ignoring their correlation.")
+    return draws, "element errors", np.diag([errors["P"] ** 2, errors["a"] ** 2]), [note]
+
+
+def element_errors(doc):
+    """{key: 1-sigma error in internal units} of the elements that state one (T in yr)."""
+    errors = {}
     for key in ELEMENT_KEYS:
         entry = doc["elements"][key]
         error = entry.get("error") if isinstance(entry, dict) else None
-        if key in ("P", "a") and not (isinstance(error, (int, float)) and error >= 0):
-            raise InputError(f"{doc.get('_path', 'result')}: no posterior draws, no covariance and no error "
-                             f"for element '{key}': the mass needs the uncertainty of P and a")
-        errors.append(float(error) if isinstance(error, (int, float)) else 0.0)
+        if isinstance(error, (int, float)) and error >= 0:
+            errors[key] = float(error)
+    if "T" in errors and epoch_unit(epoch_scale_of(doc)) == "d":
+        errors["T"] /= 365.25
+    return errors
+
+
+def independent_draws(doc, n, seed, required=()):
+    """(n, 7) draws of the elements from their own errors, taken as independent; or None.
+
+    Elements without an error are held fixed. None when no element has an error.
+
+    Raises
+    ------
+    InputError
+        When an element of ``required`` has no error.
+    """
+    errors = element_errors(doc)
+    for key in required:
+        if key not in errors:
+            raise InputError(f"{doc.get('_path', 'result')}: no posterior draws, no covariance "
+                             f"and no error for element '{key}': the mass needs the "
+                             "uncertainty of P and a")
+    if not any(errors.values()):
+        return None
     best = np.array(elements_from_document(doc).as_tuple())
-    draws = np.random.default_rng(seed).normal(best, errors, size=(n, len(best)))
+    sigma = [errors.get(k, 0.0) for k in ELEMENT_KEYS]
+    draws = np.random.default_rng(seed).normal(best, sigma, size=(n, len(best)))
+    draws[:, 2] = np.clip(np.abs(draws[:, 2]), 0.0, 0.999)
     draws[:, [0, 3]] = np.abs(draws[:, [0, 3]])
-    note = ("The result has no covariance matrix: P and a were drawn independently from "
-            "their errors, ignoring their correlation.")
-    return draws, "element errors", np.diag([errors[0] ** 2, errors[3] ** 2]), [note]
+    return draws

@@ -1,7 +1,8 @@
-"""Command-line options shared by the commands that read a measurement log."""
+"""Command-line options shared by the commands: a measurement log, masses, elements."""
 from __future__ import annotations
 
-__all__ = ["add_log_arguments", "load_log", "add_mass_arguments", "check_mass_arguments"]
+__all__ = ["add_log_arguments", "load_log", "add_mass_arguments", "check_mass_arguments",
+           "add_elements_arguments", "load_elements_document"]
 
 
 def add_log_arguments(parser):
@@ -64,3 +65,37 @@ def check_mass_arguments(args):
         raise InputError("--bolometric-corrections go with --magnitudes M1 M2 --band BAND")
     if args.band is not None and args.magnitudes is None:
         raise InputError("--band describes --magnitudes; give the magnitudes too, or drop --band")
+
+
+def add_elements_arguments(parser, name="result", help_text="result document of 'orbweigh "
+                           "fit --json'"):
+    """Add the positional document (now optional), --elements and --elements-file."""
+    parser.add_argument(name, metavar="RESULT.json", nargs="?", help=help_text + "; or give "
+                        "--elements / --elements-file instead")
+    parser.add_argument("--elements", metavar="'P=… T=… …'",
+                        help="published elements instead of a document, e.g. 'P=41.623±0.05 "
+                             "T=1934.008 e=0.2763 a=0.907 i=59.025 Omega=23.717 "
+                             "omega=219.907' (errors optional, ± or +-; T in any epoch form "
+                             "of a log: 1934.008 is Besselian, J1934.0, JD…, MJD…, ISO)")
+    parser.add_argument("--elements-file", metavar="FILE.toml",
+                        help="published elements in a TOML file: each element a number or "
+                             "{value = …, error = …}, optional name, reference, ra, dec, "
+                             "parallax (see docs/elements-file.md)")
+
+
+def load_elements_document(args, name="result"):
+    """The result document named by the options of ``add_elements_arguments``."""
+    from ..errors import InputError
+    from ..published import parse_elements_option, read_elements_file
+    from ..result import load_result
+
+    given = [x for x in (getattr(args, name), args.elements, args.elements_file) if x]
+    if len(given) != 1:
+        raise InputError("give exactly one source of elements: a result document, "
+                         "--elements 'P=… T=… e=… a=… i=… Omega=… omega=…', or "
+                         "--elements-file FILE.toml")
+    if args.elements:
+        return parse_elements_option(args.elements)
+    if args.elements_file:
+        return read_elements_file(args.elements_file)
+    return load_result(getattr(args, name))

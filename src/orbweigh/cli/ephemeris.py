@@ -1,9 +1,11 @@
 """``orbweigh ephemeris``: predicted theta, rho (and x, y) at chosen epochs.
 
-Epochs given on the command line are read in the scale of the document's T (a plain
-decimal year is a Besselian year unless the document says otherwise) and written back in
-that scale; the computation runs on Julian years. When the document has posterior draws
-or a covariance, each row also gets its 68 % band.
+Epochs given on the command line are read like a log's (a plain decimal year is a
+Besselian year; J2030.0, JD…, MJD…, ISO dates; plain small numbers are MJD when the
+document's T is a day count) and written back in the scale given; the computation runs
+on Julian years. When the document has posterior draws or a covariance, each row also
+gets its 68 % band; with only the elements' own errors the band comes from independent
+draws and the output says the correlations are unknown.
 """
 from __future__ import annotations
 
@@ -12,9 +14,10 @@ import json
 import numpy as np
 
 from ..errors import InputError
+from ..files import write_atomic
 
-__all__ = ["add_arguments", "run", "epoch_grid", "parse_epoch_list", "ephemeris_rows",
-           "MAX_ROWS"]
+__all__ = ["add_arguments", "run", "epoch_grid", "parse_epoch_option", "parse_epoch_list",
+           "epochs_from_options", "ephemeris_rows", "MAX_ROWS"]
 
 #: Largest number of epochs one command computes (a guard against a mistyped --step).
 MAX_ROWS = 100_000
@@ -26,16 +29,16 @@ _UNITS = {"theta_deg": "deg", "rho_arcsec": "arcsec", "x_arcsec": "arcsec",
 
 
 def add_arguments(parser):
-    parser.add_argument("elements", metavar="ELEMENTS.json",
-                        help="result document of 'orbweigh fit --json', or a file holding "
-                             "just its 'elements' block")
-    parser.add_argument("--start", type=float, help="first epoch (in the scale of T in the "
-                        "document; a plain decimal year is a Besselian year)")
-    parser.add_argument("--stop", type=float, help="last epoch (included when on the grid)")
+    from .common import add_elements_arguments
+    add_elements_arguments(parser, "document", "result document of 'orbweigh fit --json', "
+                           "or a file holding just its 'elements' block")
+    parser.add_argument("--start", help="first epoch, in any form a log accepts (2027.0 is a "
+                        "Besselian year; J2027.0, JD2461406.5, MJD61406, 2027-01-01)")
+    parser.add_argument("--stop", help="last epoch (included when on the grid)")
     parser.add_argument("--step", type=float, default=1.0,
-                        help="spacing of the epochs (yr; d when T is a JD or MJD) [1.0]")
+                        help="spacing of the epochs (yr; d when --start is a JD or MJD) [1.0]")
     parser.add_argument("--epochs", help="comma-separated list of epochs instead of a grid, "
-                        "e.g. 2027.3,2031.9")
+                        "e.g. 2027.3,J2031.9,2033-05-17")
     parser.add_argument("--json", metavar="PATH|-", help="write the rows as JSON ('-' for "
                         "standard output, which then replaces the printed table)")
     parser.add_argument("--ecsv", metavar="PATH", help="write the rows as an ECSV table")
@@ -70,39 +73,71 @@ def epoch_grid(start, stop, step, names=("--start", "--stop")):
     return start + step * np.arange(n)
 
 
-def parse_epoch_list(text):
-    """Epochs from a comma-separated list such as '2027.3,2031.9'.
+def parse_epoch_option(text, option, day_unit=False):
+    """(number, scale) of one epoch given on the command line, read like a log's epoch."""
+    from ..reductions import split_epoch
+    try:
+        return split_epoch(text, day_unit)
+    except ValueError as exc:
+        raise InputError(f"{option}: {exc}") from None
+
+
+def parse_epoch_list(text, day_unit=False):
+    """Epochs (numbers in their scale) and the one scale of a list such as '2027.3,2031.9'.
 
     Raises
     ------
     InputError
-        Naming the first item that is not a finite number.
+        Naming the first item that is not an epoch, or when the items mix scales.
     """
-    items = text.split(",")
-    values = []
-    for k, item in enumerate(items, start=1):
-        try:
-            value = float(item)
-        except ValueError:
-            value = np.nan
-        if not np.isfinite(value):
-            raise InputError(f"--epochs: item {k} ({item.strip()!r}) is not a finite decimal "
-                             "number; write the epochs as e.g. --epochs 2027.3,2031.9")
+    values, scales = [], set()
+    for k, item in enumerate(text.split(","), start=1):
+        value, scale = parse_epoch_option(item, f"--epochs: item {k} ({item.strip()!r})",
+                                          day_unit)
         values.append(value)
+        scales.add(scale)
     if len(values) > MAX_ROWS:
         raise InputError(f"--epochs lists {len(values)} epochs, more than {MAX_ROWS}")
-    return np.array(values)
+    if len(scales) > 1:
+        raise InputError(f"--epochs mixes epoch scales ({', '.join(sorted(scales))}); write "
+                         "all the epochs of one list in the same form")
+    return np.array(values), scales.pop()
 
 
-def ephemeris_rows(doc, epochs, n_draws=1000, seed=1):
-    """Ephemeris rows (dicts) for epochs written in the scale of the document's T.
+def epochs_from_options(start, stop, step, epochs=None, day_unit=False,
+                        names=("--start", "--stop")):
+    """(epochs in the user's scale, that scale, Julian years) from --start/--stop or --epochs.
+
+    The grid runs in the scale of ``start`` (a ``stop`` in another form is converted);
+    ``step`` is in that scale's unit (yr, or d for JD/MJD).
+    """
+    from ..reductions import from_julian_year, to_julian_year
+    if epochs is not None:
+        if start is not None or stop is not None:
+            raise InputError("give either --epochs or --start/--stop, not both")
+        values, scale = parse_epoch_list(epochs, day_unit)
+    else:
+        if start is None or stop is None:
+            raise InputError("give either --start and --stop (with --step), or --epochs")
+        first, scale = parse_epoch_option(start, names[0], day_unit)
+        last, last_scale = parse_epoch_option(stop, names[1], day_unit)
+        if last_scale != scale:
+            last = float(from_julian_year(to_julian_year(last, last_scale), scale))
+        values = epoch_grid(first, last, step, names)
+    return values, scale, to_julian_year(values, scale)
+
+
+def ephemeris_rows(doc, epochs, t_yr, n_draws=1000, seed=1):
+    """Ephemeris rows (dicts) at ``t_yr``, each labelled with its epoch as the user wrote it.
 
     Parameters
     ----------
     doc : dict
         Result document (see ``orbweigh.result``).
     epochs : array_like
-        Epochs in the document's scale (Besselian years by default).
+        Epochs in the user's scale (written back in the rows).
+    t_yr : array_like
+        The same epochs as decimal Julian years.
     n_draws : int
         Element draws for the bands (when the document has draws or a covariance).
     seed : int
@@ -115,26 +150,30 @@ def ephemeris_rows(doc, epochs, n_draws=1000, seed=1):
         ``*_low/*_high`` band keys when draws exist.
     n_used : int
         Number of draws behind the bands (0 when there are none).
+    independent : bool
+        True when the draws come from the elements' own errors taken as independent.
     """
     from ..ephemeris import ephemeris, ephemeris_bands
-    from ..reductions import to_julian_year
-    from ..result import element_draws, elements_from_document, epoch_scale_of
+    from ..result import element_draws, elements_from_document, independent_draws
 
     if n_draws < 2:
         raise InputError(f"--draws must be at least 2, got {n_draws}")
     epochs = np.asarray(epochs, float)
-    t = to_julian_year(epochs, epoch_scale_of(doc))
+    t = np.asarray(t_yr, float)
     elements = elements_from_document(doc)
     eph = ephemeris(elements, t)
     columns = {"epoch": epochs, "theta_deg": eph.theta_deg, "rho_arcsec": eph.rho_arcsec,
                "x_arcsec": eph.x_arcsec, "y_arcsec": eph.y_arcsec}
     draws = element_draws(doc, n_draws, seed)
+    independent = draws is None
+    if independent:
+        draws = independent_draws(doc, n_draws, seed)
     if draws is not None:
         bands = ephemeris_bands(elements, draws, t)
         columns.update(zip(_BAND_KEYS, (bands.theta_low_deg, bands.theta_high_deg,
                                         bands.rho_low_arcsec, bands.rho_high_arcsec)))
     rows = [{k: float(v[j]) for k, v in columns.items()} for j in range(epochs.size)]
-    return rows, 0 if draws is None else len(draws)
+    return rows, 0 if draws is None else len(draws), independent and draws is not None
 
 
 def _format_table(rows, header):
@@ -155,40 +194,48 @@ def _write_ecsv(path, rows, meta, scale):
     from ..reductions import epoch_unit
     table = Table(rows=[list(r.values()) for r in rows], names=list(rows[0]), meta=meta)
     table["epoch"].unit = epoch_unit(scale)
-    table["epoch"].description = f"epoch ({scale} scale, as T in the document)"
+    table["epoch"].description = f"epoch ({scale} scale, as given)"
     for name in table.colnames[1:]:
         table[name].unit = _UNITS[name]
-    table.write(path, format="ascii.ecsv", overwrite=True)
+    import io
+    buffer = io.StringIO()
+    table.write(buffer, format="ascii.ecsv")
+    write_atomic(path, buffer.getvalue())
 
 
 def run(args):
-    from ..result import epoch_scale_of, load_result
+    from ..published import INDEPENDENT_ERRORS_NOTE
+    from ..reductions import epoch_unit
+    from ..result import epoch_scale_of
+    from .common import load_elements_document
 
-    doc = load_result(args.elements)
-    if args.epochs is not None:
-        if args.start is not None or args.stop is not None:
-            raise InputError("give either --epochs or --start/--stop, not both")
-        epochs = parse_epoch_list(args.epochs)
-    else:
-        epochs = epoch_grid(args.start, args.stop, args.step)
-    rows, n_used = ephemeris_rows(doc, epochs, args.draws, args.seed)
-    scale = epoch_scale_of(doc)
-    meta = {"source": str(args.elements), "epoch_scale": scale, "n_draws": n_used,
-            "seed": args.seed if n_used else None,
-            "bands": "central 68% of the element draws" if n_used else "none (no draws "
-                     "or covariance in the document)"}
+    doc = load_elements_document(args, "document")
+    source = doc["_path"]
+    day_unit = epoch_unit(epoch_scale_of(doc)) == "d"
+    epochs, scale, t = epochs_from_options(args.start, args.stop, args.step, args.epochs,
+                                           day_unit)
+    rows, n_used, independent = ephemeris_rows(doc, epochs, t, args.draws, args.seed)
+    bands = ("central 68% of the element draws" if n_used else
+             "none (no draws, covariance or element errors in the document)")
+    if independent:
+        bands += "; " + INDEPENDENT_ERRORS_NOTE
+    meta = {"source": source, "epoch_scale": scale, "n_draws": n_used,
+            "seed": args.seed if n_used else None, "bands": bands,
+            "correlations": "unknown" if independent else ("from the document" if n_used
+                                                           else None)}
     if args.json:
         text = json.dumps({**meta, "ephemeris": rows}, indent=1)
         if args.json == "-":
             print(text)
         else:
-            with open(args.json, "w") as fh:
-                fh.write(text + "\n")
+            write_atomic(args.json, text + "\n")
     if args.ecsv:
         _write_ecsv(args.ecsv, rows, meta, scale)
     if args.json != "-":
-        header = [f"ephemeris of {args.elements}; epochs in the {scale} scale of T",
+        header = [f"ephemeris of {source}; epochs in the {scale} scale, as given",
                   f"68% bands from {n_used} element draws, seed {args.seed}" if n_used
-                  else "no draws or covariance in the document: no bands"]
+                  else "no draws, covariance or element errors in the document: no bands"]
+        if independent:
+            header.append(INDEPENDENT_ERRORS_NOTE)
         print(_format_table(rows, header))
     return 0

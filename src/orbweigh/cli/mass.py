@@ -16,7 +16,8 @@ from .common import add_mass_arguments, check_mass_arguments
 
 
 def add_arguments(parser):
-    parser.add_argument("result", metavar="RESULT.json", help="result document of 'orbweigh fit'")
+    from .common import add_elements_arguments
+    add_elements_arguments(parser, "result", "result document of 'orbweigh fit'")
     add_mass_arguments(parser)
     parser.add_argument("--draws", type=int, default=4000, metavar="N",
                         help="number of (P, a) draws (default 4000)")
@@ -30,7 +31,7 @@ def add_arguments(parser):
 def run(args):
     from ..errors import InputError
     from ..masses import format_mass_blocks, masses_for_document
-    from ..result import load_result
+    from .common import load_elements_document
 
     if args.parallax is None and args.magnitudes is None:
         raise InputError("the mass needs a distance: give --parallax VALUE ERROR [mas], or "
@@ -38,7 +39,7 @@ def run(args):
     check_mass_arguments(args)
     if args.draws < 2:
         raise InputError(f"--draws must be at least 2, got {args.draws}")
-    doc = load_result(args.result)
+    doc = load_elements_document(args, "result")
     blocks = masses_for_document(doc, parallax=args.parallax, mass_ratio=args.mass_ratio,
                                  rv_amplitudes=args.rv_amplitudes, magnitudes=args.magnitudes,
                                  band=args.band, n_draws=args.draws, seed=args.seed,
@@ -53,6 +54,6 @@ def run(args):
         if args.json == "-":
             sys.stdout.write(payload)
         else:
-            with open(args.json, "w") as handle:
-                handle.write(payload)
+            from ..files import write_atomic
+            write_atomic(args.json, payload)
     return 0

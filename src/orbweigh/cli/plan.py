@@ -15,14 +15,14 @@ __all__ = ["add_arguments", "run", "plan_to_dict"]
 
 
 def add_arguments(parser):
-    parser.add_argument("result", metavar="RESULT.json",
-                        help="result document of 'orbweigh fit --json' (with a covariance "
-                             "or posterior draws)")
-    parser.add_argument("--window", nargs=2, type=float, required=True, metavar=("START", "STOP"),
-                        help="first and last candidate epoch, in the scale of T in the "
-                             "document (a plain decimal year is a Besselian year)")
+    from .common import add_elements_arguments
+    add_elements_arguments(parser, "result", "result document of 'orbweigh fit --json' (with "
+                           "a covariance or posterior draws)")
+    parser.add_argument("--window", nargs=2, required=True, metavar=("START", "STOP"),
+                        help="first and last candidate epoch, in any form a log accepts "
+                             "(2027.0 is a Besselian year; J2027.0, JD…, MJD…, ISO dates)")
     parser.add_argument("--step", type=float, help="spacing of the candidate epochs "
-                        "[0.05 yr; days when T is a JD or MJD]")
+                        "[0.05 yr; days when START is a JD or MJD]")
     parser.add_argument("--aperture-mm", type=float, help="telescope aperture D [mm]; epochs "
                         "with rho below Dawes' limit 116\"/D are not recommended")
     parser.add_argument("--sigma-mas", type=float, default=5.0,
@@ -73,7 +73,7 @@ def _advice_lines(advice, sigma_now):
 
 def _text(plan, source, scale, top):
     s = plan.sigma_now
-    lines = [f"# next-measurement plan for {source}; epochs in the {scale} scale of T",
+    lines = [f"# next-measurement plan for {source}; epochs in the {scale} scale, as given",
              f"# new measurement: {plan.sigma_arcsec * 1e3:g} mas in x and y; uncertainty "
              f"from the {plan.covariance_source}; bands from {plan.n_draws} draws, "
              f"seed {plan.seed}",
@@ -97,27 +97,31 @@ def _text(plan, source, scale, top):
 
 
 def run(args):
+    from ..files import write_atomic
     from ..planning import plan_observations
-    from ..reductions import interval_in_scale
-    from ..result import epoch_scale_of, load_result
-    from .ephemeris import epoch_grid
+    from ..reductions import epoch_unit, interval_in_scale
+    from ..result import epoch_scale_of
+    from .common import load_elements_document
+    from .ephemeris import epochs_from_options, parse_epoch_option
 
-    doc = load_result(args.result)
-    scale = epoch_scale_of(doc)
+    doc = load_elements_document(args, "result")
+    source = doc["_path"]
+    day_unit = epoch_unit(epoch_scale_of(doc)) == "d"
+    _, scale = parse_epoch_option(args.window[0], "--window START", day_unit)
     step = args.step if args.step is not None else float(interval_in_scale(0.05, scale))
-    epochs = epoch_grid(args.window[0], args.window[1], step, ("--window START", "STOP"))
+    epochs, scale, _ = epochs_from_options(args.window[0], args.window[1], step, None,
+                                           day_unit, ("--window START", "STOP"))
     plan = plan_observations(doc, epochs, args.sigma_mas / 1e3, args.aperture_mm, args.top,
-                             args.draws, args.seed, args.min_separation)
+                             args.draws, args.seed, args.min_separation, scale)
     if args.json:
-        text = json.dumps(plan_to_dict(plan, str(args.result), scale), indent=1)
+        text = json.dumps(plan_to_dict(plan, source, scale), indent=1)
         if args.json == "-":
             print(text)
         else:
-            with open(args.json, "w") as fh:
-                fh.write(text + "\n")
+            write_atomic(args.json, text + "\n")
     if args.json == "-":    # the text (warnings included) is not printed: keep them
         for w in plan.warnings:
             print(f"orbweigh plan: warning: {w}", file=sys.stderr)
     else:
-        print(_text(plan, args.result, scale, args.top))
+        print(_text(plan, source, scale, args.top))
     return 0
