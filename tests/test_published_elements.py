@@ -80,7 +80,7 @@ def test_errors_with_plus_minus_give_bands_from_independent_draws(tmp_path, caps
 @pytest.mark.parametrize("argv, message", [
     (["--elements", "P=41.6 T=1934 e=0.27"], "missing"),
     (["--elements", MEEUS_TEXT + " X=3"], "unknown element 'X'"),
-    (["--elements", MEEUS_TEXT.replace("e=0.2763", "e=1.3")], "eccentricity"),
+    (["--elements", MEEUS_TEXT.replace("e=0.2763", "e=1.3")], "outside its range"),
     (["--elements", MEEUS_TEXT.replace("P=41.623", "P=41.6±x")], "error of P"),
     (["--elements", MEEUS_TEXT, "--epochs", "2030,J2031"], "mixes epoch scales"),
     (["--elements", MEEUS_TEXT, "--epochs", "20x0"], "item 1"),
