@@ -234,9 +234,15 @@ def test_html_masses_budget_and_counts_equal_json(report):
             assert _close(text, entry[key])
         assert _close(row[6], entry["linear"]["value"])
         assert _close(row[7], entry["linear"]["error"])
-    budget = {r[0]: r[1] for r in page.table("source")[1:]}
-    assert {k: float(v) for k, v in budget.items()} == pytest.approx(doc["mass"]["budget"],
-                                                                      rel=1e-5)
+    budget = {r[0].strip("\u2003 "): float(r[1].rstrip(" %")) / 100
+              for r in page.table("source")[1:]}
+    b = doc["mass"]["budget"]
+    # The orbit's share is the sum of its a, P and covariance terms (d ln M = 3 d ln a -
+    # 2 d ln P - 3 d ln plx; common practice, no source); percentages to 0.1 %.
+    expected = {"orbit (a and P)": b["a"] + b["P"] + b["a_P_covariance"],
+                "parallax": b["parallax"], "a": b["a"], "P": b["P"],
+                "a\u2013P covariance": b["a_P_covariance"]}
+    assert budget == pytest.approx(expected, abs=5.1e-4)
     counts = {r[0]: int(r[1]) for r in page.table("count")[1:]}
     assert counts == {k: doc["statistics"][k] for k in counts} and len(counts) == 6
     assert counts["n_rejected"] == 2 and counts["n_flipped"] == 1

@@ -711,17 +711,15 @@ def add_to_document(doc, sol, blocks, posterior=None):
     return doc
 
 
-def _value(entry, digits=3):
-    err = entry.get("error")
-    return f"{entry['value']:.{digits}f}" + ("" if err is None else f" ± {err:.{digits}f}")
-
-
 def format_combined(doc):
     """Plain-text summary of the combined-solution keys of a result document."""
     s, node, v = doc["statistics"], doc["node"], doc["velocities"]
     out = [f"Combined with radial velocities ({v['source']}: {v['n_used']} used, "
            f"{v['n_excluded']} excluded, {v['n_rejected']} rejected)"]
-    out += [f"  {label:<26}{_value(doc[k])} km/s" for k, label in
+    from . import formatting as fmt
+
+    out += [f"  {label:<26}{fmt.value_error(doc[k]['value'], doc[k].get('error'), 'km/s')}"
+            for k, label in
             (("gamma", "gamma (systemic velocity)"), ("K1", "K1 (primary)"),
              ("K2", "K2 (secondary)")) if k in doc]
     out.append(f"  node: Omega = {node['Omega_deg']:.2f} deg kept; Omega = "
@@ -737,19 +735,21 @@ def format_combined(doc):
                    f"{'converged' if post['converged'] else 'NOT converged'}, seed {post['seed']}")
     if "orbital_parallax" in doc:
         o = doc["orbital_parallax"]
-        out.append(f"  orbital parallax {o['value']:.3f} mas, 68% [{o['low']:.3f}, "
-                   f"{o['high']:.3f}]")
+        value, low, high = fmt.interval_parts(o["value"], o["low"], o["high"])
+        out.append(f"  orbital parallax {value} mas, 68% [{low}, {high}]")
     plx = doc.get("parallax", {})
     if "agreement_sigma" in plx.get("orbital", {}):
         out.append(f"  orbital - trigonometric parallax: "
                    f"{plx['orbital']['agreement_sigma']:+.2f} sigma")
     if "combined" in plx:
         c = plx["combined"]
-        out.append(f"  combined parallax {c['value']:.3f} ± {c['error']:.3f} mas ({c['rule']})")
+        out.append(f"  combined parallax {fmt.value_error(c['value'], c['error'], 'mas')} "
+                   f"({c['rule']})")
     if "mass_function" in doc:
         f = doc["mass_function"]
-        out.append(f"  mass function f(M) of component {f['component']}: {f['value']:.4g} "
-                   f"M_sun, 68% [{f['low']:.4g}, {f['high']:.4g}]")
+        value, low, high = fmt.interval_parts(f["value"], f["low"], f["high"])
+        out.append(f"  mass function f(M) of component {f['component']}: {value} "
+                   f"M_sun, 68% [{low}, {high}]")
     if "mass" in doc:
         m = doc["mass"]
         out.append(f"Masses (parallax used: {m['parallax_used']}; draws of the "

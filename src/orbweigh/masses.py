@@ -22,10 +22,11 @@ from dataclasses import dataclass
 import numpy as np
 from astropy import constants
 
+from . import formatting as fmt
 from .errors import InputError
 from .spectroscopic import orbital_parallax_mas
 
-__all__ = ["masses_for_document", 
+__all__ = ["masses_for_document", "budget_rows", 
     "THIRD_LAW_FACTOR", "KMS_PER_AU_YR", "EKER_RANGE_MSUN", "MANN_RANGE_MKS", "M_BOL_SUN",
     "BANDS", "total_mass_msun", "parallax_for_mass_mas",
     "linear_propagation", "eker_log_luminosity", "eker_mass_from_log_luminosity",
@@ -537,40 +538,58 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
 
 
 # ------------------------------------------------------------------------- formatting
-def _fmt(x, digits=4):
-    return "unbounded" if x is None else f"{x:.{digits}g}"
+def budget_rows(budget):
+    """(label, share, detail) rows of a variance budget: the orbit's share (a and P
+    together, the variance of 3 ln a - 2 ln P) beside the parallax's, then the separate a,
+    P and covariance terms as detail (those can exceed 100 % and cancel each other when a
+    and P are strongly correlated; their sum is the orbit's share)."""
+    names = {"a": "a", "P": "P", "a_P_covariance": "a\N{EN DASH}P covariance"}
+    orbit = sum(budget.get(k, 0.0) for k in names)
+    return ([("orbit (a and P)", orbit, False), ("parallax", budget.get("parallax", 0.0), False)]
+            + [(label, budget[k], True) for k, label in names.items() if k in budget])
+
+
+def _budget_lines(budget):
+    lines = ["", "Share of the mass variance (linear propagation):"]
+    for label, share, detail in budget_rows(budget):
+        if detail and "detail" not in lines[-1] and not lines[-1].startswith("    "):
+            lines.append("  detail of the orbit's share (3 ln a - 2 ln P):")
+        lines.append(f"  {'  ' * detail}{label:<{22 - 2 * detail}}{fmt.percent(share):>9}")
+    return lines
+
+
+def _mass_row(name, m):
+    value, low, high, low95, high95 = fmt.interval_parts(m["value"], m["low"], m["high"],
+                                                         m.get("low95"), m.get("high95"))
+    linear = m.get("linear")
+    lin = fmt.value_error(linear["value"], linear["error"]) if linear else ""
+    return (f"{name:<14}{value:>10}  {'[' + low + ', ' + high + ']':<25}"
+            f"{'[' + low95 + ', ' + high95 + ']':<25}{lin}")
 
 
 def format_mass_blocks(blocks):
     """Plain-text table of the blocks returned by ``mass_blocks``."""
     mass, plx = blocks["mass"], blocks["parallax"]
-    lines = [f"Parallax ({plx['kind']}): {_fmt(plx['value'])} +/- {_fmt(plx['error'])} mas"]
+    lines = [f"Parallax ({plx['kind']}): {fmt.value_error(plx['value'], plx['error'], 'mas')}"]
     if "orbital" in plx:
         o = plx["orbital"]
-        lines.append(f"Orbital parallax (visual orbit with K1 + K2): {_fmt(o['value'])} mas, "
-                     f"68% [{_fmt(o['low'])}, {_fmt(o['high'])}]")
+        value, low, high = fmt.interval_parts(o["value"], o["low"], o["high"])
+        lines.append(f"Orbital parallax (visual orbit with K1 + K2): {value} mas, "
+                     f"68% [{low}, {high}]")
     if plx["kind"] == "dynamical":
         lines.append(f"  {plx['relation']}; iterations at the best (P, a): "
                      f"{plx['iterations']}")
         lines.append(f"  {'step':>4} {'plx [mas]':>11} {'Mabs1':>7} {'Mabs2':>7} "
                      f"{'M1':>7} {'M2':>7}")
-        lines += [f"  {s['iteration']:>4} {s['parallax_mas']:>11.5g} {s['abs_mag1']:>7.3f} "
-                  f"{s['abs_mag2']:>7.3f} {s['mass1']:>7.4f} {s['mass2']:>7.4f}"
-                  for s in plx["steps"]]
+        lines += [f"  {s['iteration']:>4} {fmt.fixed(s['parallax_mas'], 3):>11} "
+                  f"{s['abs_mag1']:>7.3f} {s['abs_mag2']:>7.3f} {s['mass1']:>7.4f} "
+                  f"{s['mass2']:>7.4f}" for s in plx["steps"]]
     lines += ["", f"{'Mass [M_sun]':<14}{'median':>10}  {'68% interval':<25}{'95% interval':<25}"
                   f"linear"]
-    for name in ("total", "primary", "secondary"):
-        if name not in mass:
-            continue
-        m = mass[name]
-        linear = m.get("linear")
-        lin = f"{_fmt(linear['value'])} +/- {_fmt(linear['error'], 2)}" if linear else ""
-        lines.append(f"{name:<14}{_fmt(m['value']):>10}  "
-                     f"{'[' + _fmt(m['low']) + ', ' + _fmt(m['high']) + ']':<25}"
-                     f"{'[' + _fmt(m['low95']) + ', ' + _fmt(m['high95']) + ']':<25}{lin}")
+    lines += [_mass_row(name, mass[name]) for name in ("total", "primary", "secondary")
+              if name in mass]
     if mass.get("budget"):
-        lines += ["", "Share of the mass variance (linear propagation):"]
-        lines += [f"  {k.replace('_', ' '):<16}{100 * v:7.1f} %" for k, v in mass["budget"].items()]
+        lines += _budget_lines(mass["budget"])
     lines += ["", f"{mass['draws']} draws, seed {mass['seed']}"]
     if blocks["warnings"]:
         lines += ["", "Warnings:"] + [f"  - {w}" for w in blocks["warnings"]]

@@ -554,6 +554,8 @@ def posterior_block(doc, sample, posterior, draws_file):
             values = tuple(float(from_julian_year(v, scale)) for v in values)
         summary[key] = {"median": float(values[1]), "low": float(values[0]),
                         "high": float(values[2]), "unit": doc["elements"][key].get("unit", "")}
+        if key == "T":
+            summary[key]["scale"] = scale
     return {"draws_file": draws_file, "n_draws": int(len(draws)),
             **_sampling_meta(sample, posterior), "summary": summary,
             "warnings": list(sample.warnings)}
@@ -574,6 +576,8 @@ def attach_posterior(doc, block):
 
 def format_posterior(block):
     """Plain-text summary of a "posterior" block."""
+    from . import formatting as fmt
+
     tau = ", ".join(f"{k} {v:.0f}" for k, v in block["autocorr_time"].items())
     lines = [f"Posterior ({block['walkers']} walkers x {block['steps']} steps, burn-in "
              f"{block['burn']}, thinning {block['thin']}: {block['n_draws']} draws, seed "
@@ -582,8 +586,9 @@ def format_posterior(block):
              f"[steps]: {tau}; " + ("converged" if block["converged"] else "NOT converged"),
              f"  {'element':<8}{'median':>14}  68% interval"]
     for key, s in block["summary"].items():
-        lines.append(f"  {key:<8}{s['median']:>14.6g}  [{s['low']:.6g}, {s['high']:.6g}] "
-                     f"{s['unit']}".rstrip())
+        median, low, high = fmt.interval_parts(s["median"], s["low"], s["high"])
+        unit = fmt.epoch_label(s["scale"]) if "scale" in s else s["unit"]
+        lines.append(f"  {key:<8}{median:>14}  [{low}, {high}] {unit}".rstrip())
     lines.append("  priors:")
     lines += [f"    {k:<6} {v}" for k, v in block["priors"].items()]
     if block["sigma_scale"] > 1.0:

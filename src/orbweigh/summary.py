@@ -1,7 +1,8 @@
 """Plain-text summary of a result document, as the ``fit`` command prints it."""
 from __future__ import annotations
 
-import math
+from . import formatting as fmt
+from .result import epoch_scale_of
 
 __all__ = ["format_result"]
 
@@ -9,20 +10,12 @@ _LABELS = {"P": "P (period)", "T": "T (periastron)", "e": "e", "a": "a (semi-maj
            "i": "i (inclination)", "Omega": "Omega (node)", "omega": "omega (periastron arg.)"}
 
 
-def _digits(error):
-    """Decimals that show the error to two significant figures."""
-    if error is None or not math.isfinite(error) or error <= 0:
-        return 4
-    return max(0, 1 - int(math.floor(math.log10(error))))
-
-
 def _value(entry):
-    value, error, unit = entry["value"], entry.get("error"), entry.get("unit", "")
-    d = _digits(error)
     if entry.get("fixed"):
-        return f"{value:g} {unit} (fixed)".replace("  ", " ")
-    text = f"{value:.{d}f}" + (f" ± {error:.{d}f}" if error is not None else " (no error)")
-    return f"{text} {unit}".rstrip()
+        return " ".join(filter(None, (fmt.number(entry["value"], 6), entry.get("unit", ""),
+                                      "(fixed)")))
+    return fmt.value_error(entry["value"], entry.get("error"), entry.get("unit", "")) + \
+        ("" if entry.get("error") is not None else " (no error)")
 
 
 def format_result(doc):
@@ -30,12 +23,13 @@ def format_result(doc):
     out = [f"Orbit of {doc.get('source', '?')}"]
     for key, entry in doc["elements"].items():
         label = _LABELS.get(key, key)
-        extra = f"  [{entry['scale']} epoch]" if key == "T" else ""
+        extra = f"  [{fmt.epoch_label(entry['scale'])}]" if key == "T" else ""
         out.append(f"  {label:<26}{_value(entry)}{extra}")
     out.append("Thiele-Innes constants")
     for key, entry in doc["thiele_innes"].items():
         out.append(f"  {key:<26}{_value(entry)}")
     s = doc["statistics"]
+    scale = epoch_scale_of(doc)
     out.append("Fit")
     out.append(f"  lines in log {s['n_input']}, fitted {s['n_used']}, flipped {s['n_flipped']}, "
                f"outliers {s['n_outliers']}, excluded {s['n_excluded']}, "
@@ -43,7 +37,8 @@ def format_result(doc):
     out.append(f"  chi2 {s['chi2']:.2f} for {s['dof']} degrees of freedom "
                f"(reduced {s['reduced_chi2']:.2f}); rms theta {s['rms_theta_deg']:.3f} deg, "
                f"rms rho {s['rms_rho_arcsec']:.4f} arcsec")
-    out.append(f"  epochs {s['epoch_first']:.2f}-{s['epoch_last']:.2f}, phase coverage "
+    out.append(f"  epochs {fmt.epoch(s['epoch_first'], scale, label=False)} to "
+               f"{fmt.epoch(s['epoch_last'], scale)}, phase coverage "
                f"{100 * s['phase_coverage']:.0f}%, periods searched "
                f"{s['period_range_yr'][0]:.3g}-{s['period_range_yr'][1]:.4g} yr "
                f"({s['n_trials']} trials), {s['fit_seconds']:.2f} s")

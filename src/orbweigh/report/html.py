@@ -9,8 +9,10 @@ import base64
 from collections import Counter
 from html import escape
 
+from .. import formatting as fmt
 from ..elements import ELEMENT_KEYS
 from ..measurements import _is_number
+from ..reductions import epoch_unit
 from ..result import epoch_scale_of
 from . import tables as tb
 
@@ -61,7 +63,7 @@ def _plain(value):
         return "yes" if value else "no"
     if isinstance(value, (list, tuple)):
         return ", ".join(_plain(v) for v in value)
-    return tb.format_number(value)
+    return fmt.number(value)
 
 
 def _kv_table(mapping, header=("quantity", "value")):
@@ -136,9 +138,13 @@ def _mass_section(doc):
         parts += ["<p>Medians and percentiles of the mass draws; the linear estimate "
                   "propagates the covariance to first order.</p>", _mass_table(mass)]
     if isinstance(mass.get("budget"), dict):
-        parts += ["<h3>Error budget</h3><p>Share of the linear mass variance from each "
-                  "source (the a\u2013P covariance term may be negative).</p>",
-                  _kv_table(mass["budget"], ("source", "share of variance"))]
+        from ..masses import budget_rows
+        rows = [(("\u2003" if detail else "") + label, fmt.percent(share))
+                for label, share, detail in budget_rows(mass["budget"])]
+        parts += ["<h3>Error budget</h3><p>Share of the linear mass variance: the orbit "
+                  "(a and P together, 3 ln a \u2212 2 ln P) and the parallax; the indented "
+                  "rows split the orbit's share (they may exceed 100 % and cancel).</p>",
+                  _table(("source", "share of variance"), rows, numeric=(1,))]
     extra = {k: v for k, v in mass.items()
              if k not in (*tb.MASS_KEYS, "budget", "warnings")}
     if extra:
@@ -166,15 +172,17 @@ def _notes_section(doc):
 
 
 def _residual_rows(doc):
+    scale = epoch_scale_of(doc)
     rows, classes = [], []
     for r in doc.get("residuals", []):
         cells = []
         for key, _ in tb.RESIDUAL_COLUMNS:
             value = r.get(key)
             if key in ("epoch", "epoch_yr"):
-                cells.append(tb.format_epoch(value))
+                cells.append(fmt.fixed(value, 1 if epoch_unit(scale) == "d" and key == "epoch"
+                                       else 3))
             elif isinstance(value, float):
-                cells.append(tb.format_number(value, digits=4))
+                cells.append(fmt.fixed(value, tb.RESIDUAL_DECIMALS.get(key, 4)))
             else:
                 cells.append("" if value is None else value)
         rows.append(cells)
@@ -200,7 +208,7 @@ def _summary_section(doc):
                          if r.get("status") != "rejected")
     counts = [(k, stats.pop(k)) for k in ("n_input", "n_used", "n_flipped", "n_outliers",
                                            "n_excluded", "n_rejected") if k in stats]
-    span = [(k, tb.format_epoch(stats.pop(k))) for k in ("epoch_first", "epoch_last") if k in stats]
+    span = [(k, fmt.fixed(stats.pop(k), 3)) for k in ("epoch_first", "epoch_last") if k in stats]
     parts = ["<h2 id='data'>Data summary</h2>",
              _table(("count", "number"), counts, numeric=(1,)),
              _table(("epoch span (" + epoch_scale_of(doc) + ")", "epoch"), span, numeric=(1,)),
@@ -236,8 +244,8 @@ def _alternatives_section(doc):
         el = alt.get("elements", {})
         vals = [el[k].get("value") if isinstance(el.get(k), dict) else el.get(k)
                 for k in ELEMENT_KEYS]
-        rows.append([tb.format_number(v) for v in vals]
-                    + [tb.format_number(alt.get("chi2")), tb.format_number(alt.get("delta_chi2"))])
+        rows.append([fmt.number(v) for v in vals]
+                    + [fmt.number(alt.get("chi2")), fmt.number(alt.get("delta_chi2"))])
     return ("<h2 id='alternatives'>Alternative solutions</h2>"
             + _table(list(ELEMENT_KEYS) + ["\u03c7\u00b2", "\u0394\u03c7\u00b2"], rows,
                      numeric=tuple(range(9))))
@@ -279,7 +287,7 @@ def render_html(doc, figures, seed, report_version):
             _residual_section(doc), _summary_section(doc), _method_section(doc)]
     if posterior_figs:
         body += ["<h2 id='posterior'>Posterior</h2>", *posterior_figs]
-    body.append(f"<footer><p>Rounding: {escape(tb.ROUNDING_RULE)}</p></footer>")
+    body.append(f"<footer><p>Rounding: {escape(fmt.ROUNDING_RULE)}</p></footer>")
     return ("<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
             "<meta name='viewport' content='width=device-width, initial-scale=1'>"
             f"<title>{escape(title)}</title><style>{_CSS}</style></head><body>\n"

@@ -1,28 +1,20 @@
-"""Numbers and tables of a result document: the rounding rule, LaTeX and ECSV tables.
-
-The same rounding rule (``ROUNDING_RULE``) serves the HTML report and the LaTeX table.
-"""
+"""Tables of a result document: LaTeX and ECSV (numbers written by ``formatting``)."""
 from __future__ import annotations
 
 import math
 
 import numpy as np
 
+from .. import formatting as fmt
 from ..elements import ELEMENT_KEYS
+from ..formatting import ROUNDING_RULE, decimals_for
 from ..reductions import epoch_unit
 from ..result import epoch_scale_of
 
 __all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "THIELE_INNES_KEYS", "MASS_KEYS",
-           "RESIDUAL_COLUMNS", "decimals_for",
-           "format_value_error", "format_interval", "format_number", "format_epoch",
+           "RESIDUAL_COLUMNS", "RESIDUAL_DECIMALS", "decimals_for",
+           "format_value_error", "format_interval",
            "elements_latex", "residuals_table"]
-
-ROUNDING_RULE = (
-    "a value with an uncertainty is rounded at the uncertainty's second significant digit, "
-    "and the uncertainty at the same decimal place; a mass with its 68 % interval at the "
-    "second significant digit of the narrower half of the interval; epochs to 4 decimals; "
-    "residual-table entries to 4 significant digits; any other number to 6 significant "
-    "digits. Rounding is the only change: every number shown is the result document's.")
 
 #: Name, LaTeX symbol and HTML symbol of each element.
 ELEMENT_NAMES = {"P": ("Period", r"$P$", "P"), "T": ("Epoch of periastron", r"$T$", "T"),
@@ -43,38 +35,19 @@ RESIDUAL_COLUMNS = (("line", None), ("epoch", "epoch"), ("epoch_yr", "yr"),
                     ("d_rho_arcsec", "arcsec"), ("status", None), ("reason", None),
                     ("note", None))
 
+#: Fixed decimals of each numeric residual column (epochs: 3 in years, 1 in days).
+RESIDUAL_DECIMALS = {"theta_deg": 2, "rho_arcsec": 4, "sigma_theta_deg": 2,
+                     "sigma_rho_arcsec": 4, "theta_pred_deg": 2, "rho_pred_arcsec": 4,
+                     "d_theta_deg": 2, "d_rho_arcsec": 4}
+
 
 def _finite(x):
     return x is not None and isinstance(x, (int, float)) and math.isfinite(x)
 
 
-def decimals_for(uncertainty, digits=2):
-    """Decimal places that keep ``digits`` significant digits of ``uncertainty`` (>= 0)."""
-    return max(0, digits - 1 - math.floor(math.log10(abs(uncertainty))))
-
-
-def format_number(x, digits=6):
-    """A number without an uncertainty, to ``digits`` significant digits ('' for None)."""
-    if x is None:
-        return ""
-    if isinstance(x, bool) or not isinstance(x, (int, float)):
-        return str(x)
-    if isinstance(x, int):
-        return str(x)
-    return f"{x:.{digits}g}"
-
-
-def format_epoch(x):
-    """An epoch (any scale) to 4 decimals."""
-    return "" if x is None else f"{float(x):.4f}"
-
-
 def format_value_error(value, error):
-    """(value, error) strings by the rounding rule; error '' when it is missing or zero."""
-    if not _finite(error) or error <= 0:
-        return format_number(value), ""
-    d = decimals_for(error)
-    return f"{value:.{d}f}", f"{error:.{d}f}"
+    """(value, error) strings by the rounding rule (``formatting.value_error_parts``)."""
+    return fmt.value_error_parts(value, error)
 
 
 def format_interval(entry, keys=("value", "low", "high", "low95", "high95")):
@@ -88,20 +61,11 @@ def format_interval(entry, keys=("value", "low", "high", "low95", "high95")):
     keys : sequence of str
         The entries wanted, in order.
     """
-    value, low, high = (entry.get(k) for k in ("value", "low", "high"))
-    halves = [h for h in ((value - low) if _finite(value) and _finite(low) else None,
-                          (high - value) if _finite(value) and _finite(high) else None)
-              if h is not None and h > 0]
-    d = decimals_for(min(halves)) if halves else None
-
-    def one(key):
-        if key not in entry:
-            return ""
-        x = entry[key]
-        if x is None:
-            return "unbounded"
-        return f"{x:.{d}f}" if d is not None else format_number(x)
-    return tuple(one(k) for k in keys)
+    others = [k for k in keys if k not in ("value", "low", "high")]
+    parts = dict(zip(("value", "low", "high", *others),
+                     fmt.interval_parts(entry.get("value"), entry.get("low"), entry.get("high"),
+                                        *(entry.get(k) for k in others))))
+    return tuple(parts[k] if k in entry else "" for k in keys)
 
 
 def _latex_escape(text):
