@@ -6,7 +6,9 @@ Steps (each documented where it is done):
    (``search.grid_search``), over a period range from the sampling or the user;
 2. the deepest local minima over period are polished in (P, e, T) and then refined in
    all seven parameters with Levenberg-Marquardt (``refine``);
-3. quadrant flips: a point whose theta + 180 deg fits decisively better is corrected;
+3. quadrant flips: before the search, the rows ``check`` suspects (and, in a small log,
+   each single row) are tried flipped, each hypothesis with its own global search; after
+   it, a point whose theta + 180 deg fits decisively better is corrected;
 4. outliers: points beyond ``outlier_sigma`` (in units of sigma scaled by sqrt of the
    reduced chi2 of the inliers when that exceeds 1) are set aside and refitted without;
 5. every other distinct minimum within ``alternative_delta_chi2`` of the best is kept as
@@ -38,6 +40,9 @@ _CANDIDATE_BUDGET = 60  # model evaluations for each rival minimum (see refine_c
 _MAX_OUTLIER_FRACTION = 0.25
 _MIN_POINTS = 4         # 8 numbers for 7 parameters
 _MAX_FLIP_FRACTION = 0.25   # quadrant errors are occasional; more would redefine the orbit
+_SMALL_LOG = 15             # up to this many points every single flip is searched
+_MAX_SUSPECT_COMBINATION = 3    # flips of suspected rows searched together, at most
+_MAX_HYPOTHESES = 24        # flip hypotheses searched at most (each a global search)
 
 
 @dataclass(frozen=True)
@@ -200,12 +205,11 @@ def _fit(data, options):
                      data.sigma_rho_arcsec[usable] / weight, constraints)
     period_range = _search_range(options, points.t)
 
-    starts, n_trials = _global_candidates(points, period_range)
-    first = points.refine_candidates(
-        [_near_mean_epoch(s, points.t, points.constraints) for s in starts], options.loss)
-    best, flipped = first[0], np.zeros(points.t.size, bool)
+    hypotheses = _flip_hypotheses(data, usable) if options.flips else [np.zeros(usable.size, bool)]
+    first, flipped, n_trials = _searched(points, hypotheses, period_range, options.loss)
+    best = first[0]
     if options.flips:
-        best, flipped = _correct_flips(points, best, options.loss)
+        best, flipped = _correct_flips(points, best, options.loss, flipped)
     best, outlier = _set_aside_outliers(points, best, flipped, options)
     clean = points.subset(~outlier, flipped)
     final = first
@@ -220,6 +224,54 @@ def _fit(data, options):
             final, options, n_dof=2 * clean.t.size - 7 + len(options.fixed)),
         flipped=flipped, outlier=outlier, options=options, period_range=period_range,
         n_trials=n_trials, fit_seconds=time.perf_counter() - started)
+
+
+def _flip_hypotheses(data, usable):
+    """Sets of usable rows to search with theta + 180, the first one none.
+
+    A single quadrant error on a short arc drags the global search to a wrong orbit, after
+    which no flip looks decisive; so the search itself is run under each hypothesis:
+    every combination (at most a quarter of the points) of the rows ``check`` suspects,
+    and for a small log every single row.
+    """
+    from itertools import combinations
+
+    from .measurements import suspicious_rows
+
+    n = usable.size
+    room = int(_MAX_FLIP_FRACTION * n)
+    index = {int(line): k for k, line in enumerate(data.line[usable])}
+    suspects = sorted({index[s.line] for s in suspicious_rows(data)
+                       if s.rule == "quadrant_flip" and s.line in index})
+    sets = {()}
+    for size in range(1, min(room, _MAX_SUSPECT_COMBINATION) + 1):
+        sets.update(combinations(suspects, size))
+    if n <= _SMALL_LOG and room >= 1:
+        sets.update((k,) for k in range(n))
+    masks = []
+    for rows in sorted(sets, key=lambda r: (len(r), r))[:_MAX_HYPOTHESES]:
+        mask = np.zeros(n, bool)
+        mask[list(rows)] = True
+        masks.append(mask)
+    return masks
+
+
+def _searched(points, hypotheses, period_range, loss):
+    """Global search and refinement under each flip hypothesis; the best one wins.
+
+    Each flipped point must pay for itself: the score is chi2 + FLIP_MIN_GAIN per flip.
+    Returns (refined minima of the winner, its flips, trials per search).
+    """
+    best = None
+    for flipped in hypotheses:
+        trial = points.subset(np.ones(points.t.size, bool), flipped)
+        starts, n_trials = _global_candidates(trial, period_range)
+        runs = trial.refine_candidates(
+            [_near_mean_epoch(s, trial.t, trial.constraints) for s in starts], loss)
+        score = runs[0].chi2 + FLIP_MIN_GAIN * int(flipped.sum())
+        if best is None or score < best[0]:
+            best = (score, runs, flipped)
+    return best[1], best[2], n_trials
 
 
 def _constraints(options, data):
@@ -288,9 +340,10 @@ def _point_chi2(points, params, flipped):
     return r_theta**2 + r_rho**2
 
 
-def _correct_flips(points, best, loss, max_rounds=3):
-    """Correct quadrant errors: theta + 180 must lower a point's chi2 decisively."""
-    flipped = np.zeros(points.t.size, bool)
+def _correct_flips(points, best, loss, flipped, max_rounds=3):
+    """Correct quadrant errors: theta + 180 must lower a point's chi2 decisively.
+
+    ``flipped`` are the flips already applied by the search (see _searched)."""
     for _ in range(max_rounds):
         as_is = _point_chi2(points, best.params, flipped)
         other = _point_chi2(points, best.params, ~flipped)

@@ -834,7 +834,7 @@ def _flips(t, th, rho, lines):
 
 def _tight_sigma(technique, rho, sig_theta, sig_rho):
     """Message when a sigma is implausibly small for the technique, else None."""
-    if technique == "unknown":
+    if technique not in TECHNIQUE_DEFAULTS or technique == "unknown":  # no typical value
         return None
     typ_theta, typ_rho = TECHNIQUE_DEFAULTS[technique]
     small = []
