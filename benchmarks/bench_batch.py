@@ -62,7 +62,7 @@ def make_catalogue(folder, n_systems, n_points=50, seed=0):
 
 def _run(manifest, out, workers):
     started = time.perf_counter()
-    table = run_batch(manifest, out, BatchOptions(seed=1, report=False), workers=workers,
+    table = run_batch(manifest, out, BatchOptions(seed=1, pages="none"), workers=workers,
                       progress=False)
     seconds = time.perf_counter() - started
     failed = int((table["status"] == "failed").sum())

@@ -80,7 +80,7 @@ def catalogue(tmp_path_factory):
 @pytest.fixture(scope="module")
 def full_run(catalogue, tmp_path_factory):
     out = tmp_path_factory.mktemp("full")
-    table = run_batch(catalogue, out, BatchOptions(seed=7, report=False), workers=1,
+    table = run_batch(catalogue, out, BatchOptions(seed=7, pages="none"), workers=1,
                       progress=False)
     return out, {row["id"]: row for row in table}
 
@@ -167,7 +167,7 @@ def test_each_broken_system_fails_alone_with_its_reason(full_run, catalogue):
 
 def test_same_results_inline_pool_and_dask(catalogue, tmp_path):
     from dask.distributed import LocalCluster
-    options = BatchOptions(seed=7, only_contradicted=True, report=False)
+    options = BatchOptions(seed=7, only_contradicted=True, pages="none")
     outs = {name: tmp_path / name for name in ("one", "two", "dask")}
     run_batch(catalogue, outs["one"], options, workers=1, progress=False)
     run_batch(catalogue, outs["two"], options, workers=2, progress=False)
@@ -190,7 +190,7 @@ def test_same_results_inline_pool_and_dask(catalogue, tmp_path):
 
 
 def test_resume_skips_unchanged_systems_only(catalogue, tmp_path):
-    options = BatchOptions(seed=3, only_contradicted=True, report=False)
+    options = BatchOptions(seed=3, only_contradicted=True, pages="none")
     out = tmp_path / "out"
     run_batch(catalogue, out, options, workers=1, progress=False)
     record = out / "systems" / system_key("contradicted") / "batch.json"
@@ -241,11 +241,56 @@ def test_command_line(catalogue, tmp_path, capsys):
 def test_a_lost_worker_fails_only_its_system(catalogue):
     from concurrent.futures import Future
 
-    from orbweigh.batch import _collect
+    from orbweigh.batch import _collect_chunk
     future = Future()
     future.set_exception(MemoryError("worker ran out of memory"))
     entry = read_manifest(catalogue)[0]
-    record = _collect(future, entry, BatchOptions(seed=7))
+    [record] = _collect_chunk(future, [entry], BatchOptions(seed=7))
     assert record["status"] == "failed" and record["id"] == "consistent"
     assert record["error"] == "worker: MemoryError: worker ran out of memory"
     assert record["seed"] == system_seed(7, "consistent")
+
+
+def test_warnings_column_strict_and_pages(tmp_path):
+    """Planted problems in one log each reach the summary with their line numbers."""
+    cat = tmp_path / "cat"
+    (cat / "logs").mkdir(parents=True)
+    _write_log(cat / "logs" / "clean.csv", TRUE, seed=11)
+    _write_log(cat / "logs" / "bad.csv", TRUE, seed=12)
+    lines = (cat / "logs" / "bad.csv").read_text().splitlines()
+    lines[0] += ",flag"
+    lines[1:] = [line + "," for line in lines[1:]]
+    cells = lines[3].split(",")                      # file line 4: a letter O for a zero
+    lines[3] = ",".join(cells[:2] + ["O" + cells[2][1:]] + cells[3:])
+    cells = lines[6].split(",")                      # file line 7: a quadrant flip
+    lines[6] = ",".join(cells[:1] + [f"{(float(cells[1]) + 180.0) % 360.0:.4f}"] + cells[2:])
+    cells = lines[9].split(",")                      # file line 10: rho 30 sigma off
+    lines[9] = ",".join(cells[:2] + [f"{float(cells[2]) + 30 * SIGMA_RHO:.5f}"] + cells[3:])
+    lines[12] += "x"                                 # file line 13: excluded by the flag
+    (cat / "logs" / "bad.csv").write_text("\n".join(lines) + "\n")
+    manifest = cat / "manifest.csv"
+    manifest.write_text("id,log\nclean,logs/clean.csv\nbad,logs/bad.csv\n")
+    table = run_batch(manifest, tmp_path / "out", BatchOptions(seed=5), workers=1,
+                      progress=False)
+    rows = {row["id"]: row for row in table}
+    assert rows["clean"]["n_warnings"] == 0 and rows["clean"]["warnings"] == ""
+    warned = rows["bad"]["warnings"]
+    for text in ("rejected: 1 (line 4)", "excluded by flag: 1 (line 13)",
+                 "flipped: 1 (line 7)", "outliers: 1 (line 10)"):
+        assert text in warned, warned
+    assert rows["bad"]["n_warnings"] == 4 and rows["bad"]["status"] == "done"
+    # --pages flagged (default): only the warned system has a page; the index marks it.
+    out = tmp_path / "out" / "systems"
+    assert (out / system_key("bad") / "report.html").is_file()
+    assert not (out / system_key("clean") / "report.html").exists()
+    assert "&#9888; 4" in (tmp_path / "out" / "index.html").read_text()
+    csv = Table.read(tmp_path / "out" / "summary.csv", format="ascii.csv")
+    assert "rejected: 1 (line 4)" in csv[csv["id"] == "bad"]["warnings"][0]
+    # --strict fails the system with the rejected line, and only it.
+    table = run_batch(manifest, tmp_path / "strict", BatchOptions(seed=5, strict=True,
+                                                                  pages="all"),
+                      workers=1, progress=False)
+    rows = {row["id"]: row for row in table}
+    assert rows["bad"]["status"] == "failed" and "line 4" in rows["bad"]["error"]
+    assert rows["clean"]["status"] == "done"
+    assert (tmp_path / "strict" / "systems" / system_key("clean") / "report.html").is_file()

@@ -62,13 +62,17 @@ class BatchOptions:
         Batch seed; each system's seed is ``system_seed(seed, id)``.
     only_contradicted : bool
         Fit only systems whose old orbit the new data contradict.
-    report : bool
-        Write an HTML report for every fitted system.
+    pages : str
+        Which fitted systems get an HTML page: 'flagged' (contradicted, drifting, failed
+        or warned ones: where a curator looks), 'all' or 'none'.
+    strict : bool
+        A log with any rejected line fails its system instead of being fitted without it.
     """
 
     seed: int = 0
     only_contradicted: bool = False
-    report: bool = True
+    pages: str = "flagged"
+    strict: bool = False
 
 
 def system_seed(batch_seed, system_id):
@@ -138,9 +142,16 @@ def process_system(entry, options):
 
 def _process(entry, options, seed, record):
     from .measurements import read_measurements
+    if _stage(record, "log", _check_paths, entry) is None:
+        return
     data = _stage(record, "log", read_measurements, entry.log,
                   target_ra_deg=entry.ra_deg, target_dec_deg=entry.dec_deg)
     if data is None:
+        return
+    record["warnings"] = _log_warnings(data)
+    if options.strict and data.rejected:
+        record["error"] = (f"log: {_count(len(data.rejected), 'line')} rejected (--strict): "
+                           + _line_list(p.line for p in data.rejected))
         return
     check = None
     if entry.previous is None:
@@ -164,10 +175,72 @@ def _process(entry, options, seed, record):
         _stage(record, "radial velocities", _add_combined, doc, solution, entry, seed)
     elif entry.parallax_mas is not None:
         _stage(record, "masses", _add_masses, doc, entry, seed)
+    record["warnings"] += _fit_warnings(doc)
     if check is not None:
         record["comparison"] = _stage(record, "comparison", _compare, entry, doc, data, check)
-    if options.report and not record["error"]:
+    if _wants_page(options.pages, record):
         record["report"] = _stage(record, "report", _report_files, doc)
+
+
+def _wants_page(pages, record):
+    """Whether a fitted system gets its page under ``--pages`` (see ``BatchOptions``)."""
+    if pages == "none" or record["error"] and record["error"].startswith("report"):
+        return False
+    return pages == "all" or bool(record["error"] or record["warnings"]) \
+        or record["verdict"] in ("contradicted", "drifting")
+
+
+def _count(n, noun):
+    return f"{n} {noun}" + ("" if n == 1 else "s")
+
+
+def _line_list(lines, most=12):
+    lines = [str(int(v)) for v in lines]
+    word = "line" if len(lines) == 1 else "lines"
+    return f"{word} " + ", ".join(lines[:most]) + (" ..." if len(lines) > most else "")
+
+
+def _log_warnings(data):
+    """What reading the log set aside: rejected and excluded lines, default sigmas."""
+    out = []
+    for what, lines in (("rejected", [p.line for p in data.rejected]),
+                        ("excluded by flag", data.line[data.excluded]),
+                        ("default sigma", data.line[data.sigma_defaulted])):
+        if len(lines):
+            out.append(f"{what}: {len(lines)} ({_line_list(lines)})")
+    return out
+
+
+def _fit_warnings(doc):
+    """What the fit set aside or could not determine: flips, outliers, short arc, P or a
+    undetermined ('do not use')."""
+    out = []
+    rows = doc.get("residuals", [])
+    for status, what in (("flipped", "flipped"), ("outlier", "outliers")):
+        lines = [r["line"] for r in rows if r["status"] == status]
+        if lines:
+            out.append(f"{what}: {len(lines)} ({_line_list(lines)})")
+    el = doc["elements"]
+    undetermined = [k for k in ("P", "a") if el[k].get("error") is not None
+                    and el[k]["error"] > 0.5 * abs(el[k]["value"])]
+    if undetermined:
+        out.append(f"do not use: {' and '.join(undetermined)} undetermined")
+    used = [r["epoch_yr"] for r in rows if r["status"] in ("used", "flipped")]
+    if used and max(used) - min(used) < el["P"]["value"]:       # P is in years
+        out.append(f"short arc: {100 * (max(used) - min(used)) / el['P']['value']:.0f}% "
+                   "of the period")
+    return out
+
+
+def _check_paths(entry):
+    """The logs again, as the worker opens them: still inside the manifest's folder (a
+    link made after the manifest was read must not lead out of it)."""
+    folder = Path(entry.manifest).resolve().parent
+    for path in (entry.log, entry.rv_log):
+        if path is not None and not Path(path).resolve().is_relative_to(folder):
+            raise InputError(f"{path} now leads outside the manifest's folder {folder} "
+                             f"(to {Path(path).resolve()}); logs must stay inside it")
+    return True
 
 
 def _fit(data, seed):
@@ -240,13 +313,13 @@ def _json_default(value):
 def _save_record(out, record):
     """Write a system's files; the record goes last, so it vouches for the others."""
     folder = out / "systems" / record["key"]
-    files = []
+    contents = dict(record["report"] or {})
     if record["document"] is not None:
-        write_atomic(folder / "result.json", _json_text(record["document"]))
-        files.append("result.json")
-    for name, content in sorted((record["report"] or {}).items()):
+        contents["result.json"] = _json_text(record["document"]).encode()
+    files = {}
+    for name, content in sorted(contents.items()):
         write_atomic(folder / name, content)
-        files.append(name)
+        files[name] = hashlib.sha256(content).hexdigest()
     kept = {k: v for k, v in record.items() if k not in ("document", "report")}
     kept["files"] = files
     kept["summary"] = _summary_row(record)
@@ -255,14 +328,20 @@ def _save_record(out, record):
 
 
 def _load_done(out, key, digest):
-    """The saved record of a system when done with the same inputs, else None."""
+    """The saved record of a system when done with the same inputs and its files are the
+    ones it wrote (SHA-256 of each, and the result parses), else None."""
     path = out / "systems" / key / "batch.json"
     try:
         saved = json.loads(path.read_text(encoding="utf-8"))
-    except (OSError, ValueError):
+        files = saved["files"]
+        intact = isinstance(files, dict) and all(
+            hashlib.sha256((path.parent / name).read_bytes()).hexdigest() == sha
+            for name, sha in files.items())
+        if "result.json" in files:
+            json.loads((path.parent / "result.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError, KeyError, TypeError, AttributeError):
         return None
-    files_there = all((path.parent / f).is_file() for f in saved.get("files", []))
-    if saved.get("status") == "done" and saved.get("input_hash") == digest and files_there:
+    if saved.get("status") == "done" and saved.get("input_hash") == digest and intact:
         return saved
     return None
 
@@ -280,6 +359,7 @@ _SUMMARY_COLUMNS = (
     ("max_separation_arcsec", float, "arcsec"), ("max_separation_sigma", float, ""),
     ("mass_msun", float, "solMass"), ("mass_low_msun", float, "solMass"),
     ("mass_high_msun", float, "solMass"),
+    ("n_warnings", int, ""), ("warnings", str, ""),
     ("seed", int, ""), ("link", str, ""), ("reason", str, ""), ("error", str, ""))
 
 
@@ -311,6 +391,8 @@ def _summary_row(record):
     for key, name in (("value", "mass_msun"), ("low", "mass_low_msun"),
                       ("high", "mass_high_msun")):
         row[name] = nan if total.get(key) is None else float(total[key])
+    row["n_warnings"] = len(record.get("warnings") or [])
+    row["warnings"] = "; ".join(record.get("warnings") or [])
     row["link"] = ""
     row["reason"] = rev.get("reason", "")
     return row
@@ -344,11 +426,15 @@ def _summary_table(records):
     return table
 
 
-def _write_summary(out, records, manifest, options):
+def _write_summary(out, records, manifest, options, interrupted=False):
     import io
     table = _summary_table(records)
+    if interrupted:
+        table.meta["interrupted"] = ("the batch was interrupted; this summary holds the "
+                                     "systems finished so far (--resume continues)")
     table.meta.update({"manifest": str(manifest), "seed": options.seed,
-                       "only_contradicted": options.only_contradicted})
+                       "only_contradicted": options.only_contradicted,
+                       "pages": options.pages, "strict": options.strict})
     for fmt, name in (("ascii.ecsv", "summary.ecsv"), ("ascii.csv", "summary.csv")):
         buffer = io.StringIO()
         table.write(buffer, format=fmt)
@@ -368,7 +454,7 @@ def _index_html(table, manifest, options):
             "<th>&chi;&sup2;/dof new</th><th>p (&sigma;&times;3)</th><th>P [yr]</th>"
             "<th>e</th><th>a [&Prime;]</th><th>max &Delta; element [&sigma;]</th>"
             "<th>max separation, next 10 yr [&Prime;]</th><th>[&sigma;]</th>"
-            "<th>mass [M&#8857;]</th><th>error</th></tr>")
+            "<th>mass [M&#8857;]</th><th>warnings</th><th>error</th></tr>")
     lines = []
     for row in table:
         name = escape(row["id"])
@@ -382,13 +468,13 @@ def _index_html(table, manifest, options):
             cell(row, "max_element_change_sigma", "{:.1f}"),
             cell(row, "max_separation_arcsec", "{:.3g}"),
             cell(row, "max_separation_sigma", "{:.1f}"), cell(row, "mass_msun", "{:.3g}"),
-            escape(row["error"]))) + "</tr>")
+            _warning_mark(row), escape(row["error"]))) + "</tr>")
     counts = {v: int(np.sum(table["verdict"] == v)) for v in URGENCY if len(table)}
     tally = ", ".join(f"{n} {v}" for v, n in counts.items() if n)
     return (f"<!DOCTYPE html>\n<html><head><meta charset='utf-8'><title>orbweigh batch: "
             f"{escape(Path(manifest).name)}</title>\n<style>body{{font-family:sans-serif}}"
             "table{border-collapse:collapse}td,th{border:1px solid #999;padding:2px 6px;"
-            "font-size:90%}</style></head><body>\n"
+            "font-size:90%}.warn{color:#b35900;font-weight:bold}</style></head><body>\n"
             f"<h1>Batch of {escape(str(manifest))}</h1>\n<p>{len(table)} systems, most urgent "
             f"first: {escape(tally)}. Batch seed {options.seed}. Verdict rule: see "
             "orbweigh.revision (chi&sup2; tests at the 1 % level; contradicted = rejected even "
@@ -396,25 +482,69 @@ def _index_html(table, manifest, options):
             + "\n</table></body></html>\n")
 
 
+def _warning_mark(row):
+    """A visible mark with the count; the full text on hover and below it."""
+    from html import escape
+    if not row["n_warnings"]:
+        return ""
+    return (f'<span class="warn" title="{escape(row["warnings"])}">&#9888; '
+            f'{row["n_warnings"]}</span> <small>{escape(row["warnings"])}</small>')
+
+
 # ----------------------------------------------------------------------------- execution
 
-def _failed_record(entry, options):
+def _failed_record(entry, options, error=None):
     """Record of a system that cannot even start (its problem is the reason)."""
     return {"id": entry.id, "key": system_key(entry.id), "line": entry.line,
             "manifest_row": dict(entry.fields), "seed": system_seed(options.seed, entry.id),
-            "status": "failed", "error": entry.problem, "verdict": None, "revision": None,
+            "status": "failed", "error": error or entry.problem, "verdict": None, "revision": None,
             "fitted": False, "fit_note": None, "document": None, "comparison": None,
-            "report": None, "seconds": 0.0}
+            "report": None, "warnings": [], "seconds": 0.0}
 
 
-def _collect(future, entry, options):
-    """A finished future's record; a lost worker fails only its system."""
+def _chunks(n, workers):
+    """Index chunks: a few per worker and at most 16 systems each, so a worker's start-up
+    and each transfer serve many systems while an interrupt loses little work."""
+    size = max(1, min(16, n // (4 * workers)))
+    return [list(range(k, min(n, k + size))) for k in range(0, n, size)]
+
+
+def _process_chunk(entries, options):
+    return [process_system(entry, options) for entry in entries]
+
+
+def _collect_chunk(future, entries, options):
+    """Records of a finished chunk; a lost worker fails only its systems."""
     try:
         return future.result()
     except Exception as exc:  # worker killed, out of memory, cluster gone: record why
-        record = _failed_record(entry, options)
-        record["error"] = f"worker: {type(exc).__name__}: {exc}"
-        return record
+        return [_failed_record(e, options, f"worker: {type(exc).__name__}: {exc}")
+                for e in entries]
+
+
+def _worker_start(parent_pid):
+    """Worker set-up: Ctrl-C is the parent's to handle (it stops the pool), and a worker
+    whose parent died (SIGKILL) exits instead of waiting for tasks that never come."""
+    import signal
+    import threading
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+
+    def watch():
+        while os.getppid() == parent_pid:
+            time.sleep(0.5)
+        os._exit(1)
+    threading.Thread(target=watch, daemon=True, name="orbweigh-parent-watch").start()
+
+
+def _stop_pool(pool):
+    """Stop a pool at once: drop the queue and end the workers (the pool offers no public
+    way to end running tasks, hence its process table, read before shutdown clears it)."""
+    processes = list((getattr(pool, "_processes", None) or {}).values())
+    pool.shutdown(wait=False, cancel_futures=True)
+    for process in processes:
+        process.terminate()
+    for process in processes:
+        process.join(5.0)
 
 
 def _run_local(entries, options, workers):
@@ -426,11 +556,18 @@ def _run_local(entries, options, workers):
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
     # 'spawn': a forked child would inherit the progress bar's thread and any lock it holds
-    with ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("spawn")) as pool:
-        futures = {pool.submit(process_system, e, options): k for k, e in enumerate(entries)}
+    pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("spawn"),
+                               initializer=_worker_start, initargs=(os.getpid(),))
+    try:
+        futures = {pool.submit(_process_chunk, [entries[k] for k in chunk], options): chunk
+                   for chunk in _chunks(len(entries), workers)}
         for future in as_completed(futures):
-            k = futures[future]
-            yield k, _collect(future, entries[k], options)
+            chunk = futures[future]
+            yield from zip(chunk, _collect_chunk(future, [entries[k] for k in chunk], options))
+    except BaseException:  # Ctrl-C, a fatal write error, the consumer gone: stop now
+        _stop_pool(pool)
+        raise
+    pool.shutdown()
 
 
 def _run_dask(entries, options, address):
@@ -446,12 +583,18 @@ def _run_dask(entries, options, address):
     except (OSError, TimeoutError, ValueError) as exc:
         raise InputError(f"cannot reach the Dask scheduler at {address!r} ({exc}); start one "
                          "with 'dask scheduler' and workers with 'dask worker ADDRESS'") from None
+    n_workers = max(1, len(client.scheduler_info().get("workers", {})))
     with client:
-        futures = {client.submit(process_system, e, options, pure=False): k
-                   for k, e in enumerate(entries)}
-        for future in as_completed(futures):
-            k = futures[future]
-            yield k, _collect(future, entries[k], options)
+        futures = {client.submit(_process_chunk, [entries[k] for k in chunk], options,
+                                 pure=False): chunk
+                   for chunk in _chunks(len(entries), n_workers)}
+        try:
+            for future in as_completed(futures):
+                chunk = futures[future]
+                yield from zip(chunk, _collect_chunk(future, [entries[k] for k in chunk],
+                                                     options))
+        finally:
+            client.cancel(list(futures))
 
 
 def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=False,
@@ -479,13 +622,21 @@ def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=
     astropy.table.Table
         The summary, most urgent first.
     """
-    from tqdm import tqdm
     options = options or BatchOptions()
+    if options.pages not in ("flagged", "all", "none"):
+        raise InputError(f"pages must be 'flagged', 'all' or 'none', got {options.pages!r}")
     out = Path(out)
     entries = read_manifest(manifest)
     workers = workers or os.cpu_count() or 1
     if workers < 1:
         raise InputError(f"--workers must be at least 1, got {workers}")
+    with _folder_lock(out):
+        return _run_locked(manifest, out, entries, options, workers, scheduler, resume,
+                           progress)
+
+
+def _run_locked(manifest, out, entries, options, workers, scheduler, resume, progress):
+    from tqdm import tqdm
     records, todo, hashes = [None] * len(entries), [], {}
     bar = tqdm(total=len(entries), disable=not progress, file=sys.stderr, unit="system")
     for k, entry in enumerate(entries):
@@ -506,10 +657,72 @@ def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=
     pending = [entries[k] for k in todo]
     run = (_run_dask(pending, options, scheduler) if scheduler
            else _run_local(pending, options, workers))
-    for j, record in run:
-        records[todo[j]] = _finish(out, record, hashes[todo[j]], bar)
+    try:
+        for j, record in run:
+            records[todo[j]] = _finish(out, record, hashes[todo[j]], bar)
+    except KeyboardInterrupt:
+        run.close()             # stops the workers now
+        bar.close()
+        _write_summary(out, [r for r in records if r is not None], manifest, options,
+                       interrupted=True)
+        raise
+    finally:
+        run.close()             # a fatal write error stops the pool at once too
     bar.close()
     return _write_summary(out, records, manifest, options)
+
+
+class _folder_lock:
+    """One batch at a time per output folder: ``.orbweigh-batch.lock`` holds the pid.
+
+    A lock whose process is gone (killed batch) is taken over, with a note on stderr.
+    """
+
+    def __init__(self, out):
+        self.path = Path(out) / ".orbweigh-batch.lock"
+
+    def __enter__(self):
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        for _ in range(2):
+            try:
+                fd = os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o644)
+            except FileExistsError:
+                holder = self._holder()
+                if holder is not None and _alive(holder):
+                    raise InputError(
+                        f"{self.path.parent}: another batch (process {holder}) is writing "
+                        f"this folder; wait for it, or choose another --out (the lock is "
+                        f"{self.path})") from None
+                print(f"orbweigh batch: note: taking over the lock {self.path} left by "
+                      f"process {holder if holder is not None else '?'}, which no longer "
+                      "runs", file=sys.stderr)
+                self.path.unlink(missing_ok=True)
+                continue
+            with os.fdopen(fd, "w") as fh:
+                fh.write(f"{os.getpid()}\n")
+            return self
+        raise InputError(f"{self.path.parent}: cannot take the lock {self.path}; another "
+                         "batch keeps taking it")
+
+    def _holder(self):
+        try:
+            return int(self.path.read_text().split()[0])
+        except (OSError, ValueError, IndexError):
+            return None
+
+    def __exit__(self, *exc):
+        if self._holder() == os.getpid():
+            self.path.unlink(missing_ok=True)
+
+
+def _alive(pid):
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:   # someone else's process: alive
+        return True
+    return True
 
 
 def _finish(out, record, digest, bar):

@@ -32,6 +32,12 @@ def add_arguments(parser):
                         help="fit only the systems whose previous orbit the new data contradict")
     parser.add_argument("--resume", action="store_true",
                         help="skip systems already done in DIR with the same inputs")
+    parser.add_argument("--pages", choices=("flagged", "all", "none"), default="flagged",
+                        help="HTML pages for: 'flagged' systems (contradicted, drifting, "
+                             "failed or warned; default), 'all' fitted systems, or 'none'")
+    parser.add_argument("--strict", action="store_true",
+                        help="fail a system whose log has any rejected line (default: fit "
+                             "without it and list it in the warnings column)")
     parser.add_argument("--seed", type=int, default=0, metavar="N",
                         help="batch seed; each system's seed derives from it and its id "
                              "(default 0)")
@@ -47,14 +53,16 @@ def run(args):
     if args.workers and args.scheduler:
         raise InputError("give either --workers (local pool) or --scheduler (Dask cluster), "
                          "not both")
-    options = BatchOptions(seed=args.seed, only_contradicted=args.only_contradicted)
+    options = BatchOptions(seed=args.seed, only_contradicted=args.only_contradicted,
+                           pages=args.pages, strict=args.strict)
     table = run_batch(args.manifest, args.out, options, workers=args.workers,
                       scheduler=args.scheduler, resume=args.resume, progress=not args.quiet)
     failed = int((table["status"] == "failed").sum()) if len(table) else 0
     counts = {v: int((table["verdict"] == v).sum()) for v in set(table["verdict"]) if v}
     if not args.quiet:
         tally = ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
-        print(f"{len(table)} systems ({tally}); {failed} failed. Summary: "
+        systems = f"{len(table)} system" + ("" if len(table) == 1 else "s")
+        print(f"{systems}{f' ({tally})' if tally else ''}; {failed} failed. Summary: "
               f"{args.out}/summary.ecsv, index: {args.out}/index.html")
     if failed:
         print(f"orbweigh batch: {failed} system(s) failed; see the 'error' column of "
