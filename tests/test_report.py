@@ -280,23 +280,70 @@ def test_html_warnings_method_seed_and_version(report):
     assert "outlier_sigma" in text and "period_range_yr" in text
 
 
+def _latex_cells(tex):
+    """{symbol or quantity: value cell} of the table's data rows."""
+    rows = [[c.strip() for c in line.strip().removesuffix("\\\\").split("&")]
+            for line in tex.splitlines() if " & " in line]
+    return {(r[0] or r[1]): r[2] for r in rows[1:]}
+
+
 def test_latex_table_equals_json(report):
     doc, written, _ = report
     tex = written["elements.tex"].read_text()
-    assert all(c in tex for c in (r"\toprule", r"\midrule", r"\bottomrule"))
-    assert r"invented\_pair" in tex
-    pairs = re.findall(r"^(\$[^$]+\$) & \$(-?[\d.]+) \\pm ([\d.]+)\$", tex, flags=re.M)
-    found = {sym: (v, e) for sym, v, e in pairs}
+    assert r"\toprule" not in tex and r"\usepackage" not in tex   # no package needed
+    assert r"\caption{Orbital elements of invented\_pair" in tex
+    cells = _latex_cells(tex)
     for key in ELEMENT_KEYS:
-        value, error = found[tb.ELEMENT_NAMES[key][1]]
+        value, error = re.fullmatch(r"\$(-?[\d.]+) \\pm ([\d.]+)\$",
+                                    cells[tb.ELEMENT_NAMES[key][1]]).groups()
         assert _close(value, doc["elements"][key]["value"])
         assert _close(error, doc["elements"][key]["error"])
+        assert len(value.split(".")[-1]) == len(error.split(".")[-1])  # error's decimal place
+    assert "Besselian year" in tex
     for key in "ABFG":
-        assert _close(found[f"${key}$"][0], doc["thiele_innes"][key]["value"])
-    total = re.search(r"\\mathcal\{M\}_2\$ & \$([\d.]+)\$ \$\[([\d.]+), ([\d.]+)\]\$", tex)
+        assert _close(cells[f"${key}$"].split()[0].strip("$"), doc["thiele_innes"][key]["value"])
+    median, up, down = re.fullmatch(r"\$([\d.]+)\^\{\+([\d.]+)\}_\{-([\d.]+)\}\$",
+                                    cells[r"$\mathcal{M}_1+\mathcal{M}_2$"]).groups()
     entry = doc["mass"]["total"]
-    assert [_close(t, entry[k]) for t, k in zip(total.groups(), ("value", "low", "high"))] == \
-        [True] * 3
+    assert _close(median, entry["value"]) and _close(up, entry["high"] - entry["value"])
+    assert _close(down, entry["value"] - entry["low"])
+    assert "(used for the masses)" in tex
+
+
+def _pdflatex_or_skip():
+    import shutil
+    exe = shutil.which("pdflatex")
+    if exe is None:
+        pytest.skip("pdflatex is not installed (Debian: apt-get install texlive-latex-base); "
+                    "the LaTeX tables cannot be compiled here")
+    return exe
+
+
+def _compile(tmp_path, name, body):
+    import subprocess
+    exe = _pdflatex_or_skip()
+    (tmp_path / f"{name}.tex").write_text(body)
+    (tmp_path / "main.tex").write_text("\\documentclass{article}\n\\begin{document}\n"
+                                       f"\\input{{{name}}}\n\\end{{document}}\n")
+    run = subprocess.run([exe, "-interaction=nonstopmode", "-halt-on-error", "main.tex"],
+                         cwd=tmp_path, capture_output=True, text=True, timeout=120)
+    assert run.returncode == 0, run.stdout[-2000:]
+    assert (tmp_path / "main.pdf").stat().st_size > 0
+
+
+def test_elements_tex_compiles_in_a_plain_article(report, tmp_path):
+    _, written, _ = report
+    _compile(tmp_path, "elements", written["elements.tex"].read_text())
+
+
+def test_summary_table_of_many_systems_compiles(report, tmp_path):
+    doc, _, _ = report
+    other = {**doc, "elements": {**doc["elements"], "T": {**doc["elements"]["T"],
+                                                         "scale": "julian"}}}
+    tex = tb.elements_table_latex([doc, other], names=["ADS 1", "pair_2"])
+    rows = [line for line in tex.splitlines() if line.startswith(("ADS 1", r"pair\_2"))]
+    assert len(rows) == 2 and "B$2008.40" in rows[0] and "J$2008.40" in rows[1]
+    _compile(tmp_path, "summary", tex)
 
 
 def test_residuals_ecsv_round_trips_with_units(report):

@@ -14,7 +14,8 @@ from ..result import epoch_scale_of
 __all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "THIELE_INNES_KEYS", "MASS_KEYS",
            "RESIDUAL_COLUMNS", "RESIDUAL_DECIMALS", "decimals_for",
            "format_value_error", "format_interval",
-           "elements_latex", "residuals_table"]
+           "object_name", "elements_rows", "elements_latex", "elements_table_latex",
+           "residuals_table"]
 
 #: Name, LaTeX symbol and HTML symbol of each element.
 ELEMENT_NAMES = {"P": ("Period", r"$P$", "P"), "T": ("Epoch of periastron", r"$T$", "T"),
@@ -75,70 +76,141 @@ def _latex_escape(text):
     return "".join(table.get(c, c) for c in str(text))
 
 
+def object_name(doc, name=None):
+    """The object's name: ``name`` when given, else the log's file stem."""
+    from pathlib import PurePath
+    return name or doc.get("name") or PurePath(str(doc.get("source") or "pair")).stem
+
+
 def _latex_unit(key, entry, doc):
-    unit = entry.get("unit", "")
     if key == "T":
-        scale = epoch_scale_of(doc)
-        return {"besselian": "Besselian yr", "julian": "Julian yr", "iso": "Julian yr",
-                "jd": "JD", "mjd": "MJD"}[scale]
-    return {"arcsec": "arcsec", "deg": "deg", "yr": "yr", "mas": "mas"}.get(unit, unit)
+        return fmt.epoch_label(epoch_scale_of(doc))
+    unit = entry.get("unit", "")
+    return {"solMass": r"$\mathcal{M}_\odot$", "km/s": r"km\,s$^{-1}$"}.get(unit, unit)
 
 
-def _latex_row(symbol, value, error, unit):
-    cell = f"${value} \\pm {error}$" if error else f"${value}$"
-    return f"{symbol} & {cell} & {unit} \\\\"
+def _latex_cell(entry):
+    """'$v \\pm e$', or '$m^{+a}_{-b}$' when the entry carries an interval (low, high)."""
+    if _finite(entry.get("low")) and _finite(entry.get("high")) and _finite(entry.get("value")):
+        return fmt.interval(entry["value"], entry["low"], entry["high"], latex=True)
+    return fmt.value_error(entry.get("value"), entry.get("error"), latex=True)
 
 
-def elements_latex(doc):
-    """A booktabs LaTeX table of the elements, Thiele-Innes constants and masses.
+_COMBINED = (("gamma", r"$\gamma$", "Systemic velocity"), ("K1", r"$K_1$", "Amplitude, primary"),
+             ("K2", r"$K_2$", "Amplitude, secondary"))
+_PLX_NAME = {"trigonometric": "trigonometric", "orbital": "orbital", "combined": "combined",
+             "dynamical": "dynamical"}
+
+
+def _parallax_rows(doc):
+    """The parallax the masses used first, then the others with the agreement."""
+    plx, mass = doc.get("parallax") or {}, doc.get("mass") or {}
+    used = mass.get("parallax_used") or plx.get("kind")
+    entries = {plx.get("kind"): plx} if _finite(plx.get("value")) else {}
+    if "orbital" in plx:
+        entries["orbital"] = plx["orbital"]
+    elif _finite((doc.get("orbital_parallax") or {}).get("value")):
+        entries["orbital"] = doc["orbital_parallax"]
+    if "combined" in plx:
+        entries["combined"] = plx["combined"]
+    rows = []
+    for kind in sorted(entries, key=lambda k: k != used):
+        note = " (used for the masses)" if kind == used and mass else ""
+        rows.append((r"$\varpi$", f"Parallax, {_PLX_NAME.get(kind, kind)}{note}",
+                     _latex_cell(entries[kind]), "mas"))
+    if "agreement_sigma" in plx.get("orbital", {}):
+        rows.append(("", r"Orbital $-$ trigonometric parallax",
+                     f"${plx['orbital']['agreement_sigma']:+.1f}$", r"$\sigma$"))
+    return rows
+
+
+def elements_rows(doc):
+    """(symbol, quantity, value, unit) LaTeX cells of the elements, Thiele-Innes constants,
+    velocities of a combined solution, parallaxes and masses."""
+    rows = [(ELEMENT_NAMES[k][1], ELEMENT_NAMES[k][0], _latex_cell(doc["elements"][k]),
+             _latex_unit(k, doc["elements"][k], doc)) for k in ELEMENT_KEYS]
+    ti = doc.get("thiele_innes") or {}
+    rows += [(f"${k}$", "Thiele--Innes constant", _latex_cell(ti[k]), ti[k].get("unit", "arcsec"))
+             for k in THIELE_INNES_KEYS if k in ti]
+    rows += [(sym, name, _latex_cell(doc[k]), r"km\,s$^{-1}$") for k, sym, name in _COMBINED
+             if isinstance(doc.get(k), dict)]
+    rows += _parallax_rows(doc)
+    mass = doc.get("mass") or {}
+    symbols = {"total": (r"$\mathcal{M}_1+\mathcal{M}_2$", "Total mass"),
+               "primary": (r"$\mathcal{M}_1$", "Mass of the primary"),
+               "secondary": (r"$\mathcal{M}_2$", "Mass of the secondary")}
+    rows += [(*symbols[k], _latex_cell(mass[k]), r"$\mathcal{M}_\odot$") for k in MASS_KEYS
+             if isinstance(mass.get(k), dict) and _finite(mass[k].get("value"))]
+    return rows
+
+
+_LATEX_HEADER = ("% Written by orbweigh {version}. Plain LaTeX: needs no package (\\hline "
+                 "rules), so it\n% compiles in a plain article or a journal class; "
+                 "\\input{{{file}}} where the table goes.\n")
+
+
+def _write_latex(table, caption, label, align, file, version):
+    import io
+    out = io.StringIO()
+    table.write(out, format="ascii.latex", col_align=align,
+                latexdict={"tabletype": "table", "caption": caption,
+                           "preamble": [r"\centering"], "tablefoot": f"\\label{{{label}}}",
+                           "header_start": r"\hline", "header_end": r"\hline",
+                           "data_end": r"\hline"})
+    return _LATEX_HEADER.format(version=version or "", file=file) + out.getvalue()
+
+
+def elements_latex(doc, name=None):
+    """The LaTeX table of one orbit (``elements.tex``): astropy's LaTeX writer, no package.
+
+    Values by ``formatting`` (``\\pm`` for 1 sigma errors, ``^{+a}_{-b}`` for the 16th-84th
+    percentile interval of posterior elements and masses); T in the log's epoch scale; the
+    parallax the masses used comes first and says so.
+    """
+    from astropy.table import Table
+    rows = elements_rows(doc)
+    table = Table(rows=rows, names=("Symbol", "Quantity", "Value", "Unit"), dtype=[str] * 4)
+    what = ("median and 16th--84th percentile interval of the posterior" if
+            _finite(doc["elements"]["P"].get("low")) else r"1$\sigma$ uncertainties")
+    caption = (f"Orbital elements of {_latex_escape(object_name(doc, name))} ({what}; "
+               f"masses: median and 68\\% interval; $T$ as a "
+               f"{fmt.epoch_label(epoch_scale_of(doc))}).")
+    return _write_latex(table, caption, "tab:orbit", "llrl", "elements", doc.get("version"))
+
+
+def elements_table_latex(docs, names=None):
+    """One LaTeX table of many systems (``summary.tex``): a row per system with P, T, e, a,
+    i, Omega, omega and the total mass, written as ``elements_latex`` writes them.
 
     Parameters
     ----------
-    doc : dict
-        Result document.
-
-    Returns
-    -------
-    str
-        A ``table`` environment (needs ``\\usepackage{booktabs}``); values by the module's
-        rounding rule, uncertainties 1 sigma, masses as median and 68 % interval.
+    docs : sequence of dict
+        Result documents (each with its own epoch scale: T says it per row).
+    names : sequence of str, optional
+        System names (default: each log's stem).
     """
-    lines = [r"\begin{table}", r"\centering",
-             r"\caption{Orbital elements of " + _latex_escape(doc.get("source", "the pair"))
-             + r" (1$\sigma$ uncertainties).}", r"\label{tab:orbit}",
-             r"\begin{tabular}{lrl}", r"\toprule", r"Element & Value & Unit \\", r"\midrule"]
-    for key in ELEMENT_KEYS:
-        entry = doc["elements"][key]
-        value, error = format_value_error(entry["value"], entry.get("error"))
-        lines.append(_latex_row(ELEMENT_NAMES[key][1], value, error, _latex_unit(key, entry, doc)))
-    ti = doc.get("thiele_innes") or {}
-    if ti:
-        lines.append(r"\midrule")
-        for key in THIELE_INNES_KEYS:
-            value, error = format_value_error(ti[key]["value"], ti[key].get("error"))
-            lines.append(_latex_row(f"${key}$", value, error, ti[key].get("unit", "arcsec")))
-    lines += _latex_masses(doc)
-    lines += [r"\bottomrule", r"\end{tabular}", r"\end{table}", ""]
-    return "\n".join(lines)
-
-
-def _latex_masses(doc):
-    plx = doc.get("parallax") or {}
-    mass = doc.get("mass") or {}
+    from astropy.table import Table
+    names = list(names) if names is not None else [None] * len(docs)
     rows = []
-    if _finite(plx.get("value")):
-        value, error = format_value_error(plx["value"], plx.get("error"))
-        rows.append(_latex_row(r"$\varpi$", value, error, plx.get("unit", "mas")))
-    for key in MASS_KEYS:
-        entry = mass.get(key)
-        if isinstance(entry, dict) and _finite(entry.get("value")):
-            value, low, high = (v.replace("unbounded", r"\infty")
-                                for v in format_interval(entry, ("value", "low", "high")))
-            symbol = {"total": r"$\mathcal{M}_1+\mathcal{M}_2$", "primary": r"$\mathcal{M}_1$",
-                      "secondary": r"$\mathcal{M}_2$"}[key]
-            rows.append(f"{symbol} & ${value}$ $[{low}, {high}]$ & "
-                        r"$\mathcal{M}_\odot$ \\")
-    return ([r"\midrule"] + rows) if rows else []
+    for doc, name in zip(docs, names):
+        el, mass = doc["elements"], doc.get("mass") or {}
+        scale = {"besselian": "B", "julian": "J", "iso": "J", "jd": "JD ", "mjd": "MJD "}[
+            epoch_scale_of(doc)]
+        total = mass.get("total")
+        rows.append([_latex_escape(object_name(doc, name))]
+                    + [_latex_cell(el[k]) if k != "T" else f"{scale}{_latex_cell(el[k])}"
+                       for k in ELEMENT_KEYS]
+                    + [_latex_cell(total) if isinstance(total, dict) else "--"])
+    header = ["System"] + [ELEMENT_NAMES[k][1] for k in ELEMENT_KEYS] + [r"$\mathcal{M}$"]
+    units = ["", "yr", "", "", "arcsec", "deg", "deg", "deg", r"$\mathcal{M}_\odot$"]
+    table = Table(rows=rows, names=header, dtype=[str] * len(header)) if rows else \
+        Table(names=header, dtype=[str] * len(header))
+    table.insert_row(0, units)
+    caption = ("Orbital elements and total masses (1$\\sigma$ uncertainties or 16th--84th "
+               "percentile intervals; $T$ in each log's epoch scale: B Besselian, J Julian "
+               "year).")
+    version = docs[0].get("version") if docs else ""
+    return _write_latex(table, caption, "tab:systems", "l" + "r" * 8, "summary", version)
 
 
 def residuals_table(doc):
