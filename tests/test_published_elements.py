@@ -100,3 +100,26 @@ def test_bad_elements_file_exit_2(tmp_path, capsys):
     bad.write_text("P = {value = 41.6, unit = 'd'}\n")
     assert main(["ephemeris", "--elements-file", str(bad), "--epochs", "2030"]) == 2
     assert "expected 'yr'" in capsys.readouterr().err
+
+
+def test_equinox_of_date_against_the_classic_rate(tmp_path, capsys):
+    base = ["ephemeris", "--elements", MEEUS_TEXT, "--epochs", "J2050.0"]
+    j2000 = _json(capsys, base)
+    assert j2000["theta_equinox"] == "J2000"
+    coords = ["--target-ra", "90.0", "--target-dec", "30.0"]
+    of_date = _json(capsys, base + ["--equinox", "date"] + coords)
+    assert "equinox of date" in of_date["theta_equinox"]
+    change = of_date["ephemeris"][0]["theta_deg"] - j2000["ephemeris"][0]["theta_deg"]
+    # theta_date - theta_2000 = +0.00557 deg sin(alpha) sec(delta) per year (Aitken, The
+    # Binary Stars, 1935; memory): 0.00557 x 1 / cos 30 deg x 50 yr = 0.3216 deg.
+    assert change == pytest.approx(0.00557 / np.cos(np.radians(30.0)) * 50.0, rel=0.03)
+    # Coordinates from the elements file give the same; the rho column is untouched.
+    toml = tmp_path / "o.toml"
+    toml.write_text("\n".join(MEEUS_TEXT.split()) + '\nra = "6h00m00s"\ndec = "+30d00m00s"\n')
+    from_file = _json(capsys, ["ephemeris", "--elements-file", str(toml), "--epochs",
+                               "J2050.0", "--equinox", "date"])
+    assert from_file["ephemeris"][0]["theta_deg"] == pytest.approx(
+        of_date["ephemeris"][0]["theta_deg"], abs=1e-9)
+    assert from_file["ephemeris"][0]["rho_arcsec"] == j2000["ephemeris"][0]["rho_arcsec"]
+    assert main(base + ["--equinox", "date"]) == 2
+    assert "needs the pair's J2000 coordinates" in capsys.readouterr().err

@@ -32,6 +32,7 @@ from .errors import InputError
 __all__ = ["EPOCH_SCALES", "to_julian_year", "from_julian_year", "epoch_unit", "interval_in_scale",
            "PLAUSIBLE_YEARS", "split_epoch", "parse_epoch", "parse_epochs", "julian_years_of",
            "PA_PRECESSION_DEG_PER_YR", "parse_target_coordinates", "precess_theta_to_j2000",
+           "precess_theta_to_date",
            "approx_theta_correction_deg"]
 
 EPOCH_SCALES = ("besselian", "julian", "jd", "mjd", "iso")
@@ -254,6 +255,19 @@ def precess_theta_to_j2000(theta_deg, epoch_yr, ra_deg, dec_deg):
     ndarray
         Position angles for equinox J2000 [deg, 0..360].
     """
+    return _precess_theta(theta_deg, epoch_yr, ra_deg, dec_deg, to_j2000=True)
+
+
+def precess_theta_to_date(theta_deg, epoch_yr, ra_deg, dec_deg):
+    """Position angles for equinox J2000 referred to the equinox of each epoch.
+
+    The reverse of ``precess_theta_to_j2000`` (same rigorous construction): what an
+    observer measuring in the equinox of date would read.
+    """
+    return _precess_theta(theta_deg, epoch_yr, ra_deg, dec_deg, to_j2000=False)
+
+
+def _precess_theta(theta_deg, epoch_yr, ra_deg, dec_deg, to_j2000):
     import astropy.units as u
     from astropy.coordinates import FK5, SkyCoord
     from astropy.time import Time
@@ -266,9 +280,12 @@ def precess_theta_to_j2000(theta_deg, epoch_yr, ra_deg, dec_deg):
     star = SkyCoord(np.full(t.size, ra_deg) * u.deg, np.full(t.size, dec_deg) * u.deg,
                     frame=j2000)
     star_date = star.transform_to(of_date)
-    tip = star_date.directional_offset_by(theta * u.deg, 1.0 * u.arcsec)
-    tip = SkyCoord(tip.ra, tip.dec, frame=of_date).transform_to(j2000)
-    return np.mod(star.position_angle(tip).deg, 360.0).reshape(shape)
+    # Offset along theta in the frame theta refers to, then measure in the other one.
+    origin, start, target, end = ((star_date, of_date, star, j2000) if to_j2000
+                                  else (star, j2000, star_date, of_date))
+    tip = origin.directional_offset_by(theta * u.deg, 1.0 * u.arcsec)
+    tip = SkyCoord(tip.ra, tip.dec, frame=start).transform_to(end)
+    return np.mod(target.position_angle(tip).deg, 360.0).reshape(shape)
 
 
 def approx_theta_correction_deg(epoch_yr, ra_deg, dec_deg):

@@ -17,7 +17,8 @@ from ..errors import InputError
 from ..files import write_atomic
 
 __all__ = ["add_arguments", "run", "epoch_grid", "parse_epoch_option", "parse_epoch_list",
-           "epochs_from_options", "ephemeris_rows", "MAX_ROWS"]
+           "epochs_from_options", "ephemeris_rows", "target_of", "to_equinox_of_date",
+           "MAX_ROWS"]
 
 #: Largest number of epochs one command computes (a guard against a mistyped --step).
 MAX_ROWS = 100_000
@@ -39,6 +40,14 @@ def add_arguments(parser):
                         help="spacing of the epochs (yr; d when --start is a JD or MJD) [1.0]")
     parser.add_argument("--epochs", help="comma-separated list of epochs instead of a grid, "
                         "e.g. 2027.3,J2031.9,2033-05-17")
+    parser.add_argument("--equinox", choices=("J2000", "date"), default="J2000",
+                        help="equinox of the theta columns: J2000 (as fitted) or 'date' "
+                             "(precessed to each epoch's equinox, as an observer measures; "
+                             "needs the pair's coordinates) [J2000]")
+    parser.add_argument("--target-ra", metavar="RA", help="J2000 right ascension of the pair "
+                        "(degrees or hh:mm:ss.s), for --equinox date")
+    parser.add_argument("--target-dec", metavar="DEC", help="J2000 declination of the pair "
+                        "(degrees or +dd:mm:ss), for --equinox date")
     parser.add_argument("--json", metavar="PATH|-", help="write the rows as JSON ('-' for "
                         "standard output, which then replaces the printed table)")
     parser.add_argument("--ecsv", metavar="PATH", help="write the rows as an ECSV table")
@@ -176,6 +185,30 @@ def ephemeris_rows(doc, epochs, t_yr, n_draws=1000, seed=1):
     return rows, 0 if draws is None else len(draws), independent and draws is not None
 
 
+def target_of(doc, ra=None, dec=None):
+    """(ra_deg, dec_deg) of the pair: the options, else the document's ``target``; or None."""
+    from ..reductions import parse_target_coordinates
+    if (ra is None) != (dec is None):
+        raise InputError("give both --target-ra and --target-dec, or neither")
+    if ra is not None:
+        return parse_target_coordinates(ra, dec)
+    target = doc.get("target")
+    if isinstance(target, dict) and "ra_deg" in target and "dec_deg" in target:
+        return parse_target_coordinates(target["ra_deg"], target["dec_deg"])
+    return None
+
+
+def to_equinox_of_date(rows, t_yr, target):
+    """Theta columns of ``rows`` precessed from equinox J2000 to each epoch's equinox."""
+    from ..reductions import precess_theta_to_date
+    t = np.asarray(t_yr, float)
+    for key in ("theta_deg", "theta_low_deg", "theta_high_deg"):
+        if key in rows[0]:
+            values = precess_theta_to_date([r[key] for r in rows], t, *target)
+            for r, v in zip(rows, values):
+                r[key] = float(v)
+
+
 def _format_table(rows, header):
     keys = list(rows[0])
     lines = [f"# {h}" for h in header]
@@ -215,11 +248,21 @@ def run(args):
     epochs, scale, t = epochs_from_options(args.start, args.stop, args.step, args.epochs,
                                            day_unit)
     rows, n_used, independent = ephemeris_rows(doc, epochs, t, args.draws, args.seed)
+    target = target_of(doc, args.target_ra, args.target_dec)
+    if args.equinox == "date":
+        if target is None:
+            raise InputError("--equinox date needs the pair's J2000 coordinates: give "
+                             "--target-ra and --target-dec, or ra and dec in the elements file")
+        to_equinox_of_date(rows, t, target)
+        equinox = "equinox of date (each epoch's own), precessed from J2000 with astropy FK5"
+    else:
+        equinox = "J2000"
     bands = ("central 68% of the element draws" if n_used else
              "none (no draws, covariance or element errors in the document)")
     if independent:
         bands += "; " + INDEPENDENT_ERRORS_NOTE
-    meta = {"source": source, "epoch_scale": scale, "n_draws": n_used,
+    meta = {"source": source, "epoch_scale": scale, "theta_equinox": equinox,
+            "n_draws": n_used,
             "seed": args.seed if n_used else None, "bands": bands,
             "correlations": "unknown" if independent else ("from the document" if n_used
                                                            else None)}
@@ -233,6 +276,7 @@ def run(args):
         _write_ecsv(args.ecsv, rows, meta, scale)
     if args.json != "-":
         header = [f"ephemeris of {source}; epochs in the {scale} scale, as given",
+                  f"theta columns: {equinox}",
                   f"68% bands from {n_used} element draws, seed {args.seed}" if n_used
                   else "no draws, covariance or element errors in the document: no bands"]
         if independent:
