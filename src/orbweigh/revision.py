@@ -64,7 +64,7 @@ from .fitting import FLIP_MIN_GAIN
 from .model import wrap_degrees
 
 __all__ = ["ALPHA", "ERROR_INFLATION", "VERDICTS", "RevisionCheck", "old_orbit_residuals",
-           "check_revision", "typical_sigma_arcsec", "compare_orbits"]
+           "check_revision", "typical_sigma_arcsec", "align_orbits", "compare_orbits"]
 
 #: Size of each test (false-alarm probability).
 ALPHA = 0.01
@@ -268,8 +268,13 @@ def typical_sigma_arcsec(data, rows=None):
     return float(np.median(np.sqrt(0.5 * (s_rho**2 + s_tan**2))))
 
 
-def _aligned(old, new):
-    """New elements with the node shift that brings them closest to the old ones."""
+def align_orbits(old, new):
+    """Old and new elements named alike, for element-by-element comparison.
+
+    Both are normalised; the new (Omega, omega) take the common 180 deg shift that brings
+    the nodes closest; the new T is moved by whole new periods to the passage nearest the
+    old T. Returns (old, new, new T [Julian yr]).
+    """
     old, new = old.normalised(), new.normalised()
     if abs(wrap_degrees(new.node_deg - old.node_deg)) > 90.0:
         new = CampbellElements(new.period_yr, new.periastron_yr, new.e, new.a_arcsec, new.i_deg,
@@ -288,8 +293,9 @@ def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors
         Old and new orbit (T as Julian years).
     start_yr : float
         Start of the prediction window [Julian year], e.g. the last measurement.
-    sigma_arcsec : float
-        Typical positional sigma of a measurement [arcsec] (``typical_sigma_arcsec``).
+    sigma_arcsec : float or ndarray
+        Typical positional sigma of a measurement [arcsec] (``typical_sigma_arcsec``), or
+        one sigma for each of the ``n_epochs`` window epochs (e.g. the new orbit's band).
     old_errors, new_errors : dict, optional
         1-sigma errors by element key, internal units; missing keys count as 0.
     years : float
@@ -305,7 +311,7 @@ def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors
         ``max_separation_sigma``; ``typical_sigma_arcsec``.
     """
     old_errors, new_errors = old_errors or {}, new_errors or {}
-    old_n, new_n, new_t = _aligned(old, new)
+    old_n, new_n, new_t = align_orbits(old, new)
     old_v, new_v = old_n.to_keys(), new_n.to_keys()
     new_v["T"] = new_t
     elements = {}
@@ -320,7 +326,10 @@ def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors
     a, b = ephemeris(old, epochs), ephemeris(new, epochs)
     separation = np.hypot(a.x_arcsec - b.x_arcsec, a.y_arcsec - b.y_arcsec)
     k = int(np.argmax(separation))
+    in_sigma = separation / np.asarray(sigma_arcsec, float)
     return {"elements": elements, "window_yr": [float(start_yr), float(start_yr + years)],
             "max_separation_arcsec": float(separation[k]), "epoch_of_max_yr": float(epochs[k]),
-            "typical_sigma_arcsec": sigma_arcsec,
-            "max_separation_sigma": float(separation[k] / sigma_arcsec)}
+            "typical_sigma_arcsec": (float(sigma_arcsec) if np.ndim(sigma_arcsec) == 0
+                                     else float(np.median(sigma_arcsec))),
+            "max_separation_sigma": float(in_sigma.max()),
+            "epoch_of_max_sigma_yr": float(epochs[int(np.argmax(in_sigma))])}

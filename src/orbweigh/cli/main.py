@@ -21,6 +21,7 @@ COMMANDS = {
     "report": "write an HTML report, figures and tables from a saved fit result",
     "plan": "advise when a new measurement would best improve the orbit and mass",
     "batch": "check and refit many systems listed in a manifest",
+    "compare": "compare two orbits of one pair: elements in sigma, predictions on the sky",
 }
 
 
