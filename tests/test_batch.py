@@ -98,6 +98,13 @@ def test_verdicts_on_the_synthetic_catalogue(full_run):
     assert rows["drifting"]["p_value_inflated"] >= 0.01
     assert min(rows["drifting"]["p_value"], rows["drifting"]["p_systematic"]) < 0.01
     assert min(rows["consistent"]["p_value"], rows["consistent"]["p_systematic"]) >= 0.01
+    # The p-value shown is the one that decided: for drifting the rejecting test's.
+    drift = rows["drifting"]
+    assert drift["p_decisive"] == drift[drift["decided_by"]] < 0.01
+    assert drift["decided_by"] in ("p_value", "p_systematic")
+    assert rows["contradicted"]["decided_by"] == "p_value_inflated"
+    index = (out / "index.html").read_text()
+    assert f"<td>{float(drift['p_decisive']):.2g} (" in index
     # Every good system was refitted, recovering the true period within 4 sigma.
     for name in ("consistent", "drifting", "contradicted", "fresh"):
         assert rows[name]["status"] == "done" and rows[name]["fitted"]

@@ -352,7 +352,7 @@ _SUMMARY_COLUMNS = (
     ("rank", int, ""), ("id", str, ""), ("verdict", str, ""), ("status", str, ""),
     ("n_new", int, ""), ("chi2_new", float, ""), ("dof_new", int, ""),
     ("reduced_chi2_new", float, ""), ("p_value", float, ""), ("p_value_inflated", float, ""),
-    ("p_systematic", float, ""), ("mean_z_theta", float, ""), ("mean_z_rho", float, ""),
+    ("p_systematic", float, ""), ("decided_by", str, ""), ("p_decisive", float, ""), ("mean_z_theta", float, ""), ("mean_z_rho", float, ""),
     ("fitted", bool, ""), ("P", float, "yr"), ("P_err", float, "yr"), ("e", float, ""),
     ("e_err", float, ""), ("a", float, "arcsec"), ("a_err", float, "arcsec"),
     ("reduced_chi2_fit", float, ""), ("max_element_change_sigma", float, ""),
@@ -371,8 +371,9 @@ def _summary_row(record):
     rev = record["revision"] or {}
     for key in ("n_new", "dof_new"):
         row[key] = int(rev.get(key, 0))
+    row["decided_by"] = rev.get("decided_by", "")
     for key in ("chi2_new", "reduced_chi2_new", "p_value", "p_value_inflated", "p_systematic",
-                "mean_z_theta", "mean_z_rho"):
+                "p_decisive", "mean_z_theta", "mean_z_rho"):
         row[key] = float(rev.get(key, nan))
     doc = record.get("document") or {}
     elements = doc.get("elements", {})
@@ -416,7 +417,9 @@ def _summary_table(records):
         link = next((f for f in ("report.html", "result.json") if f in rec["files"]),
                     "batch.json")
         row["link"] = f"systems/{rec['key']}/{link}"
-    table = Table(rows=[[row[name] for name, _, _ in _SUMMARY_COLUMNS] for row in rows],
+    blank = {float: float("nan"), int: 0, str: "", bool: False}  # a column a record predates
+    table = Table(rows=[[row.get(name, blank[t]) for name, t, _ in _SUMMARY_COLUMNS]
+                        for row in rows],
                   names=[n for n, _, _ in _SUMMARY_COLUMNS],
                   dtype=[t for _, t, _ in _SUMMARY_COLUMNS]) if rows else Table()
     for name, _, unit in _SUMMARY_COLUMNS:
@@ -446,12 +449,17 @@ def _write_summary(out, records, manifest, options, interrupted=False):
 def _index_html(table, manifest, options):
     from html import escape
 
-    def cell(row, name, fmt):
-        value = row[name]
-        return "" if isinstance(value, float) and not np.isfinite(value) else fmt.format(value)
+    from .formatting import fixed, number
+
+    def cell(row, name, spec):
+        """``spec``: 'fN' for N decimals, 'gN' for N significant digits (the formatter)."""
+        value = float(row[name])
+        if not np.isfinite(value):
+            return ""
+        return fixed(value, int(spec[1:])) if spec[0] == "f" else number(value, int(spec[1:]))
 
     head = ("<tr><th>#</th><th>system</th><th>verdict</th><th>new points</th>"
-            "<th>&chi;&sup2;/dof new</th><th>p (&sigma;&times;3)</th><th>P [yr]</th>"
+            "<th>&chi;&sup2;/dof new</th><th>p that decided (test)</th><th>P [yr]</th>"
             "<th>e</th><th>a [&Prime;]</th><th>max &Delta; element [&sigma;]</th>"
             "<th>max separation, next 10 yr [&Prime;]</th><th>[&sigma;]</th>"
             "<th>mass [M&#8857;]</th><th>warnings</th><th>error</th></tr>")
@@ -463,11 +471,11 @@ def _index_html(table, manifest, options):
                    f'{escape(row["verdict"] or row["status"])}</span>')
         lines.append("<tr>" + "".join(f"<td>{c}</td>" for c in (
             row["rank"], name, verdict, row["n_new"] or "",
-            cell(row, "reduced_chi2_new", "{:.2f}"), cell(row, "p_value_inflated", "{:.2g}"),
-            cell(row, "P", "{:.4g}"), cell(row, "e", "{:.3f}"), cell(row, "a", "{:.4g}"),
-            cell(row, "max_element_change_sigma", "{:.1f}"),
-            cell(row, "max_separation_arcsec", "{:.3g}"),
-            cell(row, "max_separation_sigma", "{:.1f}"), cell(row, "mass_msun", "{:.3g}"),
+            cell(row, "reduced_chi2_new", "f2"), _decisive_cell(row),
+            cell(row, "P", "g4"), cell(row, "e", "f3"), cell(row, "a", "g4"),
+            cell(row, "max_element_change_sigma", "f1"),
+            cell(row, "max_separation_arcsec", "g3"),
+            cell(row, "max_separation_sigma", "f1"), cell(row, "mass_msun", "g3"),
             _warning_mark(row), escape(row["error"]))) + "</tr>")
     counts = {v: int(np.sum(table["verdict"] == v)) for v in URGENCY if len(table)}
     tally = ", ".join(f"{n} {v}" for v, n in counts.items() if n)
@@ -475,11 +483,22 @@ def _index_html(table, manifest, options):
             f"{escape(Path(manifest).name)}</title>\n<style>body{{font-family:sans-serif}}"
             "table{border-collapse:collapse}td,th{border:1px solid #999;padding:2px 6px;"
             "font-size:90%}.warn{color:#b35900;font-weight:bold}</style></head><body>\n"
-            f"<h1>Batch of {escape(str(manifest))}</h1>\n<p>{len(table)} systems, most urgent "
+            f"<h1>Batch of {escape(str(manifest))}</h1>\n<p>{_count(len(table), 'system')}, most urgent "
             f"first: {escape(tally)}. Batch seed {options.seed}. Verdict rule: see "
             "orbweigh.revision (chi&sup2; tests at the 1 % level; contradicted = rejected even "
             f"with sigmas tripled).</p>\n<table>\n{head}\n" + "\n".join(lines)
             + "\n</table></body></html>\n")
+
+
+_TEST_NAMES = {"p_value": "&chi;&sup2;", "p_value_inflated": "&chi;&sup2;, &sigma;&times;3",
+               "p_systematic": "offset and trend"}
+
+
+def _decisive_cell(row):
+    if not np.isfinite(row["p_decisive"]):
+        return ""
+    from .formatting import number
+    return f'{number(float(row["p_decisive"]), 2)} ({_TEST_NAMES.get(row["decided_by"], "")})'
 
 
 def _warning_mark(row):

@@ -102,6 +102,9 @@ class RevisionCheck:
         chi2 explained by offset and trend, its dof, and its tail probability.
     max_abs_z : float
         Largest |z| of the new data.
+    decided_by, p_decisive : str, float
+        Name and p-value of the test that decided the verdict (for consistent: the
+        test closest to rejecting).
     residuals : list of dict
         O-C of every measurement: line, epoch_yr, d_theta_deg, d_rho_arcsec, z_theta,
         z_rho, new, flipped, status ('used' or 'excluded').
@@ -128,6 +131,8 @@ class RevisionCheck:
     dof_systematic: int
     p_systematic: float
     max_abs_z: float
+    decided_by: str = ""
+    p_decisive: float = float("nan")
     residuals: list = field(default_factory=list)
 
     def to_dict(self):
@@ -223,6 +228,7 @@ def check_revision(elements, data, last_epoch_yr=None, flips=True):
         max_abs_z=float(np.sqrt(np.max(np.maximum(oc["z_theta"][new] ** 2,
                                                   oc["z_rho"][new] ** 2)))) if n_new else 0.0)
     verdict, reason = _decide(numbers)
+    numbers["decided_by"], numbers["p_decisive"] = _decisive(verdict, numbers)
     rows = [{"line": int(data.line[k]), "epoch_yr": float(data.epoch_yr[k]),
              "d_theta_deg": float(oc["d_theta_deg"][k]),
              "d_rho_arcsec": float(oc["d_rho_arcsec"][k]), "z_theta": float(oc["z_theta"][k]),
@@ -230,6 +236,18 @@ def check_revision(elements, data, last_epoch_yr=None, flips=True):
              "flipped": bool(oc["flipped"][k]), "status": "used" if votes[k] else "excluded"}
             for k in range(len(data))]
     return RevisionCheck(verdict=verdict, reason=reason, residuals=rows, **numbers)
+
+
+def _decisive(verdict, n):
+    """The test that decided the verdict and its p-value: the inflated test for
+    contradicted; for drifting the test that rejected (the smaller p); for consistent the
+    test closest to rejecting."""
+    if verdict == "no new data":
+        return "", float("nan")
+    if verdict == "contradicted":
+        return "p_value_inflated", n["p_value_inflated"]
+    name = min(("p_value", "p_systematic"), key=lambda k: n[k])
+    return name, n[name]
 
 
 def _decide(n):
