@@ -375,7 +375,7 @@ def test_cli_writes_svg_and_pdf_without_draws(cli_report):
 
 
 @pytest.mark.parametrize("args, message", [
-    (["missing.json"], "cannot read the result document"),
+    (["missing.json"], "cannot read the file"),
     (["bad.json"], "not valid JSON"),
     (["good.json", "--formats", "png,gif"], "unknown figure format"),
     (["good.json", "--formats", " , "], "at least one of png, svg, pdf"),

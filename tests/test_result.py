@@ -107,7 +107,7 @@ def test_device_fifo_and_folder_are_refused_at_once(tmp_path):
     ("P T e a i Omega omega\n1 2 0.1 1 1 1 1\n", "not a readable ECSV table"),
     ("# %ECSV 1.0\n# ---\n# datatype:\n# - {name: P, datatype: float64}\nP\n1.0\n",
      "no column 'T'"),
-    (None, "cannot read the posterior draws file"),
+    (None, "cannot read the file"),
 ])
 def test_broken_draws_file_is_a_clear_error(tmp_path, capsys, draws_text, message):
     path = write_document(tmp_path)

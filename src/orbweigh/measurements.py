@@ -2,10 +2,13 @@
 
 Log files
 ---------
-* **CSV** (comma-separated) or **whitespace-separated** text: the first line that is neither
-  blank nor a ``#`` comment is the header naming the columns; the delimiter is a comma when
-  the header has one, whitespace otherwise. Values containing the delimiter go in double
-  quotes. Rows may stop early when the cells left out belong to optional columns.
+* **CSV** (comma-separated), **tab-separated** or **whitespace-separated** text: the first
+  line that is neither blank nor a ``#`` comment is the header naming the columns; the
+  delimiter is a comma when the header has one, else a tab when it has one, else runs of
+  spaces. With commas and tabs an empty cell between two delimiters is a cell (a missing
+  value). Values containing the delimiter go in double quotes. Rows may stop early when the
+  cells left out belong to optional columns. Lines end at ``\n``, ``\r\n`` or ``\r`` only;
+  a file must be a regular file of at most ``MAX_LOG_BYTES``.
 * **ECSV** (first line ``# %ECSV 1.0``): the YAML header is read with astropy; its column
   units are honoured (theta, sigma_theta in any angle unit, e.g. deg, rad, arcmin; rho,
   sigma_rho e.g. arcsec or mas; an epoch column in ``d`` reads plain numbers as JD/MJD) and
@@ -24,6 +27,7 @@ Rules
 -----
 * ``flag``: empty (or a missing-value marker), ``0``, ``no``, ``false`` or ``ok`` keeps the
   row; any other text excludes it from fitting. The row stays in the set (``excluded``).
+* Values outside ``PHYSICAL_BOUNDS`` (rho, the sigmas, the weight) reject the row.
 * ``weight`` w > 0 (default 1) scales the uncertainties: effective sigma = sigma / sqrt(w).
 * A missing sigma is taken from ``TECHNIQUE_DEFAULTS`` for the row's technique
   (``sigma_defaulted``); techniques outside the vocabulary use the conservative 'unknown'.
@@ -51,7 +55,8 @@ from .reductions import (EPOCH_SCALES, julian_years_of, parse_target_coordinates
 __all__ = ["RowProblem", "MeasurementSet", "LogTable", "Suspicion", "REQUIRED_COLUMNS",
            "OPTIONAL_COLUMNS", "MISSING_MARKERS", "TECHNIQUE_DEFAULTS", "TECHNIQUE_ALIASES",
            "technique_class", "default_sigmas", "parse_column_mapping", "read_table",
-           "read_measurements", "suspicious_rows", "collect_rows", "epochs_in_days"]
+           "read_measurements", "suspicious_rows", "collect_rows", "epochs_in_days",
+           "PHYSICAL_BOUNDS", "MAX_LOG_BYTES"]
 
 REQUIRED_COLUMNS = ("epoch", "theta", "rho")
 OPTIONAL_COLUMNS = ("sigma_theta", "sigma_rho", "weight", "technique", "flag", "note")
@@ -71,6 +76,18 @@ TECHNIQUE_DEFAULTS = {
 }
 
 #: Other names accepted for the techniques (lower case; '-' and '_' read as spaces).
+#: Physical bounds of a row's values (inclusive; internal units), checked by row. Below the
+#: floors no astrometry exists (1 micro-arcsec, beyond any interferometer or space mission)
+#: and the fit's linear algebra loses all precision; a separation above one degree is no
+#: orbiting pair; the weight range keeps the effective sigma above 1e-8 (common practice,
+#: no source).
+PHYSICAL_BOUNDS = {
+    "rho": (1e-6, 3600.0, "arcsec"),
+    "sigma_theta": (1e-6, 180.0, "deg"),
+    "sigma_rho": (1e-6, 3600.0, "arcsec"),
+    "weight": (1e-4, 1e4, ""),
+}
+
 TECHNIQUE_ALIASES = {
     "visual": "micrometer", "micrometric": "micrometer", "filar": "micrometer",
     "filar micrometer": "micrometer",
@@ -307,6 +324,11 @@ def _split_comma(text):
     return [cell.strip() for cell in next(csv.reader([text], skipinitialspace=True))]
 
 
+def _split_tab(text):
+    """Tab-separated cells; an empty cell between two tabs is a cell."""
+    return [cell.strip() for cell in next(csv.reader([text], delimiter="\t"))]
+
+
 def _other_delimiter(text, used):
     """Name of a delimiter other than ``used`` that appears in ``text``, or None."""
     for char, name in _OTHER_DELIMITERS:
@@ -315,15 +337,22 @@ def _other_delimiter(text, used):
     return None
 
 
+#: Largest log read [bytes]: a log of 100,000 rows is a few MB; a bigger file is a mistake.
+MAX_LOG_BYTES = 64 * 2 ** 20
+_LINE_END = re.compile(r"\r\n|\r|\n")   # only these end a line (not U+2028, form feed, ...)
+
+
 def _read_lines(path):
+    from .tables import read_bounded_bytes
     try:
-        with open(path, encoding="utf-8-sig") as handle:
-            return handle.read().splitlines()
+        text = read_bounded_bytes(path, MAX_LOG_BYTES, what="log").decode("utf-8-sig")
     except UnicodeDecodeError as exc:
         raise LogFormatError(path, f"not a UTF-8 text file (byte {exc.start} cannot be "
                              "decoded); save the log as plain text") from None
-    except OSError as exc:
-        raise LogFormatError(path, f"cannot read the file ({exc.strerror or exc})") from None
+    except InputError as exc:
+        raise LogFormatError(path, str(exc).removeprefix(f"{path}: ")) from None
+    lines = _LINE_END.split(text)
+    return lines[:-1] if lines[-1] == "" else lines
 
 
 def _ecsv_header(path, lines):
@@ -382,7 +411,7 @@ def _header(path, lines, body):
     if lines[0].startswith("# %ECSV"):
         delimiter, units, meta = _ecsv_header(path, lines)
         split = _split_comma if delimiter == "," else _split_whitespace
-        names = split(text)
+        names = _split_header(path, split, text, line)
         undeclared = [n for n in names if n not in units]
         if units and undeclared:
             raise LogFormatError(path, f"column(s) {', '.join(undeclared)} of the column line "
@@ -392,9 +421,14 @@ def _header(path, lines, body):
     if path.lower().endswith(".ecsv"):
         raise LogFormatError(path, "the name ends in .ecsv but the first line is not "
                              "'# %ECSV 1.0'; write it with astropy or rename it .csv", line=1)
-    fmt, split = ("csv", _split_comma) if "," in text else ("whitespace", _split_whitespace)
-    names = split(text)
-    other = _other_delimiter(text, "," if fmt == "csv" else " \t")
+    if "," in text:
+        fmt, split, used = "csv", _split_comma, ","
+    elif "\t" in text:
+        fmt, split, used = "tab", _split_tab, "\t"
+    else:
+        fmt, split, used = "whitespace", _split_whitespace, " "
+    names = _split_header(path, split, text, line)
+    other = _other_delimiter(text, used)
     if len(names) == 1 and other:
         raise LogFormatError(path, f"wrong delimiter: the header '{text.strip()}' is one "
                              f"column; it seems separated by {other}. Separate columns with "
@@ -405,6 +439,23 @@ def _header(path, lines, body):
                              "sigma_rho' (a header written as a '#' comment is ignored)",
                              line=line)
     return fmt, split, names, {}, {}
+
+
+def _split_header(path, split, text, line):
+    try:
+        return split(text)
+    except csv.Error as exc:
+        raise LogFormatError(path, f"the header cannot be split into columns ({exc})",
+                             line=line) from None
+
+
+def _split_row(split, text):
+    """(cells, None), or (None, reason) when the line cannot be split (e.g. a cell over the
+    CSV field limit of 128 kB)."""
+    try:
+        return split(text), None
+    except csv.Error as exc:
+        return None, f"the line cannot be split into cells ({exc}); shorten the cell"
 
 
 def _is_number(text):
@@ -474,10 +525,12 @@ def read_table(path, required, optional=(), columns=None, option="--columns"):
         raise LogFormatError(path, f"no data rows after the header (line {header_line})",
                              line=header_line)
     rows, problems = [], []
-    used = "," if split is _split_comma else " \t"
+    used = {_split_comma: ",", _split_tab: "\t"}.get(split, " \t")
     for line, text in body[1:]:
-        cells, reason = _shape_problem(split(text), names, index, required, text, used,
-                                       header_line)
+        cells, reason = _split_row(split, text)
+        if cells is not None:
+            cells, reason = _shape_problem(cells, names, index, required, text, used,
+                                           header_line)
         if reason:
             problems.append(RowProblem(line, None, reason))
         else:
@@ -587,6 +640,17 @@ _EXPECTED = {
 }
 
 
+def _check_bounds(value, text, column, name):
+    """_RowError when a read value lies outside ``PHYSICAL_BOUNDS``."""
+    if value is None:
+        return
+    low, high, unit = PHYSICAL_BOUNDS[name]
+    if not low <= value <= high:
+        shown = f"'{text}'" if text.strip() else f"{value:.6g}"
+        raise _RowError(column, f"{shown} is outside [{low:g}, {high:g}] {unit}, the range a "
+                        f"measurement can have; expected {_EXPECTED[name]}")
+
+
 def _parse_row(cells, factors, header, day_unit):
     """A validated record from one row's cells; _RowError on the first bad cell."""
     col = lambda name: header.get(name, name)  # noqa: E731 - column name as the user wrote it
@@ -618,6 +682,8 @@ def _parse_row(cells, factors, header, day_unit):
                                                  "weight" if name != "weight" else "zero")
             raise _RowError(col(name), f"'{cells[name]}' is {what}; expected {_EXPECTED[name]}")
         record[name] = value
+    for name in ("rho", "sigma_theta", "sigma_rho", "weight"):
+        _check_bounds(record[name], cells[name] if name in cells else "", col(name), name)
     record["technique_input"] = cells.get("technique", "")
     record["flag"] = cells.get("flag", "")
     record["note"] = cells.get("note", "")
@@ -774,8 +840,9 @@ def suspicious_rows(ms):
     * ``small_sigma``: an effective sigma below ``TIGHT_FRACTION`` of the technique's
       typical value (``TECHNIQUE_DEFAULTS``; for isotropic techniques sigma_theta is
       compared as rho * sigma_theta); not applied to technique 'unknown'.
-    * ``discordant_same_epoch``: two rows within ``SAME_EPOCH_YR`` differing in theta or
-      rho by more than ``DISCORDANT_SIGMAS`` combined effective sigmas.
+    * ``discordant_same_epoch``: a row within ``SAME_EPOCH_YR`` of earlier rows and
+      differing from one of them in theta or rho by more than ``DISCORDANT_SIGMAS``
+      combined effective sigmas (one suspicion a row, naming the first such earlier row).
 
     Returns
     -------
@@ -791,24 +858,32 @@ def suspicious_rows(ms):
         message = _tight_sigma(ms.technique[use[k]], rho[k], s_th[k], s_rho[k])
         if message and not ms.sigma_defaulted[use[k]]:
             out.append(Suspicion(int(lines[k]), "small_sigma", message))
-    for i, j in _pairs_within(t, SAME_EPOCH_YR):
+    for j, earlier in _discordant(t, th, rho, s_th, s_rho, SAME_EPOCH_YR):
+        i = earlier[0]
         d_th, d_rho = abs(wrap_degrees(th[i] - th[j])), abs(rho[i] - rho[j])
-        if (d_th > DISCORDANT_SIGMAS * np.hypot(s_th[i], s_th[j])
-                or d_rho > DISCORDANT_SIGMAS * np.hypot(s_rho[i], s_rho[j])):
-            out.append(Suspicion(int(lines[j]), "discordant_same_epoch",
-                                 f"same epoch as line {lines[i]} but differs by {d_th:.2f} deg "
-                                 f"in theta and {d_rho:.4f} arcsec in rho (more than "
-                                 f"{DISCORDANT_SIGMAS:g} combined sigmas)"))
+        more = f" (and {earlier.size - 1} other earlier row(s))" if earlier.size > 1 else ""
+        out.append(Suspicion(int(lines[j]), "discordant_same_epoch",
+                             f"same epoch as line {lines[i]}{more} but differs by {d_th:.2f} "
+                             f"deg in theta and {d_rho:.4f} arcsec in rho (more than "
+                             f"{DISCORDANT_SIGMAS:g} combined sigmas)"))
     return sorted(out, key=lambda s: s.line)
 
 
-def _pairs_within(t, window):
-    """Index pairs (i < j) of time-sorted ``t`` with t[j] - t[i] <= window."""
-    pairs, d = [], 1
-    while d < t.size and (close := np.flatnonzero(t[d:] - t[:-d] <= window)).size:
-        pairs += [(i, i + d) for i in close]
-        d += 1
-    return sorted(pairs)
+def _discordant(t, th, rho, s_th, s_rho, window):
+    """(j, earlier discordant indices) for time-sorted rows within ``window`` of each other.
+
+    Each row is compared with the earlier rows of its window (found by ``searchsorted``),
+    one vector operation a row: memory stays linear however many rows share an epoch.
+    """
+    start = np.searchsorted(t, t - window, side="left")
+    for j in range(1, t.size):
+        i = np.arange(start[j], j)
+        if not i.size:
+            continue
+        bad = ((np.abs(wrap_degrees(th[i] - th[j])) > DISCORDANT_SIGMAS * np.hypot(s_th[i], s_th[j]))
+               | (np.abs(rho[i] - rho[j]) > DISCORDANT_SIGMAS * np.hypot(s_rho[i], s_rho[j])))
+        if bad.any():
+            yield j, i[bad]
 
 
 def _flips(t, th, rho, lines):

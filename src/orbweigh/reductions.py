@@ -14,7 +14,8 @@ iso         ``1934-01-03``                Julian year (an ISO date has no decima
 =========== ============================= ==================================
 
 A plain number is a Besselian year, or a Julian date when above 100000; plain years outside
-``PLAUSIBLE_YEARS`` are refused as typos or unprefixed day counts. Civil dates are read on
+``PLAUSIBLE_YEARS`` are refused as typos or unprefixed day counts, and day counts (JD, MJD)
+whose year falls outside the same window are refused too. Civil dates are read on
 the TT scale (the minute or so to UT is far below what an orbit resolves).
 
 Position angles measured for the equinox of date are referred to equinox J2000 by
@@ -150,6 +151,16 @@ def split_epoch(text, day_unit=False):
         raise ValueError(f"epoch '{s}' read as a year is outside {PLAUSIBLE_YEARS[0]:.0f}-"
                          f"{PLAUSIBLE_YEARS[1]:.0f}; if it is a day count give it a prefix "
                          "(JD2427574.5 or MJD27574.0), otherwise correct the year")
+    if scale in ("jd", "mjd"):
+        # Day counts pass the same window as years (J2000.0 = JD 2451545.0 TT; MJD = JD -
+        # 2400000.5; Seidelmann, Explanatory Supplement to the Astronomical Almanac, 1992).
+        jd = value + (2400000.5 if scale == "mjd" else 0.0)
+        year = 2000.0 + (jd - 2451545.0) / 365.25
+        if not PLAUSIBLE_YEARS[0] <= year <= PLAUSIBLE_YEARS[1]:
+            raise ValueError(f"epoch '{s}' read as {scale.upper()} {value:.10g} is the year "
+                             f"{year:.6g}, outside {PLAUSIBLE_YEARS[0]:.0f}-"
+                             f"{PLAUSIBLE_YEARS[1]:.0f}; correct the day count (JD2427574.5 "
+                             "or MJD27574.0)")
     return value, scale
 
 

@@ -28,7 +28,7 @@ def read_bounded_bytes(path, limit, what="file"):
     try:
         info = os.stat(path)
     except OSError as exc:
-        raise InputError(f"{path}: cannot read the {what} ({exc.strerror})") from None
+        raise InputError(f"{path}: cannot read the file ({exc.strerror})") from None
     if not stat.S_ISREG(info.st_mode):
         kind = "a folder" if stat.S_ISDIR(info.st_mode) else "not a regular file"
         raise InputError(f"{path}: the {what} is {kind} (a device, pipe or folder cannot "
@@ -41,7 +41,7 @@ def read_bounded_bytes(path, limit, what="file"):
         with open(path, "rb") as fh:
             data = fh.read(limit + 1)
     except OSError as exc:
-        raise InputError(f"{path}: cannot read the {what} ({exc.strerror})") from None
+        raise InputError(f"{path}: cannot read the file ({exc.strerror})") from None
     if len(data) > limit:
         raise InputError(too_big)
     return data
