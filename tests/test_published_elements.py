@@ -123,3 +123,17 @@ def test_equinox_of_date_against_the_classic_rate(tmp_path, capsys):
     assert from_file["ephemeris"][0]["rho_arcsec"] == j2000["ephemeris"][0]["rho_arcsec"]
     assert main(base + ["--equinox", "date"]) == 2
     assert "needs the pair's J2000 coordinates" in capsys.readouterr().err
+
+
+def test_mass_takes_the_parallax_of_the_elements_file(tmp_path, capsys):
+    toml = tmp_path / "p.toml"
+    toml.write_text("P = {value = 41.623, error = 0.05}\nT = 1934.008\ne = 0.2763\n"
+                    "a = {value = 0.907, error = 0.005}\ni = 59.025\nOmega = 23.717\n"
+                    "omega = 219.907\nparallax = {value = 55.9, error = 0.8}\n")
+    assert main(["mass", "--elements-file", str(toml), "--json", "-"]) == 0
+    out = capsys.readouterr().out
+    doc = json.loads(out[out.index("{"):])
+    # M = (a / parallax)^3 / P^2 = (0.907 / 0.0559)^3 / 41.623^2 = 2.465 M_sun (Kepler's
+    # third law in solar units; common practice, no source).
+    assert doc["mass"]["total"]["value"] == pytest.approx(
+        (0.907 / 0.0559) ** 3 / 41.623 ** 2, rel=0.01)

@@ -126,25 +126,29 @@ def compare_documents(old_doc, new_doc, start_yr, stop_yr, n_draws=1000, seed=1,
     return out
 
 
-def _text(c):
+def _text(c, old_errors, new_errors):
+    from ..formatting import number, value_error
     lines = [f"compare {c['old']} (old) with {c['new']} (new)",
-             f"{'element':>8s} {'old':>12s} {'new':>12s} {'new-old':>12s} {'in sigma':>9s}"]
+             f"{'element':>8s} {'old':>22s} {'new':>22s} {'new-old':>11s} {'in sigma':>9s}"]
     for key, e in c["elements"].items():
         ns = "" if e["difference_sigma"] is None else f"{e['difference_sigma']:9.2f}"
-        lines.append(f"{key:>8s} {e['old']:12.5f} {e['new']:12.5f} {e['difference']:12.5f} {ns}")
+        lines.append(f"{key:>8s} {value_error(e['old'], old_errors.get(key)):>22s} "
+                     f"{value_error(e['new'], new_errors.get(key)):>22s} "
+                     f"{number(e['difference'], 4):>11s} {ns}")
     lines.append("(Omega, omega after the common 180 deg shift; T in Julian years, the new T "
                  "at the passage nearest the old one)")
     w = c["window_yr"]
     sig = ("" if c["max_separation_sigma"] is None else
            f", at most {c['max_separation_sigma']:.2f} x the new orbit's 1-sigma band")
     lines.append(f"largest distance between the predictions over J{w[0]:.2f}-J{w[1]:.2f}: "
-                 f"{c['max_separation_arcsec']:.4f}\" (at J{c['epoch_of_max_yr']:.2f}){sig}")
+                 f"{number(c['max_separation_arcsec'], 3)}\" (at J{c['epoch_of_max_yr']:.2f})"
+                 f"{sig}")
     lines.append(c["sigma_source"])
     if "mass_difference_msun" in c:
         m = c["mass_difference_msun"]
         ns = "" if m["difference_sigma"] is None else f" ({m['difference_sigma']:.2f} sigma)"
-        lines.append(f"total mass: {m['old']:.4g} -> {m['new']:.4g} M_sun, difference "
-                     f"{m['difference']:+.4g}{ns}")
+        lines.append(f"total mass: {number(m['old'])} -> {number(m['new'])} M_sun, difference "
+                     f"{number(m['difference'])}{ns}")
     return "\n".join(lines)
 
 
@@ -198,5 +202,6 @@ def run(args):
     if args.figure:
         _figure(args.figure, old_doc, new_doc, comp)
     if args.json != "-":
-        print(_text(comp))
+        from ..result import element_errors
+        print(_text(comp, element_errors(old_doc), element_errors(new_doc)))
     return 0

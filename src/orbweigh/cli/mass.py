@@ -33,13 +33,16 @@ def run(args):
     from ..masses import format_mass_blocks, masses_for_document
     from .common import load_elements_document
 
+    doc = load_elements_document(args, "result")
+    given = doc.get("parallax_input") or {}
+    if args.parallax is None and given.get("error") is not None:
+        args.parallax = [given["value"], given["error"]]   # from the elements file
     if args.parallax is None and args.magnitudes is None:
         raise InputError("the mass needs a distance: give --parallax VALUE ERROR [mas], or "
                          "--magnitudes M1 M2 --band bol|K for a dynamical parallax")
     check_mass_arguments(args)
     if args.draws < 2:
         raise InputError(f"--draws must be at least 2, got {args.draws}")
-    doc = load_elements_document(args, "result")
     blocks = masses_for_document(doc, parallax=args.parallax, mass_ratio=args.mass_ratio,
                                  rv_amplitudes=args.rv_amplitudes, magnitudes=args.magnitudes,
                                  band=args.band, n_draws=args.draws, seed=args.seed,
