@@ -1,6 +1,7 @@
 """Held elements (--fix), the period bound (--period-range) and the analytic Campbell
 covariance, on synthetic logs from tests/synthetic.py (independent of orbweigh's model:
 brentq Kepler solutions and 3-D rotation matrices)."""
+import json
 import math
 
 import mpmath
@@ -137,3 +138,28 @@ def test_short_arc_with_one_quadrant_error(seed):
         assert abs(sol.elements.to_keys()[key] - ARC[key]) < 4 * sol.errors[key], key
     clean = fit_orbit(make_log(ARC, epochs, 0.5, 0.005, seed=seed))
     assert not (clean.status == "flipped").any()
+
+
+# --- an undetermined orbit gives no mass, parallax or plan ------------------------------
+
+def test_undetermined_orbit_prints_no_mass_nor_plan(tmp_path, capsys):
+    # 8 points over 3 yr of a 60-yr pair: P and a come out undetermined (error above
+    # half the value), so fit, mass and plan give reasons instead of numbers.
+    from orbweigh.cli.main import main
+
+    truth = dict(P=60.0, T=2030.0, e=0.3, a=1.0, i=50.0, Omega=60.0, omega=120.0)
+    ms = make_log(truth, np.linspace(2005.0, 2008.0, 8), 1.0, 0.01, seed=4)
+    log = tmp_path / "arc.csv"
+    log.write_text("epoch,theta,rho,sigma_theta,sigma_rho\n" + "".join(
+        f"J{t:.3f},{th:.2f},{r:.4f},1.0,0.01\n"
+        for t, th, r in zip(ms.epoch_yr, ms.theta_deg, ms.rho_arcsec)))
+    result = tmp_path / "r.json"
+    assert main(["fit", str(log), "--magnitudes", "5", "6", "--band", "K",
+                 "--json", str(result)]) == 0
+    out = capsys.readouterr().out
+    assert "no mass and no dynamical parallax: P and a undetermined" in out
+    assert "M_sun" not in out and "mass" not in json.loads(result.read_text())
+    assert main(["mass", str(result), "--parallax", "20", "1"]) == 2
+    assert "What would fix it" in capsys.readouterr().err
+    assert main(["plan", str(result), "--window", "2026", "2030"]) == 2
+    assert "no plan" in capsys.readouterr().err

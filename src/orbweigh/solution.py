@@ -10,7 +10,8 @@ from .model import predict_theta_rho, wrap_degrees
 from .reductions import epoch_unit, from_julian_year, interval_in_scale
 from .result import SCHEMA
 
-__all__ = ["OrbitSolution", "build_solution", "campbell_covariance"]
+__all__ = ["OrbitSolution", "build_solution", "campbell_covariance", "undetermined_elements",
+           "undetermined_advice", "require_determined"]
 
 _PHASE_BINS = 20
 
@@ -257,6 +258,42 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     return solution
 
 
+def undetermined_elements(elements):
+    """Of P and a, those whose error exceeds half the value (elements block of a document).
+
+    An orbit with either undetermined gives no usable mass, parallax or plan."""
+    return [k for k in ("P", "a") if isinstance(elements[k].get("error"), (int, float))
+            and elements[k]["error"] > 0.5 * abs(elements[k]["value"])]
+
+
+def undetermined_advice(doc, what):
+    """None, or why ``what`` (e.g. 'a mass') cannot be given and which data would help."""
+    bad = undetermined_elements(doc["elements"])
+    if not bad:
+        return None
+    el, stats = doc["elements"], doc.get("statistics", {})
+    span = ""
+    if "epoch_first" in stats and "epoch_last" in stats:
+        span = (f" The fitted measurements span {stats['epoch_first']:.1f}-"
+                f"{stats['epoch_last']:.1f}, a small part of the orbit.")
+    values = ", ".join(f"{k} = {el[k]['value']:.3g} +- {el[k]['error']:.2g} {el[k]['unit']}"
+                       for k in bad)
+    return (f"{doc.get('source', 'this orbit')}: no {what}: {' and '.join(bad)} undetermined "
+            f"({values}; error above half the value), and the mass goes as a^3/P^2.{span} "
+            "What would fix it: measurements over a longer arc (the arc's curvature fixes P "
+            "and a), or a period or other element known independently, e.g. from "
+            "spectroscopy, held with --fix.")
+
+
+def require_determined(doc, what):
+    """Raise FitError with ``undetermined_advice`` when P or a is undetermined."""
+    from .errors import FitError
+
+    advice = undetermined_advice(doc, what)
+    if advice is not None:
+        raise FitError(advice)
+
+
 def _phase_coverage(t, period, t_peri):
     """Fraction of 20 equal bins of orbital phase holding at least one measurement."""
     phase = np.mod((t - t_peri) / period, 1.0)
@@ -288,8 +325,7 @@ def _warnings(sol, data, rows, flipped, outlier, best):
     elif sol.reduced_chi2 < 0.3:
         out.append(f"Reduced chi2 = {sol.reduced_chi2:.2f}: the quoted sigmas look too large; "
                    "uncertainties may be overestimated.")
-    undetermined = [k for k in ("P", "a") if sol.errors.get(k) is not None
-                    and sol.errors[k] > 0.5 * abs(sol.elements.to_keys()[k])]
+    undetermined = undetermined_elements(sol.to_document()["elements"])
     if undetermined:
         out.append(f"{' and '.join(undetermined)} undetermined (error above half the value): "
                    "the data constrain only the motion along the observed arc. Do not use "

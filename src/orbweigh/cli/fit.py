@@ -54,6 +54,7 @@ def add_arguments(parser):
 
 def run(args):
     from ..fitting import FitOptions, fit_orbit
+    from ..solution import undetermined_advice
     from ..summary import format_result
 
     check_mass_arguments(args)
@@ -66,13 +67,18 @@ def run(args):
                          fixed=parse_fixed(args.fix))
     solution = fit_orbit(data, options)
     doc = solution.to_document()
+    advice = None     # why no mass is given, if so
     if args.sample and not args.rv:   # with --rv the joint posterior is sampled instead
         _add_posterior(doc, args)
     if args.rv:
         _add_combined(doc, solution, velocities, args)
     elif args.parallax is not None or args.magnitudes is not None:
-        _add_masses(doc, args)
+        advice = undetermined_advice(doc, "mass and no dynamical parallax")
+        if advice is None:
+            _add_masses(doc, args)
     text = format_result(doc)
+    if advice is not None:
+        text += "\n" + advice
     if "posterior" in doc:
         from ..sampling import format_posterior
         text += "\n" + format_posterior(doc["posterior"])

@@ -31,6 +31,7 @@ def add_arguments(parser):
 def run(args):
     from ..errors import InputError
     from ..masses import format_mass_blocks, masses_for_document
+    from ..solution import require_determined
     from .common import load_elements_document
 
     doc = load_elements_document(args, "result")
@@ -43,6 +44,7 @@ def run(args):
     check_mass_arguments(args)
     if args.draws < 2:
         raise InputError(f"--draws must be at least 2, got {args.draws}")
+    require_determined(doc, "mass and no dynamical parallax")
     blocks = masses_for_document(doc, parallax=args.parallax, mass_ratio=args.mass_ratio,
                                  rv_amplitudes=args.rv_amplitudes, magnitudes=args.magnitudes,
                                  band=args.band, n_draws=args.draws, seed=args.seed,
@@ -60,3 +62,4 @@ def run(args):
             from ..files import write_atomic
             write_atomic(args.json, payload)
     return 0
+

@@ -101,10 +101,12 @@ def run(args):
     from ..planning import plan_observations
     from ..reductions import epoch_unit, interval_in_scale
     from ..result import epoch_scale_of
+    from ..solution import require_determined
     from .common import load_elements_document
     from .ephemeris import epochs_from_options, parse_epoch_option
 
     doc = load_elements_document(args, "result")
+    require_determined(doc, "plan")
     source = doc["_path"]
     day_unit = epoch_unit(epoch_scale_of(doc)) == "d"
     _, scale = parse_epoch_option(args.window[0], "--window START", day_unit)
