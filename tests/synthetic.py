@@ -11,6 +11,13 @@ The orbit-plane position (r cos nu, r sin nu, 0), x toward periastron, is turned
 R_z(Omega) R_x(i) R_z(omega): omega within the orbit plane from the node, i about the
 line of nodes, and Omega about the line of sight from North toward East. Then
 x = North, y = East, theta = atan2(y, x), rho = hypot(x, y).
+
+Radial velocities (``radial_velocities_3d``) use the spectroscopists' frame instead: the
+same rotation read in (North, East, z) with z pointing AWAY from the observer, so the
+secondary crosses the sky plane at Omega moving away (the ascending node; Heintz, Double
+Stars, 1978, ch. 4, memory). The relative velocity along z comes from a central
+difference of z(t), never from a velocity formula; radial velocities are positive for a
+receding star.
 """
 import math
 
@@ -19,7 +26,8 @@ from scipy.optimize import brentq
 
 from orbweigh.measurements import MeasurementSet
 
-__all__ = ["KEYS", "solve_kepler", "rotation", "sky_positions", "make_log"]
+__all__ = ["KEYS", "solve_kepler", "rotation", "sky_positions", "make_log",
+           "radial_velocities_3d"]
 
 #: Element keys (units: P yr, T decimal Julian yr, a arcsec, angles deg).
 KEYS = ("P", "T", "e", "a", "i", "Omega", "omega")
@@ -52,6 +60,19 @@ def rotation(elements):
     return _rz(node) @ _rx(i) @ _rz(omega)
 
 
+def _positions_3d(elements, epochs):
+    """Noise-free (x North, y East, z) [arcsec] of the secondary relative to the primary."""
+    P, T, e, a = (float(elements[k]) for k in ("P", "T", "e", "a"))
+    t = np.atleast_1d(np.asarray(epochs, float))
+    # one turn of M centred on 0 keeps brentq's bracket small and E in the same turn
+    M = [math.remainder(2.0 * math.pi * (tk - T) / P, 2.0 * math.pi) for tk in t]
+    E = np.array([solve_kepler(m, e) for m in M])
+    r = a * (1.0 - e * np.cos(E))
+    nu = 2.0 * np.arctan2(math.sqrt(1.0 + e) * np.sin(E / 2), math.sqrt(1.0 - e) * np.cos(E / 2))
+    plane = np.vstack([r * np.cos(nu), r * np.sin(nu), np.zeros_like(r)])
+    return rotation(elements) @ plane
+
+
 def sky_positions(elements, epochs):
     """Noise-free theta [deg, 0..360), rho [arcsec], x (North), y (East) [arcsec].
 
@@ -62,16 +83,27 @@ def sky_positions(elements, epochs):
     epochs : array_like
         Decimal Julian years.
     """
-    P, T, e, a = (float(elements[k]) for k in ("P", "T", "e", "a"))
-    t = np.atleast_1d(np.asarray(epochs, float))
-    # one turn of M centred on 0 keeps brentq's bracket small and E in the same turn
-    M = [math.remainder(2.0 * math.pi * (tk - T) / P, 2.0 * math.pi) for tk in t]
-    E = np.array([solve_kepler(m, e) for m in M])
-    r = a * (1.0 - e * np.cos(E))
-    nu = 2.0 * np.arctan2(math.sqrt(1.0 + e) * np.sin(E / 2), math.sqrt(1.0 - e) * np.cos(E / 2))
-    plane = np.vstack([r * np.cos(nu), r * np.sin(nu), np.zeros_like(r)])
-    x, y, _ = rotation(elements) @ plane
+    x, y, _ = _positions_3d(elements, epochs)
     return np.mod(np.degrees(np.arctan2(y, x)), 360.0), np.hypot(x, y), x, y
+
+
+#: 1 au per Julian year in km/s (149597870.7 km / 31557600 s; IAU 2012 Resolution B2 au).
+_KMS_PER_AU_YR = 149597870.7 / 31557600.0
+
+
+def radial_velocities_3d(elements, epochs, parallax_mas, mass_ratio, gamma_kms):
+    """V1, V2 [km/s], positive receding, from the numerical derivative of z (away).
+
+    The secondary's motion relative to the primary along z, dz/dt [arcsec/yr] by a
+    central difference (step 1e-5 yr), becomes km/s at the distance 1 / parallax; the
+    primary moves by -q/(1+q) of it, the secondary by 1/(1+q), q = M2/M1 = ``mass_ratio``.
+    """
+    t = np.atleast_1d(np.asarray(epochs, float))
+    h = 1e-5
+    dz = (_positions_3d(elements, t + h)[2] - _positions_3d(elements, t - h)[2]) / (2 * h)
+    v_rel = dz / (parallax_mas * 1e-3) * _KMS_PER_AU_YR
+    q = float(mass_ratio)
+    return gamma_kms - q / (1 + q) * v_rel, gamma_kms + v_rel / (1 + q)
 
 
 def make_log(elements, epochs, sigma_theta_deg, sigma_rho_arcsec, seed, flips=(),

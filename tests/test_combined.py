@@ -15,6 +15,7 @@ from orbweigh.masses import THIRD_LAW_FACTOR
 from orbweigh.measurements import read_measurements
 from orbweigh.spectroscopic import (mass_function_msun, radial_velocities,
                                     read_velocities, rv_semi_amplitude_kms)
+from synthetic import KEYS, radial_velocities_3d
 
 SAMPLE = Path(__file__).resolve().parents[1] / "sample_measurements"
 
@@ -41,13 +42,17 @@ def _write_positions(path, rng):
     path.write_text("epoch,theta,rho,sigma_theta,sigma_rho,technique\n" + "\n".join(rows) + "\n")
 
 
+def _true_dict(node_deg, omega_deg):
+    return dict(zip(KEYS, (*TRUE.as_tuple()[:5], node_deg, omega_deg)))
+
+
 def _write_velocities(path, seed, node_deg, omega_deg, components=(1, 2), sigma=SIGMA_RV):
-    """Velocities of the true orbit with the given node choice (Omega does not enter V)."""
+    """Velocities of the true orbit with the given node choice, from the independent
+    generator (z away from the observer, velocities by differentiating z)."""
     assert (node_deg - TRUE.node_deg) % 180 == 0
     rng = np.random.default_rng(seed)
     t = np.sort(rng.uniform(2000.0, 2024.0, 30))
-    v1, v2 = radial_velocities(t, TRUE.period_yr, TRUE.periastron_yr, TRUE.e, omega_deg,
-                               K1, K2, GAMMA)
+    v1, v2 = radial_velocities_3d(_true_dict(node_deg, omega_deg), t, PLX_MAS, Q, GAMMA)
     rows = []
     for k in range(t.size):
         for comp, v, s in ((1, v1[k], sigma[0]), (2, v2[k], sigma[1])):
@@ -55,6 +60,22 @@ def _write_velocities(path, seed, node_deg, omega_deg, components=(1, 2), sigma=
                 rows.append(f"J{t[k]:.5f},{comp},{v + rng.normal(0, s):.3f},{s}")
     path.write_text("epoch,component,rv,sigma_rv\n" + "\n".join(rows) + "\n")
     return path
+
+
+@pytest.mark.parametrize("node, omega", [(300.0, 40.0), (120.0, 220.0), (15.0, 95.0)])
+def test_velocity_convention_against_the_independent_generator(node, omega):
+    # The package's V(t) for the astrometric omega must equal the derivative of z (away
+    # from the observer) of the 3-D orbit with the ascending node at Omega; the other node
+    # choice (omega + 180) gives the velocities with the opposite sign.
+    t = np.linspace(2000.0, 2050.0, 60)
+    true = _true_dict(node, omega)
+    w1, w2 = radial_velocities_3d(true, t, PLX_MAS, Q, GAMMA)
+    v1, v2 = radial_velocities(t, TRUE.period_yr, TRUE.periastron_yr, TRUE.e, omega,
+                               K1, K2, GAMMA)
+    assert np.allclose(v1, w1, rtol=0, atol=1e-5) and np.allclose(v2, w2, rtol=0, atol=1e-5)
+    u1, _ = radial_velocities(t, TRUE.period_yr, TRUE.periastron_yr, TRUE.e, omega + 180.0,
+                              K1, K2, GAMMA)
+    assert np.allclose(u1 - GAMMA, -(w1 - GAMMA), rtol=0, atol=1e-5)
 
 
 @pytest.fixture(scope="module")
