@@ -5,7 +5,7 @@ those into a one-paragraph message and exit status 2 instead of a traceback.
 """
 from __future__ import annotations
 
-__all__ = ["OrbweighError", "LogFormatError", "InputError", "FitError"]
+__all__ = ["OrbweighError", "LogFormatError", "InputError", "FitError", "OutputError"]
 
 
 class OrbweighError(Exception):
@@ -43,3 +43,17 @@ class LogFormatError(OrbweighError, ValueError):
 
 class FitError(OrbweighError, RuntimeError):
     """The data cannot support an orbit solution (too few points, degenerate input)."""
+
+
+class OutputError(OrbweighError, OSError):
+    """An output file cannot be written (refused target, full disk, no permission).
+
+    The message names the target file, never the temporary file written first.
+    """
+
+    def __init__(self, path, reason):
+        self.path, self.reason = str(path), reason
+        super().__init__(f"{self.path}: {reason}")
+
+    def __str__(self):
+        return f"{self.path}: {self.reason}"

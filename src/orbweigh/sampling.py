@@ -504,15 +504,17 @@ def _sampling_meta(sample, posterior):
             "converged": bool(sample.converged), "sigma_scale": float(posterior.sigma_scale)}
 
 
-def write_draws(path, sample, posterior):
+def write_draws(path, sample, posterior, inputs=()):
     """Save the element draws as an ECSV table; returns the number of draws.
 
     Columns P [yr], T [Julian yr], e, a [arcsec], i, Omega, omega [deg] (as
     ``result.read_draws`` reads them); the metadata hold the seed, priors, walkers, steps,
     burn-in, thinning, acceptance, autocorrelation times and the convergence flag.
+    Written as a whole (``files.write_table``); onto one of ``inputs`` is refused.
     """
     from astropy.table import Table
 
+    from .files import write_table
     draws = posterior.elements(sample.draws())
     units = {"P": "yr", "T": "yr", "e": "", "a": "arcsec", "i": "deg", "Omega": "deg",
              "omega": "deg"}
@@ -520,7 +522,7 @@ def write_draws(path, sample, posterior):
                   units=[units[k] or None for k in ELEMENT_KEYS],
                   meta={"description": "posterior draws of the Campbell elements; T is a "
                                        "decimal Julian year", **_sampling_meta(sample, posterior)})
-    table.write(path, format="ascii.ecsv", overwrite=True)
+    write_table(path, table, inputs=inputs)
     return len(draws)
 
 

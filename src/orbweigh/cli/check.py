@@ -13,6 +13,7 @@ import sys
 
 import numpy as np
 
+from ..files import write_atomic
 from .common import add_log_arguments, load_log
 
 __all__ = ["add_arguments", "run", "check_report", "format_report"]
@@ -143,8 +144,7 @@ def run(args):
     else:
         print(format_report(report))
         if args.json:
-            with open(args.json, "w") as handle:
-                json.dump(report, handle, indent=2)
+            write_atomic(args.json, json.dumps(report, indent=2) + "\n", [args.log])
     if report["accounting"]["used"] == 0:
         print(f"orbweigh check: error: {ms.source}: no usable rows ({len(ms.rejected)} "
               f"rejected, {int(ms.excluded.sum())} excluded by flag); fix the rows listed "

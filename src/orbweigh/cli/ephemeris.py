@@ -221,19 +221,17 @@ def _format_table(rows, header):
     return "\n".join(lines)
 
 
-def _write_ecsv(path, rows, meta, scale):
+def _write_ecsv(path, rows, meta, scale, inputs=()):
     from astropy.table import Table
 
+    from ..files import write_table
     from ..reductions import epoch_unit
     table = Table(rows=[list(r.values()) for r in rows], names=list(rows[0]), meta=meta)
     table["epoch"].unit = epoch_unit(scale)
     table["epoch"].description = f"epoch ({scale} scale, as given)"
     for name in table.colnames[1:]:
         table[name].unit = _UNITS[name]
-    import io
-    buffer = io.StringIO()
-    table.write(buffer, format="ascii.ecsv")
-    write_atomic(path, buffer.getvalue())
+    write_table(path, table, inputs=inputs)
 
 
 def run(args):
@@ -271,9 +269,9 @@ def run(args):
         if args.json == "-":
             print(text)
         else:
-            write_atomic(args.json, text + "\n")
+            write_atomic(args.json, text + "\n", [source, args.elements_file])
     if args.ecsv:
-        _write_ecsv(args.ecsv, rows, meta, scale)
+        _write_ecsv(args.ecsv, rows, meta, scale, [source, args.elements_file])
     if args.json != "-":
         header = [f"ephemeris of {source}; epochs in the {scale} scale, as given",
                   f"theta columns: {equinox}",

@@ -6,7 +6,7 @@ import os
 import sys
 from pathlib import Path
 
-from ..files import write_atomic
+from ..files import check_target, write_atomic
 from .common import add_log_arguments, add_mass_arguments, check_mass_arguments, load_log
 
 __all__ = ["add_arguments", "run", "parse_fixed"]
@@ -59,6 +59,7 @@ def run(args):
 
     check_mass_arguments(args)
     _check_sampling_arguments(args)
+    _check_targets(args)
     velocities = _read_velocities(args)  # before the fit: a bad log fails fast
     data = load_log(args)
     options = FitOptions(period_bounds=tuple(args.period_range) if args.period_range else None,
@@ -96,7 +97,8 @@ def run(args):
         saved = Path(args.out) / "result.json" if args.out else args.json
         if saved and saved != "-":   # saved draws are found relative to the document
             doc = {**doc, "_path": str(saved)}
-        written = write_report(doc, args.report)
+        kept = [*_inputs(args), Path(args.out) / "result.json" if args.out else args.json]
+        written = write_report(doc, args.report, keep=[k for k in kept if k != "-"])
         print(f"report: {Path(args.report) / 'report.html'} ({len(written)} files)",
               file=sys.stderr if args.json == "-" else sys.stdout)
     return 0
@@ -171,11 +173,26 @@ def _write_outputs(doc, args):
     if args.json == "-":
         sys.stdout.write(_payload(doc, Path(args.out) / "result.json" if args.out else None))
     elif args.json:
-        write_atomic(Path(args.json), _payload(doc, Path(args.json)))
+        write_atomic(Path(args.json), _payload(doc, Path(args.json)), _inputs(args))
     if args.out:
         out = Path(args.out)
-        out.mkdir(parents=True, exist_ok=True)
-        write_atomic(out / "result.json", _payload(doc, out / "result.json"))
+        write_atomic(out / "result.json", _payload(doc, out / "result.json"), _inputs(args))
+
+
+def _check_targets(args):
+    """Refuse, before the fit, outputs that would land on an input or a folder in use."""
+    saved = [Path(args.out) / "result.json"] if args.out else []
+    saved += [Path(args.json)] if args.json and args.json != "-" else []
+    for path in saved:
+        check_target(path, _inputs(args))
+    if args.report:
+        from ..report.writer import check_report_folder
+        check_report_folder(args.report, [*_inputs(args), *saved])
+
+
+def _inputs(args):
+    """The files this run reads: no output may be written onto them."""
+    return [args.log, getattr(args, "rv", None)]
 
 
 def _payload(doc, where):
@@ -246,7 +263,6 @@ def _add_posterior(doc, args):
                                             seed=args.seed, progress=not args.quiet)
     except ValueError as exc:
         raise FitError(f"{doc['source']}: cannot sample the posterior: {exc}") from None
-    draws.parent.mkdir(parents=True, exist_ok=True)
-    write_draws(draws, sample, posterior)
+    write_draws(draws, sample, posterior, _inputs(args))
     attach_posterior(doc, posterior_block(doc, sample, posterior, draws.name))
     doc["_path"] = str(where)

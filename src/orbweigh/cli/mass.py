@@ -12,6 +12,7 @@ import sys
 
 __all__ = ["add_arguments", "run"]
 
+from ..files import write_atomic
 from .common import add_mass_arguments, check_mass_arguments
 
 
@@ -59,7 +60,6 @@ def run(args):
         if args.json == "-":
             sys.stdout.write(payload)
         else:
-            from ..files import write_atomic
             write_atomic(args.json, payload)
     return 0
 

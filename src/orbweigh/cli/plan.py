@@ -11,6 +11,8 @@ from dataclasses import asdict
 
 import numpy as np
 
+from ..files import write_atomic
+
 __all__ = ["add_arguments", "run", "plan_to_dict"]
 
 
@@ -97,7 +99,6 @@ def _text(plan, source, scale, top):
 
 
 def run(args):
-    from ..files import write_atomic
     from ..planning import plan_observations
     from ..reductions import epoch_unit, interval_in_scale
     from ..result import epoch_scale_of
@@ -120,7 +121,7 @@ def run(args):
         if args.json == "-":
             print(text)
         else:
-            write_atomic(args.json, text + "\n")
+            write_atomic(args.json, text + "\n", [source, args.elements_file])
     if args.json == "-":    # the text (warnings included) is not printed: keep them
         for w in plan.warnings:
             print(f"orbweigh plan: warning: {w}", file=sys.stderr)

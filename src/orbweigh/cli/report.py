@@ -11,7 +11,8 @@ def add_arguments(parser):
                         help="result document written by 'orbweigh fit --json'")
     parser.add_argument("--out", required=True, metavar="DIR",
                         help="directory for report.html, elements.tex, residuals.ecsv and the "
-                             "figures (created when missing; files of the same name are replaced)")
+                             "figures, written as a whole: a new folder, or one holding only an "
+                             "earlier report, which is replaced")
     parser.add_argument("--formats", default="png,svg,pdf", metavar="LIST",
                         help="comma-separated figure formats among png, svg, pdf "
                              "(default: %(default)s); the HTML embeds its figures regardless")

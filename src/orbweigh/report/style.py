@@ -7,7 +7,10 @@ to stay legible when a figure is printed at that width.
 from __future__ import annotations
 
 import contextlib
+import io
 from pathlib import Path
+
+from ..files import write_atomic
 
 __all__ = ["SINGLE_COLUMN_IN", "DOUBLE_COLUMN_IN", "INK", "ORBIT", "BAND", "NODES",
            "PERIASTRON", "STATUS_STYLE", "technique_styles", "figure_style", "new_figure",
@@ -112,7 +115,9 @@ def save_figure(fig, stem, formats):
     with figure_style():
         for fmt in formats:
             path = stem.with_suffix(f".{fmt}")
-            fig.savefig(path, format=fmt, metadata=_metadata(fmt))
+            buffer = io.BytesIO()
+            fig.savefig(buffer, format=fmt, metadata=_metadata(fmt))
+            write_atomic(path, buffer.getvalue())
             written[path.name] = path
     return written
 

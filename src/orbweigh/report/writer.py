@@ -5,13 +5,14 @@ import io
 from pathlib import Path
 
 from ..errors import InputError
+from ..files import check_folder, replace_folder, write_atomic, write_table
 from . import figures as fg
 from . import style
 from .html import render_html
 from .posterior import mass_draws, posterior_draws
 from .tables import elements_latex, residuals_table
 
-__all__ = ["FIGURE_FORMATS", "write_report"]
+__all__ = ["FIGURE_FORMATS", "write_report", "check_report_folder"]
 
 FIGURE_FORMATS = ("png", "svg", "pdf")
 
@@ -47,6 +48,25 @@ def _figures(doc, seed):
     return figs
 
 
+_TABLES = ("report.html", "elements.tex", "residuals.ecsv")
+
+
+def check_report_folder(out_dir, keep=()):
+    """Refuse, before any work, a report folder ``write_report`` would refuse."""
+    check_folder(out_dir, keep, _owned)
+
+
+def _owned(name):
+    """Whether ``name`` is a file a report writes (a folder holding others is refused)."""
+    stem, _, fmt = name.rpartition(".")
+    return name in _TABLES or (stem in _CAPTIONS and fmt in FIGURE_FORMATS)
+
+
+def _draws_file(doc):
+    name = (doc.get("posterior") or {}).get("draws_file") if isinstance(doc, dict) else None
+    return Path(doc.get("_path", ".")).parent / str(name) if name else None
+
+
 def _png_bytes(fig, written, name):
     if f"{name}.png" in written:
         return written[f"{name}.png"].read_bytes()
@@ -56,7 +76,7 @@ def _png_bytes(fig, written, name):
     return buffer.getvalue()
 
 
-def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None):
+def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None, keep=()):
     """Write the report of a result document into ``out_dir``.
 
     Parameters
@@ -70,6 +90,10 @@ def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None):
     seed : int, optional
         Seed of the figures' random draws (posterior band, subsampling, parallax draws);
         default the document's seed. It is printed in the report.
+    keep : iterable of path, optional
+        Files the run still needs (its inputs, its other outputs): ``out_dir`` is replaced
+        as a whole, so a folder holding one of them is refused. The document and its draws
+        file are always kept.
 
     Returns
     -------
@@ -83,18 +107,18 @@ def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None):
         raise InputError(f"unknown figure format(s) {', '.join(map(repr, bad))}; "
                          f"choose from {', '.join(FIGURE_FORMATS)}")
     out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
     seed = int(doc.get("seed", 0) if seed is None else seed)
-    written, embedded = {}, {}
-    for name, fig in _figures(doc, seed).items():
-        files = style.save_figure(fig, out / name, formats)
-        written.update(files)
-        embedded[name] = (_CAPTIONS[name], _png_bytes(fig, files, name))
-    tex = out / "elements.tex"
-    tex.write_text(elements_latex(doc))
-    ecsv = out / "residuals.ecsv"
-    residuals_table(doc).write(ecsv, format="ascii.ecsv", overwrite=True)
-    html = out / "report.html"
-    html.write_text(render_html(doc, embedded, seed, __version__), encoding="utf-8")
-    written.update({tex.name: tex, ecsv.name: ecsv, html.name: html})
+    figures = _figures(doc, seed)
+    keep = [*keep, doc.get("_path"), _draws_file(doc)]
+    with replace_folder(out, keep, _owned) as build:   # a failure leaves the old folder
+        written, embedded = {}, {}
+        for name, fig in figures.items():
+            files = style.save_figure(fig, build / name, formats)
+            written.update(files)
+            embedded[name] = (_CAPTIONS[name], _png_bytes(fig, files, name))
+        write_atomic(build / "elements.tex", elements_latex(doc))
+        write_table(build / "residuals.ecsv", residuals_table(doc))
+        write_atomic(build / "report.html", render_html(doc, embedded, seed, __version__))
+        written.update({n: build / n for n in _TABLES})
+    written = {n: out / n for n in written}
     return written

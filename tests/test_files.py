@@ -1,0 +1,168 @@
+"""Outputs are whole: one writer (orbweigh.files), full disk, umask, refused targets.
+
+The full-disk tests run the command in a subprocess with RLIMIT_FSIZE (the "file size"
+limit of ``ulimit -f``) and SIGXFSZ ignored, so a write past the limit fails with EFBIG as
+it does on a full disk; the previous output must survive untouched.
+"""
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+from orbweigh.cli.main import main
+from orbweigh.errors import OutputError
+from orbweigh.files import replace_folder, write_atomic
+
+from report_fixtures import write_document
+
+SAMPLE = Path(__file__).parent.parent / "sample_measurements" / "measurements.csv"
+SIRIUS = Path(__file__).parent / "data" / "mass_sirius.json"
+OLD = "previous content\n"
+
+_LIMITED = """
+import resource, signal, sys
+signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
+resource.setrlimit(resource.RLIMIT_FSIZE, ({limit}, {limit}))
+from orbweigh.cli.main import main
+sys.exit(main(sys.argv[1:]))
+"""
+
+
+def _run_limited(argv, cwd, limit=64):
+    env = {**os.environ, "MPLBACKEND": "Agg"}
+    return subprocess.run([sys.executable, "-c", _LIMITED.format(limit=limit), *map(str, argv)],
+                          cwd=cwd, capture_output=True, text=True, env=env, timeout=300)
+
+
+def _assert_refused(proc, target):
+    assert proc.returncode == 2, proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert str(target) in proc.stderr and ".tmp" not in proc.stderr
+    assert "File too large" in proc.stderr
+
+
+@pytest.fixture
+def result(tmp_path):
+    return write_document(tmp_path)
+
+
+@pytest.mark.parametrize("command", [
+    ["fit", SAMPLE, "--json", "{out}"],
+    ["mass", SIRIUS, "--parallax", "379.21", "1.58", "--json", "{out}"],
+    ["check", SAMPLE, "--json", "{out}"],
+    ["ephemeris", "{result}", "--start", "2000", "--stop", "2010", "--json", "{out}"],
+    ["ephemeris", "{result}", "--start", "2000", "--stop", "2010", "--ecsv", "{out}"],
+    ["plan", "{result}", "--window", "2030", "2040", "--json", "{out}"],
+], ids=["fit-json", "mass-json", "check-json", "ephemeris-json", "ephemeris-ecsv",
+        "plan-json"])
+def test_full_disk_keeps_previous_file(tmp_path, result, command):
+    out = tmp_path / "out.file"
+    out.write_text(OLD)
+    argv = [str(a).format(out=out, result=result) for a in command]
+    proc = _run_limited(argv, tmp_path)
+    _assert_refused(proc, out)
+    assert out.read_text() == OLD
+    assert not list(tmp_path.glob(".out.file.*"))    # no temporary file left behind
+
+
+def test_full_disk_keeps_previous_draws(tmp_path):
+    out, draws = tmp_path / "r.json", tmp_path / "r.draws.ecsv"
+    out.write_text(OLD)
+    draws.write_text(OLD)
+    proc = _run_limited(["fit", SAMPLE, "--sample", "--walkers", 14, "--steps", 20, "--quiet",
+                         "--json", out], tmp_path)
+    _assert_refused(proc, draws)
+    assert draws.read_text() == OLD and out.read_text() == OLD
+
+
+def test_full_disk_keeps_previous_report(tmp_path, result):
+    folder = tmp_path / "report"
+    assert main(["report", str(result), "--out", str(folder), "--formats", "png"]) == 0
+    before = {p.name: p.read_bytes() for p in folder.iterdir()}
+    proc = _run_limited(["report", result, "--out", folder, "--formats", "png"], tmp_path,
+                        limit=4096)
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr, proc.stderr
+    assert "File too large" in proc.stderr and ".tmp" not in proc.stderr
+    assert str(folder) in proc.stderr
+    assert {p.name: p.read_bytes() for p in folder.iterdir()} == before
+    assert sorted(p.name for p in tmp_path.iterdir() if p.name.startswith(".")) == []
+
+
+def test_report_replaces_folder_as_a_whole(tmp_path, result):
+    folder = tmp_path / "report"
+    assert main(["report", str(result), "--out", str(folder), "--formats", "png,svg"]) == 0
+    assert (folder / "orbit.svg").exists()
+    assert main(["report", str(result), "--out", str(folder), "--formats", "png"]) == 0
+    assert not (folder / "orbit.svg").exists()       # nothing of the old report is left
+    assert (folder / "orbit.png").exists() and (folder / "report.html").exists()
+
+
+def test_report_refuses_folder_with_other_files(tmp_path, result, capsys):
+    # The result document itself lives in tmp_path: replacing it would destroy the input.
+    assert main(["report", str(result), "--out", str(tmp_path)]) == 2
+    assert "result.json" in capsys.readouterr().err
+    folder = tmp_path / "mine"
+    folder.mkdir()
+    (folder / "notes.txt").write_text("keep me")
+    assert main(["report", str(result), "--out", str(folder)]) == 2
+    assert "notes.txt" in capsys.readouterr().err
+    assert (folder / "notes.txt").read_text() == "keep me"
+
+
+@pytest.mark.parametrize("umask, mode", [(0o022, 0o644), (0o002, 0o664), (0o077, 0o600)])
+def test_files_honour_umask(tmp_path, umask, mode):
+    # A new file gets 0666 & ~umask (POSIX open(2) with mode 0666, common practice).
+    old = os.umask(umask)
+    try:
+        write_atomic(tmp_path / "a.json", "{}")
+        with replace_folder(tmp_path / "folder") as build:
+            write_atomic(build / "b.txt", "b")
+    finally:
+        os.umask(old)
+    assert (tmp_path / "a.json").stat().st_mode & 0o777 == mode
+    assert (tmp_path / "folder" / "b.txt").stat().st_mode & 0o777 == mode
+    assert (tmp_path / "folder").stat().st_mode & 0o777 == mode | (mode & 0o444) >> 2
+
+
+def test_refuses_output_onto_input_log(tmp_path, capsys):
+    log = tmp_path / "x.csv"
+    log.write_bytes(SAMPLE.read_bytes())
+    assert main(["fit", str(log), "--json", str(log)]) == 2
+    assert main(["check", str(log), "--json", str(log)]) == 2
+    err = capsys.readouterr().err
+    assert "input" in err and str(log) in err and "Traceback" not in err
+    assert log.read_bytes() == SAMPLE.read_bytes()
+    # The report folder would be swapped as a whole, taking the result with it: refused
+    # before the fit, nothing written.
+    assert main(["fit", str(log), "--out", str(tmp_path / "d"), "--report",
+                 str(tmp_path / "d")]) == 2
+    assert "result.json" in capsys.readouterr().err and not (tmp_path / "d").exists()
+
+
+def test_refuses_symlink_out_of_folder(tmp_path):
+    outside, folder = tmp_path / "outside.txt", tmp_path / "out"
+    folder.mkdir()
+    outside.write_text(OLD)
+    (folder / "link.json").symlink_to(outside)
+    with pytest.raises(OutputError, match="symbolic link"):
+        write_atomic(folder / "link.json", "new")
+    assert outside.read_text() == OLD
+    (folder / "inner.json").write_text(OLD)
+    (folder / "near.json").symlink_to(folder / "inner.json")
+    write_atomic(folder / "near.json", "new")          # a link inside its folder is followed
+    assert (folder / "inner.json").read_text() == "new" and (folder / "near.json").is_symlink()
+
+
+def test_failed_folder_build_keeps_old(tmp_path):
+    folder = tmp_path / "f"
+    with replace_folder(folder) as build:
+        write_atomic(build / "a.txt", "old")
+    with pytest.raises(RuntimeError):
+        with replace_folder(folder) as build:
+            write_atomic(build / "a.txt", "new")
+            raise RuntimeError("drawing failed")
+    assert (folder / "a.txt").read_text() == "old"
+    assert [p.name for p in tmp_path.iterdir()] == ["f"]
