@@ -4,6 +4,7 @@ from __future__ import annotations
 import base64
 import json
 import re
+from pathlib import Path
 from decimal import Decimal
 from html.parser import HTMLParser
 
@@ -388,3 +389,14 @@ def test_cli_bad_input_exits_2_without_traceback(tmp_path, capsys, args, message
     err = capsys.readouterr().err
     assert message in err and "Traceback" not in err
     assert not (tmp_path / "out" / "report.html").exists()
+
+
+def test_unprecessed_long_log_is_labelled_and_warned():
+    # The sample log spans 1882 onwards (over a century) and is read without coordinates.
+    from orbweigh.fitting import FitOptions, fit_orbit
+    from orbweigh.measurements import read_measurements
+    sample = Path(__file__).parent.parent / "sample_measurements" / "measurements.csv"
+    doc = fit_orbit(read_measurements(sample), FitOptions(seed=1)).to_document()
+    assert doc["precession"]["applied"] is False
+    assert any("not precessed" in w for w in doc["warnings"])
+    assert "equinox of date, not precessed" in tb.residuals_table(doc)["theta_deg"].description

@@ -726,7 +726,7 @@ def _precess(records, target):
     """theta [deg] referred to J2000 for every record, and the meta entry saying so."""
     theta_in = np.array([r["theta"] for r in records], float)
     if target is None:
-        return theta_in.copy(), {"applied": False,
+        return theta_in.copy(), {"applied": False, "equinox": "of date, not precessed",
                                  "reason": "no target coordinates (--target-ra/--target-dec "
                                            "or ECSV meta target_ra_deg/target_dec_deg)"}
     ra, dec, source = target
@@ -736,7 +736,7 @@ def _precess(records, target):
     if (~space).any():
         theta[~space] = precess_theta_to_j2000(theta_in[~space], epoch[~space], ra, dec)
     change = (theta - theta_in + 180.0) % 360.0 - 180.0
-    return theta, {"applied": True, "target_ra_deg": ra, "target_dec_deg": dec,
+    return theta, {"applied": True, "equinox": "J2000", "target_ra_deg": ra, "target_dec_deg": dec,
                    "source": source, "method": "rigorous FK5 precession (astropy), equinox "
                                                "of date -> J2000",
                    "rows_precessed": int((~space).sum()), "rows_space_not_precessed":

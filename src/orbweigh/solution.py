@@ -103,6 +103,7 @@ class OrbitSolution:
                "fit": {"fixed": {k: float(v) for k, v in self.options.fixed.items()},
                        "period_bounds": (None if self.options.period_bounds is None else
                                          [float(p) for p in self.options.period_bounds])},
+               "precession": dict(self.data.meta.get("precession") or {"applied": False}),
                "warnings": list(self.warnings), "notes": list(self.notes),
                "seed": int(self.options.seed), "version": __version__}
         return doc
@@ -305,6 +306,11 @@ def _lines(data, idx, most=12):
     return ", ".join(lines[:most]) + (" ..." if len(lines) > most else "")
 
 
+#: A log longer than this without coordinates gets the precession warning (at 30 yr and
+#: Dec 60 deg the neglected change in theta reaches about 0.3 deg).
+_UNPRECESSED_SPAN_YR = 30.0
+
+
 def _warnings(sol, data, rows, flipped, outlier, best):
     el, stats = sol.elements, sol.statistics
     out = []
@@ -313,6 +319,12 @@ def _warnings(sol, data, rows, flipped, outlier, best):
         out.append(f"The measurements span {span:.1f} yr, {100 * span / el.period_yr:.0f}% of "
                    f"the {el.period_yr:.1f} yr period: P, e, T and a rest on a partial arc "
                    "and may change with new data.")
+    precession = data.meta.get("precession") or {}
+    if not precession.get("applied") and np.ptp(data.epoch_yr) > _UNPRECESSED_SPAN_YR:
+        out.append(f"The log spans {np.ptp(data.epoch_yr):.0f} yr but gives no coordinates of "
+                   "the pair: the position angles stay in the equinox of each date, not "
+                   "precessed, and the error grows with the span and the declination (about "
+                   "0.0056 deg sin(RA) sec(Dec) a year). Give --target-ra and --target-dec.")
     if stats["phase_coverage"] < 0.5:
         out.append(f"Poor phase coverage: measurements fall in "
                    f"{100 * stats['phase_coverage']:.0f}% of the orbit's phase bins.")

@@ -197,7 +197,8 @@ def _residual_section(doc):
     numeric = tuple(j for j, (k, _) in enumerate(tb.RESIDUAL_COLUMNS)
                     if k not in ("technique", "status", "reason", "note"))
     return ("<h2 id='residuals'>Measurements and residuals (O\u2212C)</h2>"
-            "<p>Position angles as used (J2000), before any 180\u00b0 flip; the O\u2212C of "
+            f"<p>Position angles as used ({escape(tb.theta_equinox(doc))}), before any "
+            "180\u00b0 flip; the O\u2212C of "
             "flipped rows is after the correction. Units: degrees and arcsec.</p>"
             f"<div class='scroll'>{_table(header, rows, classes, numeric)}</div>")
 

@@ -14,7 +14,7 @@ from ..result import epoch_scale_of
 __all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "THIELE_INNES_KEYS", "MASS_KEYS",
            "RESIDUAL_COLUMNS", "RESIDUAL_DECIMALS", "decimals_for",
            "format_value_error", "format_interval",
-           "object_name", "elements_rows", "elements_latex", "elements_table_latex",
+           "theta_equinox", "object_name", "elements_rows", "elements_latex", "elements_table_latex",
            "residuals_table"]
 
 #: Name, LaTeX symbol and HTML symbol of each element.
@@ -74,6 +74,18 @@ def _latex_escape(text):
              "_": r"\_", "{": r"\{", "}": r"\}", "~": r"\textasciitilde{}",
              "^": r"\textasciicircum{}"}
     return "".join(table.get(c, c) for c in str(text))
+
+
+def theta_equinox(doc):
+    """How the position angles are referred: 'J2000, precessed from ...' or 'equinox of
+    date, not precessed' (from the document's "precession" record)."""
+    p = doc.get("precession")
+    if not isinstance(p, dict):
+        return "equinox not recorded"
+    if not p.get("applied"):
+        return "equinox of date, not precessed (no coordinates of the pair)"
+    where = f"RA {p['target_ra_deg']:.4f} deg, Dec {p['target_dec_deg']:+.4f} deg"
+    return f"J2000, precessed from the coordinates {where} ({p.get('source', 'given')})"
 
 
 def object_name(doc, name=None):
@@ -242,6 +254,7 @@ def residuals_table(doc):
         unit = epoch_unit(scale) if unit == "epoch" else unit
         table[key] = MaskedColumn(data, mask=missing, unit=unit)
     table["epoch"].description = f"epoch as in the log ({scale} scale)"
-    table["theta_deg"].description = "position angle as used (J2000), before any 180 deg flip"
+    table["theta_deg"].description = (f"position angle as used ({theta_equinox(doc)}), "
+                                      "before any 180 deg flip")
     table["d_theta_deg"].description = "O-C in theta, after the flip correction of flipped rows"
     return table
