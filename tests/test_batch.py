@@ -105,6 +105,10 @@ def test_verdicts_on_the_synthetic_catalogue(full_run):
     assert rows["contradicted"]["decided_by"] == "p_value_inflated"
     index = (out / "index.html").read_text()
     assert f"<td>{float(drift['p_decisive']):.2g} (" in index
+    # summary.tex: one row per refitted system, in summary order, the id as its name.
+    tex = (out / "summary.tex").read_text()
+    assert tex.index("contradicted &") < tex.index("drifting &") < tex.index("fresh &")
+    assert "garbled" not in tex and r"\begin{tabular}" in tex
     # Every good system was refitted, recovering the true period within 4 sigma.
     for name in ("consistent", "drifting", "contradicted", "fresh"):
         assert rows[name]["status"] == "done" and rows[name]["fitted"]

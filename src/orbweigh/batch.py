@@ -17,6 +17,7 @@ interrupted batch leaves no half-written file)::
     systems/<key>/report.html   its report, when fitted
     systems/<key>/batch.json    the record: verdict, numbers, comparison, errors, hash
     summary.ecsv, summary.csv   one row per system, most urgent first
+    summary.tex                 the refitted orbits and masses, one LaTeX table
     index.html                  the same, linking each system's report
 
 ``resume`` skips a system whose ``batch.json`` says done with the same input hash:
@@ -443,7 +444,18 @@ def _write_summary(out, records, manifest, options, interrupted=False):
         table.write(buffer, format=fmt)
         write_atomic(out / name, buffer.getvalue())
     write_atomic(out / "index.html", _index_html(table, manifest, options))
+    write_atomic(out / "summary.tex", _summary_latex(out, table))
     return table
+
+
+def _summary_latex(out, table):
+    """The refitted orbits and masses, one LaTeX table in summary order (read back from
+    each system's result.json, so no document is held in memory)."""
+    from .report.tables import elements_table_latex
+    fitted = [row["id"] for row in table if row["fitted"]] if len(table) else []
+    docs = [json.loads((out / "systems" / system_key(i) / "result.json").read_text("utf-8"))
+            for i in fitted]
+    return elements_table_latex(docs, names=fitted)
 
 
 def _index_html(table, manifest, options):
