@@ -8,7 +8,6 @@
 set -euo pipefail
 here="$(cd "$(dirname "$0")/.." && pwd)"
 python="${PYTHON:-python3}"
-[ -x /work/venv/bin/python ] && python="${PYTHON:-/work/venv/bin/python}"
 shot="$(realpath -m "${2:-report_screenshot.png}")"
 work="$(mktemp -d)"
 trap 'rm -rf "$work"' EXIT

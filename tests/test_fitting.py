@@ -216,7 +216,7 @@ def test_flips_switched_off_are_not_corrected():
 # --- a published orbit of a real binary as the check value -------------------------------
 
 # eta Coronae Borealis AB as in Meeus, Astronomical Algorithms, 2nd ed. (1998), ch. 57,
-# Example 57.a (values as printed in the book, read from a transcription): the star's
+# Example 57.a (values as printed in the book): the star's
 # identity is from memory. The book's ephemeris for 1980.0 is theta = 318.4 deg,
 # rho = 0.411" (book rounding). No real measurement log is at hand, so the log is built
 # from the published elements (independent generator, speckle-like noise over

@@ -20,6 +20,7 @@ finite and >= 0 (or absent).
 """
 from __future__ import annotations
 
+import functools
 import json
 from pathlib import Path
 
@@ -219,16 +220,37 @@ MAX_DRAWS_BYTES = 512 * 2 ** 20
 def read_draws(path):
     """Posterior draws as an (n, 7) array in internal units, and the table's metadata.
 
+    The file is parsed once per content: validation and the command that then uses the
+    draws share the reading (keyed by path, size and modification time).
+
     Raises
     ------
     InputError
         When the file cannot be read, is not an ECSV table, lacks one of the seven element
         columns, holds non-numeric or non-finite values, or has no rows.
     """
+    path = Path(path)
+    try:
+        stat = path.stat()
+        key = (str(path.resolve()), stat.st_size, stat.st_mtime_ns)
+    except OSError:
+        key = None  # let the reader give its clear message
+    if key is None:
+        draws, meta = _parse_draws(path)
+    else:
+        draws, meta = _parse_draws_cached(key, path)
+    return draws.copy(), dict(meta)
+
+
+@functools.lru_cache(maxsize=2)
+def _parse_draws_cached(key, path):
+    return _parse_draws(path)
+
+
+def _parse_draws(path):
     from astropy.table import Table
 
     from .tables import read_bounded_bytes
-    path = Path(path)
     data = read_bounded_bytes(path, MAX_DRAWS_BYTES, what="posterior draws file")
     try:
         table = Table.read(data.decode("utf-8").splitlines(), format="ascii.ecsv")

@@ -11,6 +11,7 @@ and the difference of the total masses when both documents give one.
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 
@@ -153,11 +154,9 @@ def _text(c, old_errors, new_errors):
 
 
 def _figure(path, old_doc, new_doc, comp):
-    import io
-
     from ..ephemeris import ephemeris
-    from ..files import write_atomic
-    from ..report.style import BAND, DOUBLE_COLUMN_IN, ORBIT, figure_style, new_figure
+    from ..report.style import (BAND, DOUBLE_COLUMN_IN, ORBIT, figure_style, new_figure,
+                                save_figure)
     from ..result import elements_from_document
     fmt = str(path).rsplit(".", 1)[-1].lower()
     if fmt not in ("png", "pdf", "svg"):
@@ -181,9 +180,7 @@ def _figure(path, old_doc, new_doc, comp):
         sep.plot(t, np.hypot(a.x_arcsec - b.x_arcsec, a.y_arcsec - b.y_arcsec), color=ORBIT)
         sep.set_xlabel("epoch [Julian year]")
         sep.set_ylabel("|new - old| predicted position [arcsec]")
-        buffer = io.BytesIO()
-        fig.savefig(buffer, format=fmt)
-    write_atomic(path, buffer.getvalue())
+    save_figure(fig, Path(path).with_suffix(""), [fmt])
 
 
 def run(args):
