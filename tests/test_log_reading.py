@@ -126,8 +126,8 @@ def test_device_and_fifo_logs_are_refused_at_once(tmp_path, capsys):
 
 
 def test_oversized_log_is_refused(tmp_path, monkeypatch):
-    import orbweigh.measurements as m
-    monkeypatch.setattr(m, "MAX_LOG_BYTES", 100)
+    import orbweigh.tables as t
+    monkeypatch.setattr(t, "MAX_LOG_BYTES", 100)
     with pytest.raises(LogFormatError, match="larger than"):
         read_measurements(_write(tmp_path, "epoch,theta,rho\n" + "2000.0,10,1\n" * 20))
 

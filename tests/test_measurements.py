@@ -6,9 +6,10 @@ import numpy as np
 import pytest
 
 from orbweigh.errors import InputError, LogFormatError
-from orbweigh.measurements import (MeasurementSet, parse_column_mapping, read_measurements,
-                                   read_table, suspicious_rows, technique_class)
+from orbweigh.measurements import (MeasurementSet, read_measurements, suspicious_rows,
+                                   technique_class)
 from orbweigh.reductions import approx_theta_correction_deg, parse_epoch
+from orbweigh.tables import parse_column_mapping, read_table
 
 DATA = Path(__file__).parent / "data"
 J2000_JD = 2451545.0  # IAU 1976 definition of J2000.0 (memory)

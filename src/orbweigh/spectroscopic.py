@@ -19,10 +19,10 @@ Convention (stated once, used everywhere in orbweigh):
 Units are in the names: K in km/s, periods in days (spectroscopic formulas, the trade's
 custom) or Julian years (orbit formulas). Constants come from astropy, not typed in.
 
-Velocity logs (``read_velocities``) follow the rules of measurement logs (see
-``measurements``): CSV, whitespace-separated or ECSV; columns ``epoch, component, rv,
-sigma_rv`` required, ``flag, note`` optional; ``columns`` maps your own headers; every data
-line ends up accepted or rejected with its line, column and reason.
+Velocity logs (``read_velocities``) are read like measurement logs, by ``tables.read_table``:
+CSV, tab- or whitespace-separated or ECSV; columns ``epoch, component, rv, sigma_rv``
+required, ``flag, note`` optional; ``columns`` maps your own headers; every data line ends
+up accepted or rejected with its line, column and reason.
 """
 from __future__ import annotations
 
@@ -32,9 +32,8 @@ import numpy as np
 
 from .errors import LogFormatError
 from .kepler import eccentric_anomaly, mean_anomaly, true_anomaly
-from .measurements import (_KEEP_FLAGS, MISSING_MARKERS, _RowError, collect_rows,
-                           epochs_in_days, read_table)
 from .reductions import julian_years_of, split_epoch
+from .tables import KEEP_FLAGS, MISSING_MARKERS, RowError, collect_rows, epochs_in_days, read_table
 
 __all__ = [
     "VelocitySet",
@@ -209,7 +208,7 @@ class VelocitySet:
         True where the ``flag`` column excludes the row from fitting.
     flag, note : ndarray of str
         The log's flag and note columns as written.
-    rejected : list of RowProblem
+    rejected : list of tables.RowProblem
         Lines that were read but could not be used, with the reason.
     n_lines : int
         Number of data lines in the file (accepted + rejected).
@@ -266,21 +265,21 @@ def _velocity_factors(table):
 
 
 def _velocity_row(cells, header, factors, day_unit):
-    """A validated record of one velocity row; _RowError on the first bad cell."""
+    """A validated record of one velocity row; RowError on the first bad cell."""
     col = lambda name: header.get(name, name)  # noqa: E731 - column name as the user wrote it
     text = cells["epoch"]
     if text.lower() in MISSING_MARKERS:
-        raise _RowError(col("epoch"), "the epoch is missing; every row needs one")
+        raise RowError(col("epoch"), "the epoch is missing; every row needs one")
     number = text
     if text[:3].upper() in _JD_PREFIXES:
         number = "JD" + text[3:]
     try:
         epoch_value, scale = split_epoch(number, day_unit)
     except ValueError as exc:
-        raise _RowError(col("epoch"), str(exc)) from None
+        raise RowError(col("epoch"), str(exc)) from None
     component = cells["component"].strip()
     if component not in ("1", "2"):
-        raise _RowError(col("component"), f"'{component}' is not a component; expected 1 "
+        raise RowError(col("component"), f"'{component}' is not a component; expected 1 "
                         "(primary) or 2 (secondary)")
     values = {}
     for name, what in (("rv", "a radial velocity in km/s (positive = receding)"),
@@ -292,12 +291,12 @@ def _velocity_row(cells, header, factors, day_unit):
         except ValueError:
             missing = cell.lower() in MISSING_MARKERS
             reason = "the value is missing" if missing else f"'{cell}' is not a number"
-            raise _RowError(col(name), f"{reason}; expected {what}") from None
+            raise RowError(col(name), f"{reason}; expected {what}") from None
         if not np.isfinite(value):
-            raise _RowError(col(name), f"'{cell}' is not finite; expected {what}")
+            raise RowError(col(name), f"'{cell}' is not finite; expected {what}")
         values[name] = value
     if values["sigma_rv"] <= 0.0:
-        raise _RowError(col("sigma_rv"), f"'{cells['sigma_rv']}' is not > 0; expected a "
+        raise RowError(col("sigma_rv"), f"'{cells['sigma_rv']}' is not > 0; expected a "
                         "1-sigma uncertainty > 0 in km/s (to leave the row out use the flag "
                         "column)")
     return {"epoch_text": text, "epoch_value": epoch_value, "scale": scale,
@@ -359,5 +358,5 @@ def _velocity_set(table, records, problems):
         epoch_yr=np.asarray(julian_years_of(col("epoch_value"), scales), float),
         epoch_text=col("epoch_text", str), epoch_scale=scale, component=col("component", int),
         rv_kms=col("rv"), sigma_rv_kms=col("sigma_rv"),
-        excluded=np.array([f.lower() not in _KEEP_FLAGS for f in flag], bool), flag=flag,
+        excluded=np.array([f.lower() not in KEEP_FLAGS for f in flag], bool), flag=flag,
         note=col("note", str), rejected=problems, n_lines=table.n_data_lines, meta=meta)

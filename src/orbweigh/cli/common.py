@@ -25,7 +25,8 @@ def add_log_arguments(parser):
 
 def load_log(args):
     """The ``MeasurementSet`` described by the options of ``add_log_arguments``."""
-    from ..measurements import parse_column_mapping, read_measurements
+    from ..measurements import read_measurements
+    from ..tables import parse_column_mapping
 
     columns = parse_column_mapping(args.columns) if args.columns else None
     return read_measurements(args.log, columns=columns, target_ra_deg=args.target_ra,

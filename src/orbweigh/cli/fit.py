@@ -128,8 +128,8 @@ def parse_fixed(items):
 def _read_velocities(args):
     """The velocity log of --rv (None without it), after checking the options around it."""
     from ..errors import InputError
-    from ..measurements import parse_column_mapping
     from ..spectroscopic import read_velocities
+    from ..tables import parse_column_mapping
 
     if not args.rv and (args.rv_columns or args.combine_parallax):
         raise InputError("--rv-columns and --combine-parallax describe a velocity log; give it "

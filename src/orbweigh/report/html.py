@@ -11,9 +11,9 @@ from html import escape
 
 from .. import formatting as fmt
 from ..elements import ELEMENT_KEYS
-from ..measurements import _is_number
 from ..reductions import epoch_unit
 from ..result import epoch_scale_of
+from ..tables import is_number
 from . import tables as tb
 
 __all__ = ["render_html"]
@@ -43,7 +43,7 @@ def _table(header, rows, row_classes=None, numeric=()):
     for k, row in enumerate(rows):
         cls = f' class="{row_classes[k]}"' if row_classes else ""
         cells = "".join(f'<td class="num">{escape(str(c))}</td>'
-                        if j in numeric and _is_number(str(c))
+                        if j in numeric and is_number(str(c))
                         else f"<td>{escape(str(c))}</td>" for j, c in enumerate(row))
         out.append(f"<tr{cls}>{cells}</tr>")
     return "\n".join(out + ["</tbody></table>"])
