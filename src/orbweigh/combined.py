@@ -95,7 +95,7 @@ class JointData:
         d = solution.data
         keep = np.isin(solution.status, ("used", "flipped"))
         theta = np.mod(d.theta_deg + np.where(solution.status == "flipped", 180.0, 0.0), 360.0)
-        w = np.sqrt(d.weight)
+        w = np.sqrt(d.weight) / solution.sigma_factor   # the technique factors of the fit
         rows = np.flatnonzero(velocities.usable)
         return cls(d.epoch_yr[keep], theta[keep], d.rho_arcsec[keep],
                    (d.sigma_theta_deg / w)[keep], (d.sigma_rho_arcsec / w)[keep],

@@ -13,7 +13,10 @@ Steps (each documented where it is done):
    reduced chi2 of the inliers when that exceeds 1) are set aside and refitted without;
 5. every other distinct minimum within ``alternative_delta_chi2`` of the best is kept as
    an alternative, so an ambiguous arc is shown as ambiguous;
-6. uncertainties from the covariance at the optimum, scaled by the reduced chi2 when it
+6. with ``technique_scales``, one sigma factor per technique, re-estimated and refitted
+   (outliers re-judged each round) until every factor changes by less than 1 %
+   (``technique_weights``);
+7. uncertainties from the covariance at the optimum, scaled by the reduced chi2 when it
    exceeds 1.
 """
 from __future__ import annotations
@@ -29,6 +32,7 @@ from .model import normalised_residuals
 from .refine import Constraints, refine_full, refine_nonlinear
 from .search import default_period_range, grid_search, isotropic_weights
 from .solution import OrbitSolution, build_solution
+from .technique_weights import MIN_POINTS, scale_factors, technique_statistics
 
 __all__ = ["FitOptions", "fit_orbit"]
 
@@ -43,6 +47,8 @@ _MAX_FLIP_FRACTION = 0.25   # quadrant errors are occasional; more would redefin
 _SMALL_LOG = 15             # up to this many points every single flip is searched
 _MAX_SUSPECT_COMBINATION = 3    # flips of suspected rows searched together, at most
 _MAX_HYPOTHESES = 24        # flip hypotheses searched at most (each a global search)
+_SCALE_TOLERANCE = 0.01     # technique factors converged when none changes by more
+_MAX_SCALE_ROUNDS = 20      # refits of the technique factors at most
 
 
 @dataclass(frozen=True)
@@ -72,6 +78,10 @@ class FitOptions:
     period_bounds : (float, float) or None
         The period must lie in [lo, hi] yr: the search stays inside and the refinement
         is bounded (a solution on the bound is warned of). The search range defaults to it.
+    technique_scales : bool
+        Estimate one sigma factor per observing technique (its reduced chi2 about one)
+        iteratively with the fit, and fit with the scaled sigmas; a technique with fewer
+        than ``technique_weights.MIN_POINTS`` points keeps the factor 1.
     """
 
     period_range: tuple | None = None
@@ -83,6 +93,7 @@ class FitOptions:
     seed: int = 0
     fixed: dict = field(default_factory=dict)
     period_bounds: tuple | None = None
+    technique_scales: bool = False
 
     def __post_init__(self):
         if self.loss not in ("linear", "soft_l1", "huber"):
@@ -138,6 +149,11 @@ class _Points:
         theta = np.mod(self.theta + np.where(flipped, 180.0, 0.0), 360.0)
         return _Points(self.t[keep], theta[keep], self.rho[keep],
                        self.sigma_theta[keep], self.sigma_rho[keep], self.constraints)
+
+    def scaled(self, factor):
+        """The same points with both sigmas of each multiplied by ``factor``."""
+        return _Points(self.t, self.theta, self.rho, self.sigma_theta * factor,
+                       self.sigma_rho * factor, self.constraints)
 
     def residuals(self, params, flipped=None):
         theta = self.theta if flipped is None else np.mod(self.theta + 180.0 * flipped, 360.0)
@@ -211,9 +227,14 @@ def _fit(data, options):
     if options.flips:
         best, flipped = _correct_flips(points, best, options.loss, flipped)
     best, outlier = _set_aside_outliers(points, best, flipped, options)
+    factor, scales = np.ones(usable.size), None
+    if options.technique_scales:
+        best, outlier, factor, scales = _scale_by_technique(
+            points, data.technique[usable], best, flipped, options)
+        points = points.scaled(factor)
     clean = points.subset(~outlier, flipped)
     final = first
-    if flipped.any() or outlier.any():   # the other minima must be refound on clean data
+    if flipped.any() or outlier.any() or scales:  # minima refound on clean, scaled data
         final = clean.refine_candidates(
             [_near_mean_epoch(best.params, clean.t, clean.constraints)]
             + [r.params for r in first[1:]],
@@ -223,7 +244,8 @@ def _fit(data, options):
         alternatives=_distinct_alternatives(
             final, options, n_dof=2 * clean.t.size - 7 + len(options.fixed)),
         flipped=flipped, outlier=outlier, options=options, period_range=period_range,
-        n_trials=n_trials, fit_seconds=time.perf_counter() - started)
+        n_trials=n_trials, fit_seconds=time.perf_counter() - started,
+        sigma_factor=factor, technique_scales=scales)
 
 
 def _flip_hypotheses(data, usable):
@@ -382,6 +404,51 @@ def _set_aside_outliers(points, best, flipped, options, max_rounds=10):
         outlier = new
         best = points.subset(~outlier, flipped).refine(best.params, options.loss)
     return best, outlier
+
+
+def _scale_by_technique(points, technique, best, flipped, options):
+    """Sigma factor per technique, iterated with the fit until it settles.
+
+    Each round takes the factors that bring every technique's reduced chi2 to one at the
+    current orbit (``technique_weights.scale_factors``), refits with them and judges the
+    outliers again (a point beyond the threshold under the stated sigmas may be within it
+    under the scaled ones, and the reverse). Converged when no factor changes by more than
+    ``_SCALE_TOLERANCE``; at most ``_MAX_SCALE_ROUNDS`` rounds.
+
+    Returns (best, outlier mask, factor of each point, the document block).
+    """
+    n_free = 7 - len(options.fixed)
+    factors, outlier = {}, np.zeros(points.t.size, bool)
+    factor = np.ones(points.t.size)
+    converged, change = False, np.inf
+    for rounds in range(1, _MAX_SCALE_ROUNDS + 1):
+        best, outlier = _set_aside_outliers(points.scaled(factor), best, flipped, options)
+        fitted = ~outlier
+        r_theta, r_rho, d_theta, d_rho = points.scaled(factor).residuals(best.params, flipped)
+        stats = technique_statistics(technique[fitted], r_theta[fitted], r_rho[fitted],
+                                     d_theta[fitted], d_rho[fitted], n_free)
+        new = scale_factors(stats, factors)
+        change = max(abs(new[k] / factors.get(k, 1.0) - 1.0) for k in new)
+        factors = new
+        factor = np.array([factors.get(k, 1.0) for k in technique])
+        best = points.scaled(factor).subset(fitted, flipped).refine(best.params, options.loss)
+        if change < _SCALE_TOLERANCE:
+            converged = True
+            break
+    best, outlier = _set_aside_outliers(points.scaled(factor), best, flipped, options)
+    block = {"applied": True, "rounds": rounds, "converged": converged,
+             "last_change": float(change), "tolerance": _SCALE_TOLERANCE,
+             "min_points": MIN_POINTS,
+             "factors": {k: _factor_entry(factors[k], stats[k]) for k in factors}}
+    return best, outlier, factor, block
+
+
+def _factor_entry(factor, stats):
+    """A technique's factor, its first-order error 1/sqrt(2 dof_k), and its points."""
+    estimated = stats["n_points"] >= MIN_POINTS
+    return {"factor": float(factor),
+            "error": float(factor / np.sqrt(2.0 * stats["dof"])) if estimated else None,
+            "n_points": int(stats["n_points"]), "estimated": bool(estimated)}
 
 
 def _distinct_alternatives(final, options, n_dof):

@@ -11,6 +11,8 @@ change. Keys read here:
 * ``posterior`` (optional): {"draws_file": path relative to the document, ...}; the draws
   file is an ECSV table with columns P, T (Julian yr), e, a, i, Omega, omega.
 * ``warnings`` (optional): a list of strings; ``seed`` (optional): an integer.
+* ``statistics.techniques`` and ``statistics.technique_scales`` (optional): residuals and
+  sigma factors by technique (docs/result-document.md).
 
 ``validate_document`` is the one check of a document at the boundary: every reader
 (``load_result``, batch, published-elements inputs) goes through it, so commands work on
@@ -153,6 +155,7 @@ def validate_document(doc, source, needs=("elements",)):
     for block in ("mass", "parallax", "statistics", "options"):
         if doc.get(block) is not None and not isinstance(doc[block], dict):
             _fail(source, block, "must be an object")
+    _check_techniques(source, doc.get("statistics") or {})
     if doc.get("alternatives") is not None:
         if not isinstance(doc["alternatives"], list):
             _fail(source, "alternatives", "must be a list")
@@ -173,6 +176,51 @@ def validate_document(doc, source, needs=("elements",)):
                 _fail(source, "posterior.draws_file", "must be a file name (a string)")
             read_draws(draws_path(doc))
     return doc
+
+
+def _check_count(source, key, value, low=0):
+    if isinstance(value, bool) or not isinstance(value, int) or value < low:
+        _fail(source, key, f"must be an integer >= {low}, not {value!r:.40}")
+
+
+def _named_objects(source, key, block):
+    if not isinstance(block, dict) or not all(isinstance(v, dict) for v in block.values()):
+        _fail(source, key, "must be an object of one object per technique")
+    return block.items()
+
+
+def _check_techniques(source, stats):
+    """statistics.techniques (per-technique residuals) and statistics.technique_scales."""
+    if stats.get("techniques") is not None:
+        for name, t in _named_objects(source, "statistics.techniques", stats["techniques"]):
+            where = f"statistics.techniques.{name}"
+            _check_count(source, f"{where}.n_points", t.get("n_points"), 1)
+            for key in ("rms_theta_deg", "rms_rho_arcsec", "chi2", "reduced_chi2"):
+                _check_number(source, f"{where}.{key}", t.get(key), 0.0)
+            _check_number(source, f"{where}.dof", t.get("dof"), 0.0, strict="> 0")
+    scales = stats.get("technique_scales")
+    if scales is None:
+        return
+    if not isinstance(scales, dict):
+        _fail(source, "statistics.technique_scales", "must be an object")
+    _check_count(source, "statistics.technique_scales.rounds", scales.get("rounds"), 1)
+    _check_count(source, "statistics.technique_scales.min_points", scales.get("min_points"), 1)
+    if not isinstance(scales.get("converged"), bool):
+        _fail(source, "statistics.technique_scales.converged", "must be true or false")
+    for key in ("last_change", "tolerance"):
+        _check_number(source, f"statistics.technique_scales.{key}", scales.get(key), 0.0)
+    for name, f in _named_objects(source, "statistics.technique_scales.factors",
+                                  scales.get("factors")):
+        where = f"statistics.technique_scales.factors.{name}"
+        _check_number(source, f"{where}.factor", f.get("factor"), 0.0, strict="> 0")
+        _check_count(source, f"{where}.n_points", f.get("n_points"), 1)
+        if not isinstance(f.get("estimated"), bool):
+            _fail(source, f"{where}.estimated", "must be true or false")
+        if f["estimated"]:
+            _check_number(source, f"{where}.error", f.get("error"), 0.0)
+        elif f.get("error") is not None or f["factor"] != 1.0:
+            _fail(source, where, "is not estimated (too few points), so its factor must be 1 "
+                  "and its error null")
 
 
 def draws_path(doc):

@@ -46,6 +46,9 @@ class OrbitSolution:
         Whether the covariance was scaled by the reduced chi2.
     alternatives : list of (CampbellElements, float)
         Other distinct minima and their chi2.
+    sigma_factor : ndarray
+        Per row of ``data``: the technique's sigma factor the fit applied (1 without
+        ``technique_scales`` and for excluded rows).
     warnings : list of str
         Plain-language caveats.
     """
@@ -70,6 +73,7 @@ class OrbitSolution:
     alternatives: list
     statistics: dict
     options: object
+    sigma_factor: np.ndarray | None = None
     warnings: list = field(default_factory=list)
     notes: list = field(default_factory=list)
 
@@ -99,6 +103,7 @@ class OrbitSolution:
                "options": {"period_range_yr": list(map(float, self.statistics["period_range_yr"])),
                            "loss": self.options.loss, "flips": self.options.flips,
                            "outlier_sigma": self.options.outlier_sigma,
+                           "technique_scales": bool(self.options.technique_scales),
                            "alternative_delta_chi2": self.options.alternative_delta_chi2},
                "fit": {"fixed": {k: float(v) for k, v in self.options.fixed.items()},
                        "period_bounds": (None if self.options.period_bounds is None else
@@ -113,13 +118,16 @@ class OrbitSolution:
         scale = d.epoch_scale
         epochs = from_julian_year(d.epoch_yr, scale)
         rows = []
+        scaled = bool(self.options.technique_scales)
         for k in range(len(d)):
+            factor = float(self.sigma_factor[k])
             rows.append({
                 "line": int(d.line[k]), "epoch": float(epochs[k]),
                 "epoch_text": str(d.epoch_text[k]), "epoch_yr": float(d.epoch_yr[k]),
                 "theta_deg": float(d.theta_deg[k]), "rho_arcsec": float(d.rho_arcsec[k]),
-                "sigma_theta_deg": float(d.sigma_theta_deg[k] / np.sqrt(d.weight[k])),
-                "sigma_rho_arcsec": float(d.sigma_rho_arcsec[k] / np.sqrt(d.weight[k])),
+                "sigma_theta_deg": float(factor * d.sigma_theta_deg[k] / np.sqrt(d.weight[k])),
+                "sigma_rho_arcsec": float(factor * d.sigma_rho_arcsec[k] / np.sqrt(d.weight[k])),
+                **({"sigma_factor": factor} if scaled else {}),
                 "technique": str(d.technique[k]),
                 "theta_pred_deg": float(self.theta_pred_deg[k]),
                 "rho_pred_arcsec": float(self.rho_pred_arcsec[k]),
@@ -199,8 +207,14 @@ def campbell_covariance(params, fit_covariance):
 
 
 def build_solution(data, rows, points, best, alternatives, flipped, outlier, options,
-                   period_range, n_trials, fit_seconds):
-    """Assemble an ``OrbitSolution`` from the fit's pieces (see fitting.fit_orbit)."""
+                   period_range, n_trials, fit_seconds, sigma_factor=None,
+                   technique_scales=None):
+    """Assemble an ``OrbitSolution`` from the fit's pieces (see fitting.fit_orbit).
+
+    ``sigma_factor`` is the technique factor of each fitted row (``rows``), and
+    ``technique_scales`` the document block of those factors (None when not estimated).
+    """
+    from .technique_weights import technique_statistics
     params = best.params
     n_fit = int((~outlier).sum())
     dof = max(2 * n_fit - 7 + len(options.fixed), 1)
@@ -227,6 +241,14 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     d_theta = wrap_degrees(theta_obs - theta_pred)
     d_rho = data.rho_arcsec - rho_pred
     fitted = rows[~outlier]
+    factor = np.ones(len(data))
+    if sigma_factor is not None:
+        factor[rows] = sigma_factor
+    as_fitted = factor[fitted] / np.sqrt(data.weight[fitted])   # sigma factor and weight
+    by_technique = technique_statistics(
+        data.technique[fitted], d_theta[fitted] / (as_fitted * data.sigma_theta_deg[fitted]),
+        d_rho[fitted] / (as_fitted * data.sigma_rho_arcsec[fitted]),
+        d_theta[fitted], d_rho[fitted], 7 - len(options.fixed))
     stats = {
         "n_input": int(data.n_lines or len(data)), "n_used": n_fit,
         "n_rejected": len(data.rejected), "n_excluded": int((~data.usable).sum()),
@@ -241,7 +263,10 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
         "phase_coverage": _phase_coverage(data.epoch_yr[fitted], params[0], params[1]),
         "period_range_yr": tuple(float(p) for p in period_range),
         "n_trials": int(n_trials),
+        "techniques": by_technique,
     }
+    if technique_scales is not None:
+        stats["technique_scales"] = technique_scales
     alts = [(CampbellElements(*_campbell_vector(r.params)), r.chi2) for r in alternatives]
     solution = OrbitSolution(
         data=data, params=params, fit_covariance=fit_cov, elements=elements, covariance=cov,
@@ -249,7 +274,7 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
         theta_pred_deg=theta_pred, rho_pred_arcsec=rho_pred, d_theta_deg=d_theta,
         d_rho_arcsec=d_rho, chi2=float(best.chi2), dof=int(dof), reduced_chi2=float(reduced),
         errors_scaled=stats["errors_scaled"], alternatives=alts, statistics=stats,
-        options=options)
+        options=options, sigma_factor=factor)
     solution.warnings.extend(_warnings(solution, data, rows, flipped, outlier, best))
     solution.notes.append("Without radial velocities Omega and omega are known only up to a "
                           "common 180 deg shift; Omega is given in [0, 180) deg.")
@@ -363,6 +388,12 @@ def _warnings(sol, data, rows, flipped, outlier, best):
                    "only their sum (or difference) is.")
     if el.e < 0.05:
         out.append("Nearly circular orbit: omega and T are poorly defined.")
+    kept = [f"{k} ({v['n_points']} points)" for k, v in
+            (stats.get("technique_scales") or {}).get("factors", {}).items() if not v["estimated"]]
+    if kept:
+        from .technique_weights import MIN_POINTS
+        out.append(f"Sigma factor not estimated, kept at 1, for {', '.join(kept)}: a technique "
+                   f"needs at least {MIN_POINTS} fitted points for its own factor.")
     if flipped.any():
         out.append(f"{int(flipped.sum())} measurement(s) corrected for a 180 deg quadrant "
                    f"error (lines {_lines(data, rows[flipped])}).")

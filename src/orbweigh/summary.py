@@ -18,6 +18,34 @@ def _value(entry):
         ("" if entry.get("error") is not None else " (no error)")
 
 
+def _technique_lines(stats):
+    """Per technique: points, rms theta [deg], rms rho [mas], reduced chi2, sigma factor."""
+    techniques = stats.get("techniques")
+    if not techniques:
+        return []
+    scales = stats.get("technique_scales")
+    factors = (scales or {}).get("factors", {})
+    out = ["By technique (fitted points; reduced chi2 with the sigmas as fitted)",
+           f"  {'technique':<16}{'points':>6}{'rms theta [deg]':>17}{'rms rho [mas]':>15}"
+           f"{'reduced chi2':>14}" + ("   sigma factor" if scales else "")]
+    for name, t in techniques.items():
+        row = (f"  {name:<16}{t['n_points']:>6}{fmt.number(t['rms_theta_deg'], 3):>17}"
+               f"{fmt.number(1e3 * t['rms_rho_arcsec'], 3):>15}"
+               f"{fmt.fixed(t['reduced_chi2'], 2):>14}")
+        f = factors.get(name)
+        if f is not None:
+            row += "   " + (fmt.value_error(f["factor"], f["error"]) if f["estimated"] else
+                          f"1 (kept: fewer than {scales['min_points']} points)")
+        out.append(row)
+    if scales:
+        state = "converged" if scales["converged"] else "NOT converged"
+        out.append(f"  sigma factors {state} after {scales['rounds']} rounds, last change "
+                   f"{fmt.percent(scales['last_change'])} (tolerance "
+                   f"{fmt.percent(scales['tolerance'], 0)}); each factor's error is "
+                   "1/sqrt(2 dof) of its technique")
+    return out
+
+
 def format_result(doc):
     """Elements, Thiele-Innes constants, statistics, flagged rows and warnings as text."""
     out = [f"Orbit of {doc.get('source', '?')}"]
@@ -42,6 +70,7 @@ def format_result(doc):
                f"{100 * s['phase_coverage']:.0f}%, periods searched "
                f"{s['period_range_yr'][0]:.3g}-{s['period_range_yr'][1]:.4g} yr "
                f"({s['n_trials']} trials), {s['fit_seconds']:.2f} s")
+    out.extend(_technique_lines(s))
     flagged = [r for r in doc["residuals"] if r["status"] not in ("used",)]
     if flagged:
         out.append("Rows not fitted as given")

@@ -35,6 +35,12 @@ def add_arguments(parser):
                         help="hold an element at VALUE (repeatable; NAME one of P, T, e, a, "
                              "i, Omega, omega; P in yr, T in the log's epoch scale, a in "
                              "arcsec, angles in deg), e.g. --fix e=0 for a circular orbit")
+    parser.add_argument("--technique-scales", action="store_true",
+                        help="estimate one sigma factor per observing technique (each "
+                             "technique's reduced chi2 brought to about 1, iterated with the "
+                             "fit) and fit with the scaled sigmas; a technique with fewer than "
+                             "5 points keeps factor 1. Per-technique rms and reduced chi2 are "
+                             "printed in any case")
     parser.add_argument("--loss", choices=("linear", "soft_l1", "huber"), default="linear",
                         help="loss of the refinement (default linear = plain least squares)")
     parser.add_argument("--no-flips", action="store_true",
@@ -65,7 +71,8 @@ def run(args):
     options = FitOptions(period_bounds=tuple(args.period_range) if args.period_range else None,
                          loss=args.loss, flips=not args.no_flips,
                          outlier_sigma=args.outlier_sigma, seed=args.seed,
-                         fixed=parse_fixed(args.fix))
+                         fixed=parse_fixed(args.fix),
+                         technique_scales=args.technique_scales)
     solution = fit_orbit(data, options)
     doc = solution.to_document()
     advice = None     # why no mass is given, if so
