@@ -267,3 +267,60 @@ def test_suspicious_rules():
     assert found == {(2, "quadrant_flip"), (5, "discordant_same_epoch"), (6, "small_sigma")}
     ms.excluded[1] = True  # a flagged row is not judged, nor used to judge others
     assert (2, "quadrant_flip") not in {(s.line, s.rule) for s in suspicious_rows(ms)}
+
+
+def _pairwise_discordant(ms, window=0.001, k=3.0):
+    """Independent brute force of the same-epoch rule: {line: set of earlier lines it
+    disagrees with}, comparing every pair of usable rows (quadratic; small inputs only)."""
+    out = {}
+    order = np.argsort(ms.epoch_yr, kind="stable")
+    s_th, s_rho = ms.sigma_theta_eff_deg, ms.sigma_rho_eff_arcsec
+    for a, j in enumerate(order):
+        for i in order[:a]:
+            if ms.epoch_yr[j] - ms.epoch_yr[i] > window:
+                continue
+            d_th = abs((ms.theta_deg[i] - ms.theta_deg[j] + 180.0) % 360.0 - 180.0)
+            if (d_th > k * np.hypot(s_th[i], s_th[j])
+                    or abs(ms.rho_arcsec[i] - ms.rho_arcsec[j]) > k * np.hypot(s_rho[i], s_rho[j])):
+                out.setdefault(int(ms.line[j]), set()).add(int(ms.line[i]))
+    return out
+
+
+@pytest.mark.parametrize("seed", [1, 2, 3])
+def test_same_epoch_rule_matches_pairwise_comparison(seed):
+    # Groups of rows at a few epochs (one straddling theta = 0/360) with one sigma per
+    # group: comparing with the earlier rows' extreme edges then finds exactly the rows
+    # the all-pairs comparison finds, and names a row it really disagrees with.
+    rng = np.random.default_rng(seed)
+    epochs, theta, rho, s_th, s_rho = [], [], [], [], []
+    for centre, t0 in ((359.5, 2000.0), (120.0, 2000.0004), (45.0, 2003.0), (200.0, 2010.0)):
+        n, sig = int(rng.integers(5, 40)), float(rng.uniform(0.2, 1.0))
+        epochs += list(t0 + rng.uniform(0.0, 0.0008, n))
+        theta += list(np.mod(centre + rng.normal(0.0, 2.0 * sig, n), 360.0))
+        rho += list(1.0 + rng.normal(0.0, 0.01, n))
+        s_th += [sig] * n
+        s_rho += [0.01] * n
+    ms = MeasurementSet.from_arrays(epochs, theta, rho, s_th, s_rho)
+    expected = _pairwise_discordant(ms)
+    found = [s for s in suspicious_rows(ms) if s.rule == "discordant_same_epoch"]
+    assert {s.line for s in found} == set(expected)
+    assert expected  # the draw does hold discordant rows
+    for s in found:
+        named = int(re.search(r"same epoch as line (\d+)", s.message).group(1))
+        assert named in expected[s.line]
+
+
+def test_same_epoch_rule_names_only_real_disagreements():
+    # Mixed sigmas: whatever row the rule names, the pair is discordant by the rule's
+    # own definition (it may miss a pair hidden behind a wide-sigma edge row, by design).
+    rng = np.random.default_rng(7)
+    n = 200
+    ms = MeasurementSet.from_arrays(2000.0 + rng.uniform(0.0, 0.002, n),
+                                    rng.normal(50.0, 3.0, n), 1.0 + rng.normal(0.0, 0.02, n),
+                                    rng.uniform(0.1, 3.0, n), rng.uniform(0.002, 0.05, n))
+    expected = _pairwise_discordant(ms)
+    found = [s for s in suspicious_rows(ms) if s.rule == "discordant_same_epoch"]
+    assert len(found) > 0.5 * len(expected)
+    for s in found:
+        named = int(re.search(r"same epoch as line (\d+)", s.message).group(1))
+        assert named in expected[s.line]

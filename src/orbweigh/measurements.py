@@ -33,6 +33,7 @@ Rules
 from __future__ import annotations
 
 import re
+from collections import deque
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -475,8 +476,11 @@ def suspicious_rows(ms):
       typical value (``TECHNIQUE_DEFAULTS``; for isotropic techniques sigma_theta is
       compared as rho * sigma_theta); not applied to technique 'unknown'.
     * ``discordant_same_epoch``: a row within ``SAME_EPOCH_YR`` of earlier rows and
-      differing from one of them in theta or rho by more than ``DISCORDANT_SIGMAS``
-      combined effective sigmas (one suspicion a row, naming the first such earlier row).
+      differing in theta or rho by more than ``DISCORDANT_SIGMAS`` combined effective
+      sigmas from one of the earlier rows that bound them: the highest and the lowest
+      3-sigma edges in theta and in rho (one suspicion a row, naming the earliest such
+      row). Comparing with these bounds, not with every earlier row, keeps the cost
+      linear however many rows share an epoch.
 
     Returns
     -------
@@ -492,32 +496,56 @@ def suspicious_rows(ms):
         message = _tight_sigma(ms.technique[use[k]], rho[k], s_th[k], s_rho[k])
         if message and not ms.sigma_defaulted[use[k]]:
             out.append(Suspicion(int(lines[k]), "small_sigma", message))
-    for j, earlier in _discordant(t, th, rho, s_th, s_rho, SAME_EPOCH_YR):
-        i = earlier[0]
+    for j, i, n_earlier in _discordant(t, th, rho, s_th, s_rho, SAME_EPOCH_YR):
         d_th, d_rho = abs(wrap_degrees(th[i] - th[j])), abs(rho[i] - rho[j])
-        more = f" (and {earlier.size - 1} other earlier row(s))" if earlier.size > 1 else ""
+        among = f" (one of {n_earlier} earlier rows at that epoch)" if n_earlier > 1 else ""
         out.append(Suspicion(int(lines[j]), "discordant_same_epoch",
-                             f"same epoch as line {lines[i]}{more} but differs by {d_th:.2f} "
+                             f"same epoch as line {lines[i]}{among} but differs by {d_th:.2f} "
                              f"deg in theta and {d_rho:.4f} arcsec in rho (more than "
                              f"{DISCORDANT_SIGMAS:g} combined sigmas)"))
     return sorted(out, key=lambda s: s.line)
 
 
 def _discordant(t, th, rho, s_th, s_rho, window):
-    """(j, earlier discordant indices) for time-sorted rows within ``window`` of each other.
+    """(j, i, n_earlier) for time-sorted rows j discordant with an earlier row i within
+    ``window`` (rule in ``suspicious_rows``); n_earlier counts the rows of j's window.
 
-    Each row is compared with the earlier rows of its window (found by ``searchsorted``),
-    one vector operation a row: memory stays linear however many rows share an epoch.
+    The candidates i are the earlier rows of the window with the extreme 3-sigma edges,
+    found by ``_window_argmax`` in linear time; theta is unwrapped along time so that the
+    edges of a window straddling 0/360 deg are ordered.
     """
+    n = t.size
     start = np.searchsorted(t, t - window, side="left")
-    for j in range(1, t.size):
-        i = np.arange(start[j], j)
-        if not i.size:
-            continue
-        bad = ((np.abs(wrap_degrees(th[i] - th[j])) > DISCORDANT_SIGMAS * np.hypot(s_th[i], s_th[j]))
-               | (np.abs(rho[i] - rho[j]) > DISCORDANT_SIGMAS * np.hypot(s_rho[i], s_rho[j])))
-        if bad.any():
-            yield j, i[bad]
+    if not np.any(start < np.arange(n)):
+        return []
+    u = np.unwrap(th, period=360.0)
+    wide = DISCORDANT_SIGMAS
+    cand = np.stack([_window_argmax(u - wide * s_th, start),
+                     _window_argmax(-(u + wide * s_th), start),
+                     _window_argmax(rho - wide * s_rho, start),
+                     _window_argmax(-(rho + wide * s_rho), start)], axis=1)
+    j, i = np.arange(n)[:, None], np.maximum(cand, 0)
+    bad = (cand >= 0) & ((np.abs(wrap_degrees(th[i] - th[j])) > wide * np.hypot(s_th[i], s_th[j]))
+                         | (np.abs(rho[i] - rho[j]) > wide * np.hypot(s_rho[i], s_rho[j])))
+    first = np.where(bad, i, n).min(axis=1)
+    return [(k, int(first[k]), int(k - start[k])) for k in np.flatnonzero(first < n)]
+
+
+def _window_argmax(key, start):
+    """Index of the largest ``key`` among rows ``start[j] .. j-1`` for each row j (-1 when
+    none; the earliest on ties). ``start`` never decreases, so a queue of candidates in
+    decreasing key order serves every window, each row entering and leaving it once."""
+    key, start = key.tolist(), start.tolist()
+    best, queue = np.full(len(key), -1), deque()
+    for j, value in enumerate(key):
+        while queue and queue[0] < start[j]:
+            queue.popleft()
+        if queue:
+            best[j] = queue[0]
+        while queue and key[queue[-1]] < value:
+            queue.pop()
+        queue.append(j)
+    return best
 
 
 def _flips(t, th, rho, lines):
