@@ -237,11 +237,13 @@ def test_command_line(catalogue, tmp_path, capsys):
                    "--only-contradicted", "--seed", "7", "--quiet"])
     assert status == 1                   # six broken systems: the batch reports failure
     assert "6 system(s) failed" in capsys.readouterr().err
-    # The command writes each fitted system's report and links it from the index.
+    # The command writes each flagged system's review page and the fit's full report, and
+    # links the review page from the index (it links the report in turn).
     key = system_key("contradicted")
     assert "Apparent orbit" in (out / "systems" / key / "report.html").read_text()
-    assert f'href="systems/{key}/report.html"' in (out / "index.html").read_text()
-    assert Table.read(out / "summary.ecsv")["link"][0] == f"systems/{key}/report.html"
+    assert "href='report.html'" in (out / "systems" / key / "review.html").read_text()
+    assert f'href="systems/{key}/review.html"' in (out / "index.html").read_text()
+    assert Table.read(out / "summary.ecsv")["link"][0] == f"systems/{key}/review.html"
     assert main(["batch", str(tmp_path / "none.csv"), "--out", str(out)]) == 2
     assert "cannot read the manifest" in capsys.readouterr().err
     assert main(["batch", str(catalogue), "--out", str(out), "--workers", "2",

@@ -14,7 +14,9 @@ Outputs in the output folder (each written to a temporary file, then renamed, so
 interrupted batch leaves no half-written file)::
 
     systems/<key>/result.json   the fit (schema orbweigh.result/1), when fitted
-    systems/<key>/report.html   its report, when fitted
+    systems/<key>/review.html   the curator's page (verdict and its numbers, catalogued
+                                against new orbit), for the systems ``pages`` asks for
+    systems/<key>/report.html   the fit's full report, for those of them fitted
     systems/<key>/batch.json    the record: verdict, numbers, comparison, errors, hash
     summary.ecsv, summary.csv   one row per system, most urgent first
     summary.tex                 the refitted orbits and masses, one LaTeX table
@@ -130,13 +132,17 @@ def process_system(entry, options):
         ``error``, ``verdict`` (one of ``revision.VERDICTS``, 'no previous orbit' or
         None), ``revision`` (numbers behind the verdict), ``fitted``, ``fit_note``,
         ``document`` (result document or None), ``comparison``, ``report``
-        ({file name: bytes} or None), ``seconds``.
+        ({file name: bytes} or None), ``seconds``, ``previous`` ({"elements", "errors"}
+        of the catalogued orbit, internal units, or None), ``epoch_scale`` (the log's).
     """
     started = time.perf_counter()
     record = _failed_record(entry, options)
     if entry.problem is None:
         _process(entry, options, record["seed"], record)
-    record["status"] = "failed" if record["error"] else "done"
+        record["status"] = "failed" if record["error"] else "done"
+        if _wants_page(options.pages, record):
+            record["report"] = _pages(record)
+    record["status"] = "failed" if record["error"] else "done"     # a page may have failed
     record["seconds"] = time.perf_counter() - started
     return record
 
@@ -149,7 +155,7 @@ def _process(entry, options, seed, record):
                   target_ra_deg=entry.ra_deg, target_dec_deg=entry.dec_deg)
     if data is None:
         return
-    record["warnings"] = _log_warnings(data)
+    record["warnings"], record["epoch_scale"] = _log_warnings(data), data.epoch_scale
     if options.strict and data.rejected:
         record["error"] = (f"log: {_count(len(data.rejected), 'line')} rejected (--strict): "
                            + _line_list(p.line for p in data.rejected))
@@ -179,16 +185,30 @@ def _process(entry, options, seed, record):
     record["warnings"] += _fit_warnings(doc)
     if check is not None:
         record["comparison"] = _stage(record, "comparison", _compare, entry, doc, data, check)
-    if _wants_page(options.pages, record):
-        record["report"] = _stage(record, "report", _report_files, doc)
 
 
 def _wants_page(pages, record):
-    """Whether a fitted system gets its page under ``--pages`` (see ``BatchOptions``)."""
-    if pages == "none" or record["error"] and record["error"].startswith("report"):
+    """Whether a system gets its pages under ``--pages`` (see ``BatchOptions``)."""
+    if pages == "none":
         return False
     return pages == "all" or bool(record["error"] or record["warnings"]) \
         or record["verdict"] in ("contradicted", "drifting")
+
+
+def _pages(record):
+    """{file name: bytes}: the curator's review page, and the fit's report when fitted."""
+    files = {}
+    if record["document"] is not None:
+        files = _stage(record, "report", _report_files, record["document"]) or {}
+    links = [("report.html", "full fit report")] if "report.html" in files else []
+    if record["document"] is not None:
+        links.append(("result.json", "result document"))
+    links.append(("batch.json", "batch record"))
+    from .report.review import review_page
+    page = _stage(record, "review page", review_page, record, links)
+    if page is not None:
+        files["review.html"] = page.encode()
+    return files
 
 
 def _count(n, noun):
@@ -415,7 +435,8 @@ def _summary_table(records):
     for rank, rec in enumerate(sorted(records, key=lambda r: _urgency(r["summary"])), 1):
         row = dict(rec["summary"], rank=rank)
         rows.append(row)
-        link = next((f for f in ("report.html", "result.json") if f in rec["files"]),
+        link = next((f for f in ("review.html", "report.html", "result.json")
+                     if f in rec["files"]),
                     "batch.json")
         row["link"] = f"systems/{rec['key']}/{link}"
     blank = {float: float("nan"), int: 0, str: "", bool: False}  # a column a record predates
@@ -530,7 +551,9 @@ def _failed_record(entry, options, error=None):
             "manifest_row": dict(entry.fields), "seed": system_seed(options.seed, entry.id),
             "status": "failed", "error": error or entry.problem, "verdict": None, "revision": None,
             "fitted": False, "fit_note": None, "document": None, "comparison": None,
-            "report": None, "warnings": [], "seconds": 0.0}
+            "report": None, "warnings": [], "seconds": 0.0, "epoch_scale": None,
+            "previous": None if entry.previous is None else {
+                "elements": entry.previous.to_keys(), "errors": dict(entry.previous_errors)}}
 
 
 def _chunks(n, workers):

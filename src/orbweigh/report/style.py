@@ -13,7 +13,7 @@ from pathlib import Path
 from ..files import write_atomic
 
 __all__ = ["SINGLE_COLUMN_IN", "DOUBLE_COLUMN_IN", "INK", "ORBIT", "BAND", "NODES",
-           "PERIASTRON", "STATUS_STYLE", "technique_styles", "figure_style", "new_figure",
+           "PERIASTRON", "STATUS_STYLE", "VERDICT_PALETTE", "technique_styles", "figure_style", "new_figure",
            "save_figure", "angular_unit"]
 
 SINGLE_COLUMN_IN = 3.4
@@ -25,6 +25,13 @@ ORBIT = "#22313f"
 BAND = "#7a9cc6"
 NODES = "#8c8c8c"
 PERIASTRON = "#c0392b"
+
+#: Colour of each verdict class of a batch (``report.curation.verdict_class``): Paul Tol's
+#: high-contrast scheme (blue, yellow, red; "Colour Schemes", SRON/EPS/TN/09-002, 2021, from
+#: memory), distinct to colour-blind readers and in grey scale, plus black and grey. Pages
+#: set a shape beside each colour (``curation.VERDICT_MARKS``), never the colour alone.
+VERDICT_PALETTE = {"consistent": "#004488", "drifting": "#DDAA33", "contradicted": "#BB5566",
+                   "failed": "#000000", "other": "#888888"}
 
 # Technique styles are dealt out in this order to the techniques sorted by name, so the
 # same log always gets the same look in every figure.
