@@ -149,7 +149,7 @@ def test_seed_fixes_the_bands(partial_orbit, capsys):
     (["--epochs", "2027.3,,2030"], "item 2 ('')"),
     (["--epochs", "2027.3", "--start", "2027"], "not both"),
     ([], "give either --start and --stop"),
-    (["--epochs", "2030", "--draws", "1"], "--draws must be at least 2"),
+    (["--epochs", "2030", "--draws", "1"], "--draws 1 is outside 2..10,000"),
 ])
 def test_bad_options_exit_2_with_a_message(tmp_path, capsys, argv, message):
     path = _write(tmp_path, _document(MEEUS))

@@ -238,7 +238,7 @@ def test_fit_sample_with_json_path_puts_draws_beside_it(tmp_path):
 @pytest.mark.parametrize("extra, message", [
     (["--json", "-"], "give --out DIR"),
     ([], "give --out DIR"),
-    (["--out", "x", "--walkers", "10"], "at least 14"),
+    (["--out", "x", "--walkers", "10"], "--walkers 10 is outside 14..1,000"),
 ])
 def test_fit_sample_refuses_unusable_options(tmp_path, capsys, extra, message):
     log = tmp_path / "never-read.csv"

@@ -26,7 +26,8 @@ from . import formatting as fmt
 from .errors import InputError
 from .spectroscopic import orbital_parallax_mas
 
-__all__ = ["masses_for_document", "budget_rows", 
+__all__ = ["masses_for_document", "budget_rows", "check_mass_inputs", "MassInputError",
+    "OPTION_NAMES",
     "THIRD_LAW_FACTOR", "KMS_PER_AU_YR", "EKER_RANGE_MSUN", "MANN_RANGE_MKS", "M_BOL_SUN",
     "BANDS", "total_mass_msun", "parallax_for_mass_mas",
     "linear_propagation", "eker_log_luminosity", "eker_mass_from_log_luminosity",
@@ -208,6 +209,145 @@ def _check_band(band):
     return key
 
 
+# ------------------------------------------------------------------ which inputs go together
+#: What the user calls each mass input on the command line (the manifest has its own names).
+OPTION_NAMES = {"parallax": "--parallax", "mass_ratio": "--mass-ratio",
+                "rv_amplitudes": "--rv-amplitudes", "magnitudes": "--magnitudes",
+                "band": "--band", "bolometric_corrections": "--bolometric-corrections",
+                "velocity_log": "--rv"}
+
+
+class MassInputError(InputError):
+    """A mass input out of range, or in a combination where it would be ignored.
+
+    ``key`` is the input at fault (a key of ``OPTION_NAMES``), so that a reader with its
+    own names (the batch manifest) can point at its column.
+    """
+
+    def __init__(self, key, message):
+        super().__init__(message)
+        self.key = key
+
+
+def check_mass_inputs(parallax=None, mass_ratio=None, rv_amplitudes=None, magnitudes=None,
+                      band=None, bolometric_corrections=None, velocity_log=False,
+                      names=OPTION_NAMES):
+    """The one rule of the mass inputs: what each value may be and what goes together.
+
+    Checked before any fitting or sampling (``fit``, ``mass``, the batch manifest), so no
+    input is silently ignored and no slow work ends in a refusal. A mass ratio (or the
+    velocity amplitudes that give it) splits a total mass, which needs a trigonometric
+    parallax; a velocity log gives q and the orbital parallax itself; magnitudes give a
+    dynamical parallax instead of a trigonometric one.
+
+    Parameters
+    ----------
+    parallax : (float, float), optional
+        Trigonometric parallax and its error [mas].
+    mass_ratio : (float, float), optional
+        q = M2/M1 and its error.
+    rv_amplitudes : (float, float, float, float), optional
+        K1, its error, K2, its error [km/s].
+    magnitudes : (float, float), optional
+        Apparent magnitudes of the components in ``band``.
+    band : str, optional
+        Band of the magnitudes.
+    bolometric_corrections : (float, float), optional
+        BC of the components in ``band``.
+    velocity_log : bool
+        A radial-velocity log is fitted with the orbit.
+    names : dict
+        What to call each input in messages (default: the command-line options).
+
+    Raises
+    ------
+    MassInputError
+        With ``key`` naming the input at fault.
+    """
+    def refuse(key, message):
+        raise MassInputError(key, message)
+
+    ratio_key = "mass_ratio" if mass_ratio is not None else "rv_amplitudes"
+    has_ratio = mass_ratio is not None or rv_amplitudes is not None
+    if velocity_log:
+        for key, value in (("mass_ratio", mass_ratio), ("rv_amplitudes", rv_amplitudes),
+                           ("magnitudes", magnitudes)):
+            if value is not None:
+                refuse(key, f"with {names['velocity_log']} the velocity log gives K1, K2 "
+                       f"(hence q) and the orbital parallax; drop {names[key]}")
+    if mass_ratio is not None and rv_amplitudes is not None:
+        refuse("rv_amplitudes", f"give either {names['mass_ratio']} or "
+               f"{names['rv_amplitudes']} (q = K1/K2), not both")
+    if parallax is not None and magnitudes is not None:
+        refuse("magnitudes", f"give either a trigonometric parallax ({names['parallax']}) or "
+               f"{names['magnitudes']} for a dynamical parallax, not both")
+    if has_ratio and magnitudes is not None:
+        refuse(ratio_key, f"with {names['magnitudes']} the component masses come from the "
+               f"mass-luminosity relation; drop {names[ratio_key]}, or give "
+               f"{names['parallax']} instead of the magnitudes")
+    if has_ratio and parallax is None and not velocity_log:
+        refuse(ratio_key, f"{names[ratio_key]} splits the total mass between the "
+               f"components, which needs a distance: give {names['parallax']} too "
+               f"(without it {names[ratio_key]} would be ignored)")
+    if magnitudes is not None and band is None:
+        refuse("band", f"{names['magnitudes']} needs {names['band']}: 'bol' (bolometric) or "
+               f"'K' (2MASS Ks), or e.g. 'V' with {names['bolometric_corrections']}")
+    if band is not None and magnitudes is None:
+        refuse("band", f"{names['band']} describes {names['magnitudes']}; give the "
+               f"magnitudes too, or drop {names['band']}")
+    if bolometric_corrections is not None and magnitudes is None:
+        refuse("bolometric_corrections", f"{names['bolometric_corrections']} go with "
+               f"{names['magnitudes']} M1 M2 {names['band']} BAND")
+    _check_mass_values(parallax, mass_ratio, rv_amplitudes, magnitudes, band,
+                       bolometric_corrections, names)
+
+
+def _check_mass_values(parallax, mass_ratio, rv_amplitudes, magnitudes, band,
+                       bolometric_corrections, names):
+    def finite(values):
+        return all(np.isfinite(float(v)) for v in values)
+
+    if parallax is not None:
+        value, error = (float(v) for v in parallax)
+        if not (np.isfinite(value) and value > 0):
+            raise MassInputError("parallax", f"{names['parallax']}: the parallax {value:g} mas "
+                                 "is not positive: the third law gives no mass for it (a zero "
+                                 "or negative parallax means the distance is unknown). Give a "
+                                 f"positive parallax, or {names['magnitudes']} for a "
+                                 "dynamical parallax")
+        if not (np.isfinite(error) and error >= 0):
+            raise MassInputError("parallax", f"{names['parallax']}: the error must be zero or "
+                                 f"positive, got {error:g} mas")
+    pairs = []
+    if mass_ratio is not None:
+        pairs.append(("mass_ratio", "the mass ratio q", mass_ratio))
+    if rv_amplitudes is not None:
+        pairs += [("rv_amplitudes", "K1", rv_amplitudes[:2]),
+                  ("rv_amplitudes", "K2", rv_amplitudes[2:])]
+    for key, what, (value, error) in pairs:
+        if not (np.isfinite(value) and value > 0):
+            raise MassInputError(key, f"{names[key]}: {what} must be a positive number, got "
+                                 f"{value:g}")
+        if not (np.isfinite(error) and error >= 0):
+            raise MassInputError(key, f"{names[key]}: the error of {what} must be zero or "
+                                 f"positive, got {error:g}")
+    if magnitudes is not None:
+        if not finite(magnitudes):
+            raise MassInputError("magnitudes", f"{names['magnitudes']} must be finite numbers")
+        try:
+            _check_band(band) if bolometric_corrections is None else None
+        except InputError as exc:
+            raise MassInputError("band", str(exc)) from None
+    if bolometric_corrections is not None:
+        if not finite(bolometric_corrections):
+            raise MassInputError("bolometric_corrections",
+                                 f"{names['bolometric_corrections']} must be finite numbers")
+        if str(band).lower() in ("bol", "k", "ks"):
+            raise MassInputError("bolometric_corrections", f"bolometric corrections apply to "
+                                 f"magnitudes in a band such as V, not to band {band!r}; "
+                                 f"drop {names['bolometric_corrections']}")
+
+
 def mass_from_absolute_magnitude(abs_mag, band):
     """Main-sequence mass [M_sun] from an absolute magnitude in ``band`` ('bol' or 'K')."""
     if _check_band(band) == "K":
@@ -339,22 +479,18 @@ def _positive_normal(rng, value, error, n, name, warnings):
 def _mass_ratio(rng, n, mass_ratio, rv_amplitudes, warnings):
     """Draws of q = M2/M1, its value and relative error, and draws of K1 + K2 (or None)."""
     if mass_ratio is not None:
-        q, q_err = _pair(mass_ratio, "mass ratio")
+        q, q_err = _pair(mass_ratio)
         return _positive_normal(rng, q, q_err, n, "the mass ratio", warnings), q, q_err / q, None
-    k1, k1_err = _pair(rv_amplitudes[:2], "K1")
-    k2, k2_err = _pair(rv_amplitudes[2:], "K2")
+    k1, k1_err = _pair(rv_amplitudes[:2])
+    k2, k2_err = _pair(rv_amplitudes[2:])
     k1_draws = _positive_normal(rng, k1, k1_err, n, "K1", warnings)
     k2_draws = _positive_normal(rng, k2, k2_err, n, "K2", warnings)
     return (k1_draws / k2_draws, k1 / k2, float(np.hypot(k1_err / k1, k2_err / k2)),
             k1_draws + k2_draws)
 
 
-def _pair(value_error, name):
-    value, error = (float(v) for v in value_error)
-    if not (np.isfinite(value) and value > 0):
-        raise InputError(f"the {name} must be a positive number, got {value}")
-    if not (np.isfinite(error) and error >= 0):
-        raise InputError(f"the error of the {name} must be zero or positive, got {error}")
+def _pair(value_error):
+    value, error = (float(v) for v in value_error)   # checked by check_mass_inputs
     return value, error
 
 
@@ -373,14 +509,7 @@ def _components(total_draws, q_draws, total_linear, q, q_rel):
 
 
 def _trigonometric(period, a, parallax, best, cov_Pa, rng, warnings):
-    value, error = (float(v) for v in parallax)
-    if not np.isfinite(value) or value <= 0:
-        raise InputError(f"the parallax {value} mas is not positive: the third law gives no "
-                         f"mass for it (a zero or negative parallax means the distance is "
-                         f"unknown). Give a positive parallax, or use --magnitudes for a "
-                         f"dynamical parallax")
-    if not (np.isfinite(error) and error >= 0):
-        raise InputError(f"the parallax error must be zero or positive, got {error} mas")
+    value, error = (float(v) for v in parallax)   # checked by check_mass_inputs
     if error > 0 and value / error < 10:
         warnings.append(f"The parallax is only {value / error:.1f} times its error (below 10): "
                         f"the mass, which goes as the inverse cube of the parallax, is biased "
@@ -404,9 +533,6 @@ def _bolometric(magnitudes, band, corrections):
     mag1, mag2 = (float(v) for v in magnitudes)
     if corrections is None:
         return mag1, mag2, _check_band(band)
-    if str(band).lower() in ("bol", "k", "ks"):
-        raise InputError(f"bolometric corrections apply to magnitudes in a band such as V, "
-                         f"not to band {band!r}; drop --bolometric-corrections")
     bc1, bc2 = (float(v) for v in corrections)
     return mag1 + bc1, mag2 + bc2, "bol"
 
@@ -498,15 +624,12 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
     if not (np.all(np.isfinite(period)) and np.all(period > 0) and np.all(np.isfinite(a))
             and np.all(a > 0)):
         raise InputError("the P and a draws must be finite and positive")
-    if (parallax is None) == (magnitudes is None):
+    if parallax is None and magnitudes is None:
         raise InputError("give either a trigonometric parallax (--parallax VALUE ERROR) or the "
                          "component magnitudes for a dynamical parallax (--magnitudes M1 M2 "
-                         "--band bol|K), not both and not neither")
-    if mass_ratio is not None and rv_amplitudes is not None:
-        raise InputError("give either a mass ratio or radial-velocity amplitudes, not both")
-    if magnitudes is not None and (mass_ratio is not None or rv_amplitudes is not None):
-        raise InputError("with --magnitudes the component masses come from the mass-luminosity "
-                         "relation; drop --mass-ratio / --rv-amplitudes or give a parallax")
+                         "--band bol|K)")
+    check_mass_inputs(parallax, mass_ratio, rv_amplitudes, magnitudes, band,
+                      bolometric_corrections)
     best = (float(np.median(period)), float(np.median(a))) if best is None else best
     cov_Pa = np.cov(np.vstack([period, a])) if cov_Pa is None else cov_Pa
     rng = np.random.default_rng(np.random.SeedSequence(seed).spawn(1)[0])

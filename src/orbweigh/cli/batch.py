@@ -4,17 +4,6 @@ from __future__ import annotations
 __all__ = ["add_arguments", "run"]
 
 
-def _positive_int(text):
-    import argparse
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got {text!r}") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"expected at least 1, got {value}")
-    return value
-
-
 def add_arguments(parser):
     parser.add_argument("manifest", metavar="MANIFEST",
                         help="CSV or TOML manifest, one system a row: id, log (relative to "
@@ -23,8 +12,9 @@ def add_arguments(parser):
                              "rv_log, ra_deg, dec_deg")
     parser.add_argument("--out", required=True, metavar="DIR",
                         help="output folder: summary.ecsv, summary.csv, index.html, systems/")
-    parser.add_argument("--workers", type=_positive_int, metavar="N",
-                        help="local worker processes (default: number of CPUs; 1 = no pool)")
+    parser.add_argument("--workers", type=int, metavar="N",
+                        help="local worker processes, 1 to 64 (default: number of CPUs; 1 = "
+                             "no pool)")
     parser.add_argument("--scheduler", metavar="ADDRESS",
                         help="run on this Dask distributed scheduler (e.g. tcp://host:8786) "
                              "instead of a local pool; workers must see the manifest folder")

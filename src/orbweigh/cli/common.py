@@ -2,7 +2,29 @@
 from __future__ import annotations
 
 __all__ = ["add_log_arguments", "load_log", "add_mass_arguments", "check_mass_arguments",
-           "add_elements_arguments", "load_elements_document"]
+           "add_elements_arguments", "load_elements_document", "check_options", "LIMITS",
+           "MAX_SAMPLER_EVALUATIONS", "MAX_SEED"]
+
+#: Bounds of the whole-number options that memory or time follow: (command or None for
+#: every other, option) -> (lowest, highest, why). Measured on one core (orbweigh 0.1,
+#: 24-row log, benchmarks/bench_option_limits.py): mass 10^6 draws 0.7 GB; compare 10^5
+#: draws 3.8 GB and 26 s; ephemeris 10^4 draws x 10^4 epochs 20 s; sampling 32 x 5000
+#: steps 11 s and 160 MB.
+LIMITS = {
+    ("mass", "draws"): (2, 200_000, "200,000 draws take about 150 MB and a few seconds"),
+    (None, "draws"): (2, 10_000, "a 68 % band from 10,000 draws is far finer than its "
+                      "width, and memory grows with the draws"),
+    (None, "walkers"): (14, 1_000, "at least twice the seven elements; every walker is a "
+                        "chain held in memory"),
+    (None, "steps"): (2, 1_000_000, "the chain is held in memory"),
+    (None, "workers"): (1, 64, "every worker is a process with its own memory, about "
+                        "150 MB"),
+}
+#: Largest walkers x steps of one sampling (about 12 times the default 32 x 5000, a few
+#: minutes and about 100 MB of chain).
+MAX_SAMPLER_EVALUATIONS = 2_000_000
+#: Seeds are non-negative (numpy's SeedSequence) and fit in 64 bits.
+MAX_SEED = 2 ** 63 - 1
 
 
 def add_log_arguments(parser):
@@ -17,8 +39,8 @@ def add_log_arguments(parser):
                         help="J2000 right ascension of the pair, degrees or hh:mm:ss.s; with "
                              "--target-dec, position angles are precessed to equinox J2000")
     parser.add_argument("--target-dec", metavar="DEC",
-                        help="J2000 declination of the pair, degrees or +dd:mm:ss (write "
-                             "--target-dec=-16:42:58 for a negative sexagesimal value)")
+                        help="J2000 declination of the pair, degrees or sexagesimal "
+                             "(-16.716, -16:42:58, -16d42m58s)")
     parser.add_argument("--strict", action="store_true",
                         help="stop at the first unusable row instead of rejecting it")
 
@@ -57,15 +79,13 @@ def add_mass_arguments(parser):
 
 
 def check_mass_arguments(args):
-    """Refuse inconsistent mass options with a clear message."""
-    from ..errors import InputError
+    """Refuse mass options that are out of range or would be ignored, before any fitting
+    (the rule is ``masses.check_mass_inputs``, shared with the batch manifest)."""
+    from ..masses import check_mass_inputs
 
-    if args.magnitudes is not None and args.band is None:
-        raise InputError("--magnitudes needs --band: 'bol' (bolometric) or 'K' (2MASS Ks)")
-    if args.bolometric_corrections is not None and args.magnitudes is None:
-        raise InputError("--bolometric-corrections go with --magnitudes M1 M2 --band BAND")
-    if args.band is not None and args.magnitudes is None:
-        raise InputError("--band describes --magnitudes; give the magnitudes too, or drop --band")
+    check_mass_inputs(args.parallax, args.mass_ratio, args.rv_amplitudes, args.magnitudes,
+                      args.band, args.bolometric_corrections,
+                      velocity_log=bool(getattr(args, "rv", None)))
 
 
 def add_elements_arguments(parser, name="result", help_text="result document of 'orbweigh "
@@ -100,3 +120,27 @@ def load_elements_document(args, name="result"):
     if args.elements_file:
         return read_elements_file(args.elements_file)
     return load_result(getattr(args, name))
+
+
+def check_options(args):
+    """Refuse, before any reading, fitting or sampling, a count or seed out of its range.
+
+    ``main`` calls it for every command: the bounds of ``LIMITS`` (memory and time follow
+    those options) and the seed. Rules that join several options live beside them
+    (``check_mass_arguments``, the sampling and velocity checks of ``fit``); the range of
+    a single physical value is checked where it is used, before the slow work.
+    """
+    from ..errors import InputError
+
+    command = getattr(args, "command", None)
+    for (where, name), (low, high, why) in LIMITS.items():
+        value = getattr(args, name, None)
+        if value is None or where not in (None, command) or \
+                (where is None and (command, name) in LIMITS):
+            continue
+        if not low <= value <= high:
+            raise InputError(f"--{name.replace('_', '-')} {value} is outside {low}..{high:,} "
+                             f"({why}); give a value in that range")
+    seed = getattr(args, "seed", None)
+    if seed is not None and not 0 <= seed <= MAX_SEED:
+        raise InputError(f"--seed {seed}: a seed is a whole number from 0 to 2^63 - 1")

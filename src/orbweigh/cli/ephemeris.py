@@ -18,10 +18,13 @@ from ..files import write_atomic
 
 __all__ = ["add_arguments", "run", "epoch_grid", "parse_epoch_option", "parse_epoch_list",
            "epochs_from_options", "ephemeris_rows", "target_of", "to_equinox_of_date",
-           "MAX_ROWS"]
+           "MAX_ROWS", "MAX_BAND_POINTS"]
 
 #: Largest number of epochs one command computes (a guard against a mistyped --step).
 MAX_ROWS = 100_000
+#: Largest draws x epochs of the 68 % bands (computed in chunks: time, not memory,
+#: follows it; 10^8 take about 20 s on one core).
+MAX_BAND_POINTS = 100_000_000
 
 _BAND_KEYS = ("theta_low_deg", "theta_high_deg", "rho_low_arcsec", "rho_high_arcsec")
 _UNITS = {"theta_deg": "deg", "rho_arcsec": "arcsec", "x_arcsec": "arcsec",
@@ -37,7 +40,8 @@ def add_arguments(parser):
                         "Besselian year; J2027.0, JD2461406.5, MJD61406, 2027-01-01)")
     parser.add_argument("--stop", help="last epoch (included when on the grid)")
     parser.add_argument("--step", type=float, default=1.0,
-                        help="spacing of the epochs (yr; d when --start is a JD or MJD) [1.0]")
+                        help="spacing of the epochs (yr; d when --start is a JD or MJD) [1.0]; "
+                             f"at most {MAX_ROWS:,} epochs")
     parser.add_argument("--epochs", help="comma-separated list of epochs instead of a grid, "
                         "e.g. 2027.3,J2031.9,2033-05-17")
     parser.add_argument("--equinox", choices=("J2000", "date"), default="J2000",
@@ -47,12 +51,13 @@ def add_arguments(parser):
     parser.add_argument("--target-ra", metavar="RA", help="J2000 right ascension of the pair "
                         "(degrees or hh:mm:ss.s), for --equinox date")
     parser.add_argument("--target-dec", metavar="DEC", help="J2000 declination of the pair "
-                        "(degrees or +dd:mm:ss), for --equinox date")
+                        "(degrees, -16:42:58 or -16d42m58s), for --equinox date")
     parser.add_argument("--json", metavar="PATH|-", help="write the rows as JSON ('-' for "
                         "standard output, which then replaces the printed table)")
     parser.add_argument("--ecsv", metavar="PATH", help="write the rows as an ECSV table")
     parser.add_argument("--draws", type=int, default=1000,
-                        help="element draws used for the 68%% bands [1000]")
+                        help="element draws used for the 68%% bands, 2 to 10,000, and draws "
+                             f"x epochs at most {MAX_BAND_POINTS:,} [1000]")
     parser.add_argument("--seed", type=int, default=1,
                         help="seed of the random choice of draws [1]")
 
@@ -75,11 +80,12 @@ def epoch_grid(start, stop, step, names=("--start", "--stop")):
         raise InputError(f"{names[0]} ({start}) must be earlier than {names[1]} ({stop})")
     if not step > 0:
         raise InputError(f"--step must be positive, got {step}")
-    n = int(np.floor((stop - start) / step * (1 + 1e-12))) + 1
-    if n > MAX_ROWS:
-        raise InputError(f"{names[0]} {start} {names[1]} {stop} --step {step} gives {n} epochs, "
-                         f"more than {MAX_ROWS}; use a larger --step or a shorter span")
-    return start + step * np.arange(n)
+    n = np.floor((stop - start) / step * (1 + 1e-12)) + 1   # a float: may be huge or inf
+    if not n <= MAX_ROWS:
+        raise InputError(f"{names[0]} {start} {names[1]} {stop} --step {step} gives "
+                         f"{f'{n:,.0f}' if n < 1e15 else f'{n:.3g}'} epochs, more than {MAX_ROWS:,}; use a larger --step or a shorter "
+                         "span")
+    return start + step * np.arange(int(n))
 
 
 def parse_epoch_option(text, option, day_unit=False):
@@ -165,14 +171,17 @@ def ephemeris_rows(doc, epochs, t_yr, n_draws=1000, seed=1):
     from ..ephemeris import ephemeris, ephemeris_bands
     from ..result import element_draws, elements_from_document, independent_draws
 
-    if n_draws < 2:
-        raise InputError(f"--draws must be at least 2, got {n_draws}")
     epochs = np.asarray(epochs, float)
     t = np.asarray(t_yr, float)
     elements = elements_from_document(doc)
     eph = ephemeris(elements, t)
     columns = {"epoch": epochs, "theta_deg": eph.theta_deg, "rho_arcsec": eph.rho_arcsec,
                "x_arcsec": eph.x_arcsec, "y_arcsec": eph.y_arcsec}
+    if n_draws * epochs.size > MAX_BAND_POINTS:
+        raise InputError(f"--draws {n_draws} at {epochs.size:,} epochs is "
+                         f"{n_draws * epochs.size:,} predictions for the bands, more than "
+                         f"{MAX_BAND_POINTS:,} (about 20 s); use fewer --draws, a larger "
+                         "--step or a shorter span")
     draws = element_draws(doc, n_draws, seed)
     independent = draws is None
     if independent:

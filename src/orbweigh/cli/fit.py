@@ -141,9 +141,9 @@ def _read_velocities(args):
     if not args.rv and (args.rv_columns or args.combine_parallax):
         raise InputError("--rv-columns and --combine-parallax describe a velocity log; give it "
                          "with --rv RVLOG")
-    if args.rv and (args.mass_ratio or args.rv_amplitudes or args.magnitudes):
-        raise InputError("with --rv the velocity log gives K1, K2 (hence q) and the orbital "
-                         "parallax; drop --mass-ratio, --rv-amplitudes and --magnitudes")
+    if args.combine_parallax and (args.parallax is None or args.parallax[1] <= 0):
+        raise InputError("--combine-parallax weighs the trigonometric parallax against the "
+                         "orbital one: give --parallax VALUE ERROR with a positive error")
     if not args.rv:
         return None
     columns = (parse_column_mapping(args.rv_columns, option="--rv-columns")
@@ -222,9 +222,10 @@ def _add_sampling_arguments(parser):
                              "<stem>.draws.ecsv beside --json PATH); masses then come from "
                              "the draws")
     parser.add_argument("--walkers", type=int, metavar="N",
-                        help=f"walkers of the ensemble (default {DEFAULT_WALKERS})")
+                        help=f"walkers of the ensemble, 14 to 1,000 (default {DEFAULT_WALKERS}); "
+                             "walkers x steps at most 2,000,000")
     parser.add_argument("--steps", type=int, metavar="N",
-                        help=f"steps of every walker (default {DEFAULT_STEPS})")
+                        help=f"steps of every walker, 2 to 1,000,000 (default {DEFAULT_STEPS})")
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
@@ -232,6 +233,7 @@ def _check_sampling_arguments(args):
     """Refuse sampling options that cannot work, before the (slow) fit."""
     from ..errors import InputError
     from ..sampling import DEFAULT_STEPS, DEFAULT_WALKERS
+    from .common import MAX_SAMPLER_EVALUATIONS
 
     if not args.sample:
         if args.walkers is not None or args.steps is not None:
@@ -240,11 +242,11 @@ def _check_sampling_arguments(args):
         return
     args.walkers = DEFAULT_WALKERS if args.walkers is None else args.walkers
     args.steps = DEFAULT_STEPS if args.steps is None else args.steps
-    if args.walkers < 14:
-        raise InputError(f"--walkers must be at least 14 (twice the seven elements), "
-                         f"got {args.walkers}")
-    if args.steps < 2:
-        raise InputError(f"--steps must be at least 2, got {args.steps}")
+    if args.walkers * args.steps > MAX_SAMPLER_EVALUATIONS:
+        raise InputError(f"--walkers {args.walkers} x --steps {args.steps} = "
+                         f"{args.walkers * args.steps:,} evaluations, more than "
+                         f"{MAX_SAMPLER_EVALUATIONS:,} (minutes of sampling and a chain held "
+                         "in memory); use fewer walkers or steps")
     if not args.rv and args.out is None and args.json in (None, "-"):
         raise InputError("--sample saves its draws in a file beside the result document: "
                          "give --out DIR (draws in DIR/draws.ecsv), or --json PATH (draws in "

@@ -21,7 +21,7 @@ def add_arguments(parser):
     add_elements_arguments(parser, "result", "result document of 'orbweigh fit'")
     add_mass_arguments(parser)
     parser.add_argument("--draws", type=int, default=4000, metavar="N",
-                        help="number of (P, a) draws (default 4000)")
+                        help="number of (P, a) draws, 2 to 200,000 (default 4000)")
     parser.add_argument("--seed", type=int, default=1, metavar="N",
                         help="seed of every random draw (default 1)")
     parser.add_argument("--json", metavar="PATH", default=None,
@@ -43,8 +43,6 @@ def run(args):
         raise InputError("the mass needs a distance: give --parallax VALUE ERROR [mas], or "
                          "--magnitudes M1 M2 --band bol|K for a dynamical parallax")
     check_mass_arguments(args)
-    if args.draws < 2:
-        raise InputError(f"--draws must be at least 2, got {args.draws}")
     require_determined(doc, "mass and no dynamical parallax")
     blocks = masses_for_document(doc, parallax=args.parallax, mass_ratio=args.mass_ratio,
                                  rv_amplitudes=args.rv_amplitudes, magnitudes=args.magnitudes,

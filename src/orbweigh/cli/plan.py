@@ -24,7 +24,7 @@ def add_arguments(parser):
                         help="first and last candidate epoch, in any form a log accepts "
                              "(2027.0 is a Besselian year; J2027.0, JD…, MJD…, ISO dates)")
     parser.add_argument("--step", type=float, help="spacing of the candidate epochs "
-                        "[0.05 yr; days when START is a JD or MJD]")
+                        "[0.05 yr; days when START is a JD or MJD]; at most 100,000 epochs")
     parser.add_argument("--aperture-mm", type=float, help="telescope aperture D [mm]; epochs "
                         "with rho below Dawes' limit 116\"/D are not recommended")
     parser.add_argument("--sigma-mas", type=float, default=5.0,
@@ -36,7 +36,8 @@ def add_arguments(parser):
     parser.add_argument("--json", metavar="PATH|-", help="write the advice as JSON ('-' for "
                         "standard output, which then replaces the printed text)")
     parser.add_argument("--draws", type=int, default=1000,
-                        help="element draws for the bands and a posterior covariance [1000]")
+                        help="element draws for the bands and a posterior covariance, 2 to "
+                             "10,000 [1000]")
     parser.add_argument("--seed", type=int, default=1, help="seed of the draws [1]")
 
 
