@@ -144,7 +144,7 @@ def test_seed_fixes_the_bands(partial_orbit, capsys):
 @pytest.mark.parametrize("argv, message", [
     (["--start", "2040", "--stop", "2027"], "must be earlier than --stop"),
     (["--start", "2027", "--stop", "2040", "--step", "0"], "--step must be positive"),
-    (["--start", "2027", "--stop", "2040", "--step", "0.0001"], "more than 100000"),
+    (["--start", "2027", "--stop", "2040", "--step", "0.0001"], "more than 100,000"),
     (["--epochs", "2027.3,20x1.9"], "item 2 ('20x1.9')"),
     (["--epochs", "2027.3,,2030"], "item 2 ('')"),
     (["--epochs", "2027.3", "--start", "2027"], "not both"),

@@ -220,7 +220,7 @@ def test_plan_command_text_and_json(partial_path, capsys, tmp_path):
     (["--window", "2027", "2035", "--aperture-mm", "-3"], "--aperture-mm must be positive"),
     (["--window", "2027", "2035", "--sigma-mas", "0"], "--sigma-mas must be positive"),
     (["--window", "2027", "2035", "--top", "0"], "--top must be at least 1"),
-    (["--window", "2027", "2035", "--step", "0.00001"], "more than 100000"),
+    (["--window", "2027", "2035", "--step", "0.00001"], "more than 100,000"),
     (["--window", "2027", "2035", "--draws", "1"], "--draws 1 is outside 2..10,000"),
     (["--window", "2027", "2035", "--min-separation", "-1"], "must not be negative"),
 ])
