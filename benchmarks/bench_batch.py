@@ -28,9 +28,15 @@ from orbweigh.ephemeris import ephemeris
 __all__ = ["make_catalogue", "main"]
 
 
-def make_catalogue(folder, n_systems, n_points=50, seed=0):
-    """Write N synthetic logs and a manifest into ``folder``; returns the manifest path."""
+def make_catalogue(folder, n_systems, n_points=50, seed=0, problems=False):
+    """Write N synthetic logs and a manifest into ``folder``; returns the manifest path.
+
+    ``problems`` plants what real logs have: one point of every 5th system turned by
+    180 deg (a quadrant error), one of every 7th displaced by 20 sigma in rho (an
+    outlier), and every 10th log cut to 12 points (small logs get a flip search per row).
+    """
     rng = np.random.default_rng(seed)
+    planted = np.random.default_rng([seed, 1])
     logs = Path(folder) / "logs"
     logs.mkdir(parents=True, exist_ok=True)
     rows = ["id,log,P,T,e,a,i,Omega,omega,last_epoch"]
@@ -45,6 +51,8 @@ def make_catalogue(folder, n_systems, n_points=50, seed=0):
         eph = ephemeris(el, t)
         theta = np.mod(eph.theta_deg + rng.normal(0.0, sigma_theta, n_points), 360.0)
         rho = np.abs(eph.rho_arcsec + rng.normal(0.0, sigma_rho, n_points))
+        if problems:
+            t, theta, rho = _plant(planted, k, t, theta, rho, sigma_rho)
         (logs / f"s{k:04d}.csv").write_text(
             "epoch,theta,rho,sigma_theta,sigma_rho\n" + "".join(
                 f"J{a:.4f},{b:.3f},{c:.5f},{sigma_theta},{sigma_rho:.5f}\n"
@@ -53,11 +61,25 @@ def make_catalogue(folder, n_systems, n_points=50, seed=0):
         if k % 2 == 0:
             p = el.period_yr * (1.1 if k % 4 == 0 else 1.0)
             old = (f"{p},J{el.periastron_yr},{el.e},{el.a_arcsec},{el.i_deg},{el.node_deg},"
-                   f"{el.omega_deg},J{t[int(0.8 * n_points)]:.4f}")
+                   f"{el.omega_deg},J{t[int(0.8 * t.size)]:.4f}")
         rows.append(f"s{k:04d},logs/s{k:04d}.csv,{old or ',,,,,,,'}")
     manifest = Path(folder) / "manifest.csv"
     manifest.write_text("\n".join(rows) + "\n")
     return manifest
+
+
+def _plant(rng, k, t, theta, rho, sigma_rho):
+    """The planted problems of system k (see make_catalogue)."""
+    theta, rho = theta.copy(), rho.copy()
+    if k % 5 == 1:
+        j = rng.integers(t.size)
+        theta[j] = np.mod(theta[j] + 180.0, 360.0)
+    if k % 7 == 3:
+        rho[rng.integers(t.size)] += 20.0 * sigma_rho
+    if k % 10 == 7:
+        keep = np.sort(rng.choice(t.size, 12, replace=False))
+        t, theta, rho = t[keep], theta[keep], rho[keep]
+    return t, theta, rho
 
 
 def _run(manifest, out, workers):

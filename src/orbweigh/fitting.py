@@ -21,6 +21,7 @@ Steps (each documented where it is done):
 """
 from __future__ import annotations
 
+import functools
 import time
 from dataclasses import dataclass, field
 
@@ -195,12 +196,18 @@ def fit_orbit(data, options=None) -> OrbitSolution:
     FitError
         Fewer than four usable measurements.
     """
-    from threadpoolctl import threadpool_limits
-
     # The linear algebra here is small: a threaded BLAS only spins its threads, and in a
     # process pool it oversubscribes the cores (measured: 1.6x the CPU time per fit).
-    with threadpool_limits(limits=1):
+    with _thread_pools().limit(limits=1):
         return _fit(data, options or FitOptions())
+
+
+@functools.cache
+def _thread_pools():
+    """The process's BLAS/OpenMP pools, found once: the scan of the loaded libraries
+    costs milliseconds, as much as a tenth of a small fit (bench_fit_cpu.py)."""
+    from threadpoolctl import ThreadpoolController
+    return ThreadpoolController()
 
 
 def _fit(data, options):

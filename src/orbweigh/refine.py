@@ -10,6 +10,8 @@ fixed a or angle is a non-linear constraint on A, B, F, G.
 """
 from __future__ import annotations
 
+import functools
+import inspect
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -86,6 +88,19 @@ def refine_nonlinear(trial, t, x, y, w, period_range, constraints=Constraints())
         A, B, F, G, _ = linear_thiele_innes(X, Y, x, y, w)
         return np.concatenate([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)])
 
+    def resid_at_points(_, points):
+        """The finite-difference points of one Jacobian in one vectorised pass.
+
+        scipy hands a map-like ``workers`` the residual and the points it would evaluate
+        one by one; the points suffice. The residuals are resid's, to rounding."""
+        points = np.array(list(points))
+        v = np.tile(q_all, (len(points), 1))
+        v[:, free] = points
+        period, e, t_peri = np.exp(v[:, :1]), v[:, 1:2], v[:, 2:3]
+        X, Y = _basis(t, period, t_peri, e)
+        A, B, F, G, _ = (c[:, None] for c in linear_thiele_innes(X, Y, x, y, w))
+        return list(np.hstack([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)]))
+
     if free.any():
         lo = np.array([np.log(period_range[0]), 0.0, trial.t_peri - trial.period])[free]
         hi = np.array([np.log(period_range[1]), _E_MAX, trial.t_peri + trial.period])[free]
@@ -94,12 +109,23 @@ def refine_nonlinear(trial, t, x, y, w, period_range, constraints=Constraints())
             q0[np.flatnonzero(free).tolist().index(1)] = min(q_all[1], _E_MAX - 1e-3)
         # A polish only (the full refinement follows), so loose tolerances suffice.
         q = least_squares(resid, q0, bounds=(lo, hi), x_scale="jac", max_nfev=40,
-                          ftol=1e-4, xtol=1e-4).x
+                          ftol=1e-4, xtol=1e-4, **_batched_differences(resid_at_points)).x
     else:
         q = q_all[free]
     period, e, t_peri = full(q)
     A, B, F, G, chi2 = linear_thiele_innes(*_basis(t, period, t_peri, e), x, y, w)
     return Refined(np.array([period, t_peri, e, A, B, F, G]), float(chi2))
+
+
+@functools.cache
+def _least_squares_takes_workers():
+    from scipy.optimize import least_squares
+    return "workers" in inspect.signature(least_squares).parameters
+
+
+def _batched_differences(evaluate):
+    """``workers=evaluate`` where scipy has it (1.16 on); older ones evaluate one by one."""
+    return {"workers": evaluate} if _least_squares_takes_workers() else {}
 
 
 def _period_limits(p0, constraints):

@@ -10,6 +10,7 @@ once per table entry.
 """
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -101,11 +102,20 @@ def _period_grid(pmin, pmax, span):
     return np.array(periods[:-1] + [pmax]) if periods[-1] > pmax else np.array(periods)
 
 
+@functools.lru_cache(maxsize=8)
 def _anomaly_tables(eccentricities):
+    """X and Y over the mean-anomaly grid, one row per eccentricity (a tuple), float32.
+
+    Kept between searches: the default grid is the same for every fit of a batch.
+    """
+    e = np.array(eccentricities)[:, None]
     mean_anom = 2.0 * np.pi * np.arange(_MEAN_ANOMALY_STEPS) / _MEAN_ANOMALY_STEPS
-    E = eccentric_anomaly(mean_anom[None, :], eccentricities[:, None])
-    e = eccentricities[:, None]
-    return np.cos(E) - e, np.sqrt(1.0 - e**2) * np.sin(E)
+    E = eccentric_anomaly(mean_anom[None, :], e)
+    tables = [(np.cos(E) - e).astype(np.float32),
+              (np.sqrt(1.0 - e**2) * np.sin(E)).astype(np.float32)]
+    for table in tables:
+        table.flags.writeable = False
+    return tuple(tables)
 
 
 def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
@@ -133,7 +143,7 @@ def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
     dt = t - t0
     periods = _period_grid(*period_range, span=float(np.ptp(t)))
     eccentricities = _ECCENTRICITIES if e is None else np.array([float(e)])
-    tab_x, tab_y = _anomaly_tables(eccentricities)
+    tab_x, tab_y = _anomaly_tables(tuple(map(float, eccentricities)))
     phases = np.arange(_PHASE_STEPS if t_peri is None else 1) / _PHASE_STEPS
     n_e, n_phase, n = len(eccentricities), len(phases), len(t)
     chunk = max(1, _CHUNK_ELEMENTS // (n_e * n_phase * n))
@@ -141,7 +151,6 @@ def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
     best_cell = np.empty((len(periods), 2), int)
     # float32 halves the memory traffic; the coarse chi2 only has to rank cells
     # (refinement recomputes everything in float64).
-    tab_x, tab_y = tab_x.astype(np.float32), tab_y.astype(np.float32)
     x32, y32, w32 = (np.asarray(v, np.float32) for v in (x, y, w))
     for start in range(0, len(periods), chunk):
         p = periods[start:start + chunk]
