@@ -31,8 +31,9 @@ __all__ = ["masses_for_document", "budget_rows", "check_mass_inputs", "MassInput
     "THIRD_LAW_FACTOR", "KMS_PER_AU_YR", "EKER_RANGE_MSUN", "MANN_RANGE_MKS", "M_BOL_SUN",
     "BANDS", "total_mass_msun", "parallax_for_mass_mas",
     "linear_propagation", "eker_log_luminosity", "eker_mass_from_log_luminosity",
-    "mann_mass_from_mks", "mass_from_absolute_magnitude", "DynamicalParallax",
-    "dynamical_parallax", "summarise", "mass_blocks", "format_mass_blocks",
+    "mann_mass_from_mks", "mass_from_absolute_magnitude", "RELATION_SCATTER", "DynamicalParallax",
+    "dynamical_parallax", "magnitudes_and_errors", "summarise", "mass_blocks",
+    "format_mass_blocks",
 ]
 
 _YEAR_S = 365.25 * 86400.0  # Julian year [s], the internal time unit
@@ -56,14 +57,30 @@ _EKER_PIECES = np.array([
     (7.0, 31.0, 2.865, 1.105),
 ])
 EKER_RANGE_MSUN = (0.179, 31.0)
+# Scatter: assumed, NOT the paper's number (its per-piece standard deviations were not at
+# hand when this was written; replace by those of Table 4 when checked): 0.1 dex in log L,
+# the order of the main sequence's width in luminosity at fixed mass (age and
+# composition) and of the jumps of up to 0.08 dex between the pieces at their breaks.
+_EKER_SCATTER = {"variable": "log10 L", "sigma_dex": 0.10,
+                 "source": "assumed 0.1 dex (order of the main-sequence width at fixed mass), "
+                           "not a value from Eker et al. 2018"}
 # Mann et al. 2019, ApJ 871, 63, Table 6: log(M/M_sun) = sum a_i (M_Ks - 7.5)^i.
 _MANN_COEFFS = (-0.642, -0.208, -8.43e-4, 7.87e-3, 1.42e-4, -2.13e-4)
+# Scatter: about 2 % in mass (Mann et al. 2019, abstract and the discussion of Table 6's
+# fit; from memory: check the paper's quoted fractional scatter).
+_MANN_SCATTER = {"variable": "log10 M", "sigma_dex": float(np.log10(1.02)),
+                 "source": "2 % in mass, Mann et al. 2019 (ApJ 871, 63), value from memory"}
 MANN_RANGE_MKS = (4.0, 11.0)
 #: Supported magnitude bands for the dynamical parallax -> what the relation is.
 BANDS = {"bol": "apparent bolometric magnitudes, Eker et al. 2018 (MNRAS 479, 5491) "
                 "main-sequence relation, valid 0.179-31 M_sun",
          "K": "2MASS Ks magnitudes, Mann et al. 2019 (ApJ 871, 63) M-dwarf relation, "
               "valid 4 < M_Ks < 11"}
+#: Scatter of each relation about its fit (beside each relation's coefficients above), as
+#: a 1-sigma deviation in dex of its dependent variable: log L at given mass for 'bol',
+#: log M at given M_Ks for 'K'. A dynamical parallax carries it (and the magnitudes'
+#: errors) by Monte Carlo, see ``_dynamical``.
+RELATION_SCATTER = {"bol": _EKER_SCATTER, "K": _MANN_SCATTER}
 _PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)
 _MAX_ITER = 100
 _TOL = 1e-10
@@ -332,8 +349,10 @@ def _check_mass_values(parallax, mass_ratio, rv_amplitudes, magnitudes, band,
             raise MassInputError(key, f"{names[key]}: the error of {what} must be zero or "
                                  f"positive, got {error:g}")
     if magnitudes is not None:
-        if not finite(magnitudes):
-            raise MassInputError("magnitudes", f"{names['magnitudes']} must be finite numbers")
+        try:
+            magnitudes_and_errors(magnitudes)   # M1 M2 or M1 ERR1 M2 ERR2
+        except InputError as exc:
+            raise MassInputError("magnitudes", f"{names['magnitudes']}: {exc}") from None
         try:
             _check_band(band) if bolometric_corrections is None else None
         except InputError as exc:
@@ -348,11 +367,17 @@ def _check_mass_values(parallax, mass_ratio, rv_amplitudes, magnitudes, band,
                                  f"drop {names['bolometric_corrections']}")
 
 
-def mass_from_absolute_magnitude(abs_mag, band):
-    """Main-sequence mass [M_sun] from an absolute magnitude in ``band`` ('bol' or 'K')."""
+def mass_from_absolute_magnitude(abs_mag, band, offset_dex=0.0):
+    """Main-sequence mass [M_sun] from an absolute magnitude in ``band`` ('bol' or 'K').
+
+    ``offset_dex`` is a star's deviation from the relation in its dependent variable
+    (``RELATION_SCATTER``): log L above the relation's at its mass ('bol'), log M above
+    the relation's at its M_Ks ('K').
+    """
     if _check_band(band) == "K":
-        return mann_mass_from_mks(abs_mag)
-    return eker_mass_from_log_luminosity((M_BOL_SUN - np.asarray(abs_mag, float)) / 2.5)
+        return mann_mass_from_mks(abs_mag) * 10.0 ** np.asarray(offset_dex, float)
+    return eker_mass_from_log_luminosity((M_BOL_SUN - np.asarray(abs_mag, float)) / 2.5
+                                         - np.asarray(offset_dex, float))
 
 
 def _outside_validity(abs_mags, masses, band):
@@ -395,17 +420,20 @@ class DynamicalParallax:
     history: list
 
 
-def dynamical_parallax(a_arcsec, period_yr, mag1, mag2, band):
+def dynamical_parallax(a_arcsec, period_yr, mag1, mag2, band, offset1_dex=0.0,
+                       offset2_dex=0.0):
     """Iterate the third law with a mass-luminosity relation to a self-consistent parallax.
 
     Parameters
     ----------
     a_arcsec, period_yr : array_like
         Semi-major axis [arcsec] and period [Julian yr]; draws are iterated together.
-    mag1, mag2 : float
-        Apparent magnitudes of the primary and secondary in ``band`` [mag].
+    mag1, mag2 : float or array_like
+        Apparent magnitudes of the primary and secondary in ``band`` [mag] (one per draw).
     band : {'bol', 'K'}
         Band of the magnitudes.
+    offset1_dex, offset2_dex : float or array_like
+        Each star's deviation from the relation (``mass_from_absolute_magnitude``).
 
     Notes
     -----
@@ -418,18 +446,19 @@ def dynamical_parallax(a_arcsec, period_yr, mag1, mag2, band):
     band = _check_band(band)
     a, p = np.atleast_1d(np.asarray(a_arcsec, float)), np.atleast_1d(np.asarray(period_yr, float))
     with np.errstate(all="ignore"):  # a runaway iteration shows as non-finite values
-        return _iterate(a, p, mag1, mag2, band)
+        return _iterate(a, p, mag1, mag2, band, offset1_dex, offset2_dex)
 
 
-def _iterate(a, p, mag1, mag2, band):
-    total = np.full(np.broadcast(a, p).shape, 2.0)  # start: M1 + M2 = 2 M_sun
+def _iterate(a, p, mag1, mag2, band, offset1, offset2):
+    shape = np.broadcast(a, p, mag1, mag2, offset1, offset2).shape
+    total = np.full(shape, 2.0)  # start: M1 + M2 = 2 M_sun
     history = []
     for iteration in range(1, _MAX_ITER + 1):
         plx = parallax_for_mass_mas(a, p, total)
         shift = 5.0 + 5.0 * np.log10(plx * 1e-3)
         mabs1, mabs2 = mag1 + shift, mag2 + shift
-        m1 = mass_from_absolute_magnitude(mabs1, band)
-        m2 = mass_from_absolute_magnitude(mabs2, band)
+        m1 = mass_from_absolute_magnitude(mabs1, band, offset1)
+        m2 = mass_from_absolute_magnitude(mabs2, band, offset2)
         history.append((plx, mabs1, mabs2, m1, m2))
         new_total = m1 + m2
         done = bool(np.all(np.abs(new_total / total - 1.0) < _TOL))
@@ -527,20 +556,48 @@ def _trigonometric(period, a, parallax, best, cov_Pa, rng, warnings):
     return total, block, _linear_block(mass, rel), budget, int(bad.sum())
 
 
+def magnitudes_and_errors(magnitudes):
+    """(m1, err1, m2, err2) from (m1, m2) (errors 0) or (m1, err1, m2, err2) [mag]."""
+    values = [float(v) for v in magnitudes]
+    if len(values) == 2:
+        values = [values[0], 0.0, values[1], 0.0]
+    if len(values) != 4:
+        raise InputError(f"expected M1 M2 or M1 ERR1 M2 ERR2 (apparent magnitudes "
+                         f"of primary and secondary, optionally each with its 1-sigma "
+                         f"error); got {len(values)} numbers")
+    if not all(np.isfinite(values)):
+        raise InputError(f"the magnitudes and their errors must be finite numbers, got "
+                         f"{values}")
+    if values[1] < 0 or values[3] < 0:
+        raise InputError(f"a magnitude error must be zero or positive, got {values[1]:g} and "
+                         f"{values[3]:g}; write --magnitudes M1 ERR1 M2 ERR2")
+    return tuple(values)
+
+
 def _bolometric(magnitudes, band, corrections):
     """Magnitudes and band for the relation: with bolometric corrections BC (m_bol = m +
     BC, the user's choice of table), any band becomes 'bol'."""
-    mag1, mag2 = (float(v) for v in magnitudes)
+    mag1, mag2 = magnitudes
     if corrections is None:
         return mag1, mag2, _check_band(band)
     bc1, bc2 = (float(v) for v in corrections)
     return mag1 + bc1, mag2 + bc2, "bol"
 
 
-def _dynamical(period, a, magnitudes, band, best, warnings, corrections=None):
+def _dynamical(period, a, magnitudes, band, best, rng, warnings, corrections=None):
+    """Dynamical parallax and masses by Monte Carlo over the orbit's (P, a) draws, the
+    magnitudes' errors and the relation's scatter; the block, with the iteration at the
+    best values summarised in one line (iterations, last change)."""
     given_band = band
-    mag1, mag2, band = _bolometric(magnitudes, band, corrections)
-    draws = dynamical_parallax(a, period, mag1, mag2, band)
+    mag1, err1, mag2, err2 = magnitudes_and_errors(magnitudes)
+    mag1, mag2, band = _bolometric((mag1, mag2), band, corrections)
+    scatter = RELATION_SCATTER[band]
+    n = len(period)
+    # The components share age and composition, the main causes of the scatter, so one
+    # deviation is drawn for both (fully correlated: also the wider choice for M1 + M2).
+    offset = rng.normal(0.0, scatter["sigma_dex"], n)
+    draws = dynamical_parallax(a, period, rng.normal(mag1, err1, n), rng.normal(mag2, err2, n),
+                               band, offset, offset)
     at_best = dynamical_parallax(best[1], best[0], mag1, mag2, band)
     if not (np.all(np.isfinite(draws.parallax_mas)) and np.isfinite(at_best.parallax_mas[0])):
         raise InputError(f"the dynamical parallax runs away for the magnitudes {mag1}, {mag2} "
@@ -555,20 +612,36 @@ def _dynamical(period, a, magnitudes, band, best, warnings, corrections=None):
         warnings.append(f"In {outside.mean():.0%} of the draws a component lies outside the "
                         f"validity range of the relation ({BANDS[band]}); those masses are "
                         f"extrapolated.")
-    warnings.append("The dynamical parallax's spread reflects the orbit's P and a only, not "
-                    "the scatter of the mass-luminosity relation nor the star's evolution "
-                    "off the main sequence.")
+    if err1 == 0 and err2 == 0:
+        warnings.append("The magnitudes were given without errors and taken as exact; give "
+                        "--magnitudes M1 ERR1 M2 ERR2 for an interval that includes them.")
+    warnings.append(f"The dynamical parallax's interval carries the orbit's P and a, the "
+                    f"magnitudes' errors and the relation's scatter ({scatter['variable']} "
+                    f"{scatter['sigma_dex']:.3g} dex, {scatter['source']}; one deviation "
+                    f"shared by both stars), by {n} seeded draws. It assumes both stars on the "
+                    f"main sequence: an evolved or unresolved third component makes it wrong "
+                    f"beyond the interval.")
     steps = [{"iteration": k + 1, "parallax_mas": float(s[0][0]), "abs_mag1": float(s[1][0]),
               "abs_mag2": float(s[2][0]), "mass1": float(s[3][0]), "mass2": float(s[4][0])}
              for k, s in enumerate(at_best.history)]
+    last_change = (abs(steps[-1]["parallax_mas"] - steps[-2]["parallax_mas"])
+                   if len(steps) > 1 else None)
     summary = summarise(draws.parallax_mas, "mas")
     block = {"value": summary["value"], "error": (summary["high"] - summary["low"]) / 2,
-             "low": summary["low"], "high": summary["high"], "unit": "mas", "kind": "dynamical",
+             "low": summary["low"], "high": summary["high"], "low95": summary["low95"],
+             "high95": summary["high95"], "unit": "mas", "kind": "dynamical",
              "band": band, "relation": BANDS[band], "magnitudes": [mag1, mag2],
+             "magnitude_errors": [err1, err2],
+             "relation_scatter": {"variable": scatter["variable"],
+                                  "sigma_dex": scatter["sigma_dex"],
+                                  "source": scatter["source"], "shared_by_components": True},
+             "at_best": float(at_best.parallax_mas[0]),
              **({} if corrections is None else {
-                 "input_band": str(given_band), "input_magnitudes": list(map(float, magnitudes)),
+                 "input_band": str(given_band),
+                 "input_magnitudes": [float(v) for v in magnitudes],
                  "bolometric_corrections": list(map(float, corrections))}),
-             "iterations": at_best.iterations, "steps": steps}
+             "iterations": at_best.iterations, "converged": bool(at_best.converged),
+             "last_change_mas": last_change, "steps": steps}
     return draws, block
 
 
@@ -588,15 +661,18 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
     rv_amplitudes : (K1, K1_err, K2, K2_err), optional
         Radial-velocity amplitudes [km/s]; q = K1/K2. With ``e_draws`` and ``i_draws``
         the orbital parallax is reported too.
-    magnitudes : (m1, m2), optional
-        Apparent magnitudes in ``band`` for a dynamical parallax (instead of ``parallax``).
+    magnitudes : (m1, m2) or (m1, err1, m2, err2), optional
+        Apparent magnitudes in ``band`` (and their 1-sigma errors) for a dynamical parallax
+        instead of ``parallax``; drawn per draw with the relation's scatter
+        (``RELATION_SCATTER``).
     band : {'bol', 'K'} or str, optional
         Band of ``magnitudes``; any other band (e.g. 'V') needs ``bolometric_corrections``.
     bolometric_corrections : (BC1, BC2), optional
         Bolometric corrections of the two components in ``band`` (m_bol = m + BC, from a
         table of the user's choice); the bolometric relation is then used.
     seed : int
-        Seed of the parallax and mass-ratio draws (reported in the block).
+        Seed of the parallax, mass-ratio, magnitude and relation-scatter draws (reported
+        in the block).
     best : (P, a), optional
         Best P [yr] and a [arcsec] for the linear estimate; default: medians of the draws.
     cov_Pa : (2, 2) array_like, optional
@@ -651,7 +727,7 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
                     np.asarray(i_draws, float)),
                     "mas")
     else:
-        draws, plx_block = _dynamical(period, a, magnitudes, band, best, warnings,
+        draws, plx_block = _dynamical(period, a, magnitudes, band, best, rng, warnings,
                                       bolometric_corrections)
         mass["total"] = summarise(draws.mass1_msun + draws.mass2_msun, "solMass")
         mass["primary"] = summarise(draws.mass1_msun, "solMass")
@@ -690,6 +766,26 @@ def _mass_row(name, m):
             f"{'[' + low95 + ', ' + high95 + ']':<25}{lin}")
 
 
+def _dynamical_lines(plx):
+    """The dynamical parallax's interval, inputs and iteration, a few lines."""
+    value, low, high, low95, high95 = fmt.interval_parts(
+        plx["value"], plx["low"], plx["high"], plx.get("low95"), plx.get("high95"))
+    (m1, m2), (e1, e2) = plx["magnitudes"], plx.get("magnitude_errors", (0.0, 0.0))
+    scatter = plx.get("relation_scatter") or {}
+    lines = [f"  median {value} mas, 68% [{low}, {high}], 95% [{low95}, {high95}]",
+             f"  {plx['relation']}",
+             f"  magnitudes {fmt.value_error(m1, e1)} and {fmt.value_error(m2, e2)} "
+             f"(band {plx['band']})"]
+    if scatter:
+        lines.append(f"  relation scatter {fmt.number(scatter['sigma_dex'], 3)} dex in "
+                     f"{scatter['variable']} ({scatter['source']})")
+    change = plx.get("last_change_mas")
+    state = "converged" if plx.get("converged", True) else "NOT converged"
+    lines.append(f"  iteration at the best (P, a): {state} after {plx['iterations']} steps"
+                 + ("" if change is None else f", last change {fmt.number(change, 2)} mas"))
+    return lines
+
+
 def format_mass_blocks(blocks):
     """Plain-text table of the blocks returned by ``mass_blocks``."""
     mass, plx = blocks["mass"], blocks["parallax"]
@@ -700,13 +796,7 @@ def format_mass_blocks(blocks):
         lines.append(f"Orbital parallax (visual orbit with K1 + K2): {value} mas, "
                      f"68% [{low}, {high}]")
     if plx["kind"] == "dynamical":
-        lines.append(f"  {plx['relation']}; iterations at the best (P, a): "
-                     f"{plx['iterations']}")
-        lines.append(f"  {'step':>4} {'plx [mas]':>11} {'Mabs1':>7} {'Mabs2':>7} "
-                     f"{'M1':>7} {'M2':>7}")
-        lines += [f"  {s['iteration']:>4} {fmt.fixed(s['parallax_mas'], 3):>11} "
-                  f"{s['abs_mag1']:>7.3f} {s['abs_mag2']:>7.3f} {s['mass1']:>7.4f} "
-                  f"{s['mass2']:>7.4f}" for s in plx["steps"]]
+        lines += _dynamical_lines(plx)
     lines += ["", f"{'Mass [M_sun]':<14}{'median':>10}  {'68% interval':<25}{'95% interval':<25}"
                   f"linear"]
     lines += [_mass_row(name, mass[name]) for name in ("total", "primary", "secondary")

@@ -65,9 +65,11 @@ def add_mass_arguments(parser):
     ratio.add_argument("--rv-amplitudes", nargs=4, type=float,
                        metavar=("K1", "K1ERR", "K2", "K2ERR"),
                        help="radial-velocity amplitudes and errors [km/s]; q = K1/K2")
-    parser.add_argument("--magnitudes", nargs=2, type=float, metavar=("M1", "M2"),
-                        help="apparent magnitudes of primary and secondary, for a dynamical "
-                             "parallax when no trigonometric one is known")
+    parser.add_argument("--magnitudes", nargs="+", type=float, metavar="MAG",
+                        help="apparent magnitudes of primary and secondary, M1 M2 or with "
+                             "their 1-sigma errors M1 ERR1 M2 ERR2 (e.g. 5.10 0.03 6.20 0.05), "
+                             "for a dynamical parallax when no trigonometric one is known; "
+                             "the errors and the relation's scatter enter its interval")
     parser.add_argument("--bolometric-corrections", nargs=2, type=float, metavar=("BC1", "BC2"),
                         help="bolometric corrections of primary and secondary in --band (e.g. "
                              "V), from a table of your choice: m_bol = m + BC; the Eker et al. "
