@@ -3,6 +3,7 @@ determinism across executors (inline, process pool, Dask), resume and atomic out
 from __future__ import annotations
 
 import dataclasses
+import hashlib
 import json
 import os
 import shutil
@@ -223,6 +224,38 @@ def test_resume_skips_unchanged_systems_only(catalogue, tmp_path):
         assert os.stat(drifting).st_mtime > 1.0 and os.stat(record).st_mtime == 1.0
     finally:
         log.write_text(text)
+
+
+def test_resume_trusts_a_result_only_through_its_validation(catalogue, tmp_path, capfd):
+    options = BatchOptions(seed=3, only_contradicted=True, pages="none")
+    out = tmp_path / "out"
+    run_batch(catalogue, out, options, workers=1, progress=False)
+    folder = out / "systems" / system_key("contradicted")
+    record_path, result_path = folder / "batch.json", folder / "result.json"
+    # A curator "fixes" e to 1.5 and the recorded hash with it: the hash alone would
+    # trust the file; the validation refuses e >= 1, so the system is fitted again.
+    doc = json.loads(result_path.read_text())
+    doc["elements"]["e"]["value"] = 1.5
+    result_path.write_text(json.dumps(doc))
+    record = json.loads(record_path.read_text())
+    record["files"]["result.json"] = hashlib.sha256(result_path.read_bytes()).hexdigest()
+    record_path.write_text(json.dumps(record))
+    capfd.readouterr()
+    table = run_batch(catalogue, out, options, workers=1, resume=True, progress=False)
+    err = capfd.readouterr().err
+    assert "orbweigh batch: note: contradicted: " in err and "fitting it again" in err
+    assert "'elements.e.value' is 1.5, outside its range" in err
+    refit = json.loads(result_path.read_text())
+    assert 0 <= refit["elements"]["e"]["value"] < 1
+    assert {r["id"]: r["fitted"] for r in table}["contradicted"]
+    # A result that is not JSON at all (and a hash that matches it): refitted, noted.
+    result_path.write_text("{ not json")
+    record = json.loads(record_path.read_text())
+    record["files"]["result.json"] = hashlib.sha256(b"{ not json").hexdigest()
+    record_path.write_text(json.dumps(record))
+    run_batch(catalogue, out, options, workers=1, resume=True, progress=False)
+    assert "not valid JSON" in capfd.readouterr().err
+    assert json.loads(result_path.read_text())["elements"]["e"]["value"] < 1
 
 
 def test_system_seed_is_stable_and_distinct():

@@ -90,20 +90,91 @@ def test_broken_previous_elements(folder, cells, column, expected):
     assert entry.previous is None
 
 
-def test_pairs_coordinates_duplicates_and_field_count(folder):
+def test_pairs_coordinates_and_field_count(folder):
     path = _write(folder, "id,log,parallax_mas,parallax_err_mas,ra_deg,dec_deg\n"
                   "p,a.csv,12,,,\n"
                   "c,a.csv,,,100,95\n"
-                  "p,a.csv,12,1,,\n"
                   "n,a.csv,12,1,10,20,extra\n")
-    p, c, dup, n = read_manifest(path)
+    p, c, n = read_manifest(path)
     assert "column 'parallax_err_mas'" in p.problem and "give both" in p.problem
-    assert "column 'dec_deg'" in c.problem and "-90 <= dec_deg <= 90" in c.problem
-    assert "line 4, column 'id'" in dup.problem and "already used on line 2" in dup.problem
-    assert "line 5" in n.problem and "7 fields where the header has 6" in n.problem
+    assert "column 'dec_deg'" in c.problem and "outside (-90, 90)" in c.problem
+    assert "line 4" in n.problem and "7 fields where the header has 6" in n.problem
     assert (n.ra_deg, n.dec_deg, n.parallax_mas) == (10.0, 20.0, (12.0, 1.0))
+
+
+def test_mass_ratio_needs_a_parallax_by_the_rule_of_the_command_line(folder):
+    # The same rule as 'fit --mass-ratio' without '--parallax' (masses.check_mass_inputs),
+    # in the manifest's own column names.
     q = read_manifest(_write(folder, "id,log,q,q_err\nq,a.csv,0.8,0.1\n"))[0]
-    assert "column 'q'" in q.problem and "give parallax_mas" in q.problem
+    assert "column 'q'" in q.problem
+    assert "q splits the total mass between the components" in q.problem
+    assert "give parallax_mas too" in q.problem
+    bad = read_manifest(_write(folder, "id,log,parallax_mas,parallax_err_mas\nz,a.csv,-3,1\n"))
+    assert "column 'parallax_mas'" in bad[0].problem and "not positive" in bad[0].problem
+
+
+def test_duplicate_ids_refuse_the_manifest_naming_both_lines(folder):
+    path = _write(folder, "id,log\np,a.csv\nc,a.csv\np,a.csv\nc,alias.csv\nx,a.csv\n")
+    with pytest.raises(InputError) as refused:
+        read_manifest(path)
+    message = str(refused.value)
+    assert message.startswith(f"{path}: ids must be unique")
+    assert "id 'p' on line 2 and line 4" in message and "id 'c' on line 3 and line 5" in message
+    toml = _write(folder, '[[system]]\nid = "a"\nlog = "a.csv"\n\n[[system]]\nid = "a"\n'
+                  'log = "alias.csv"\n', "m.toml")
+    with pytest.raises(InputError, match="id 'a' on line 1 and line 5"):
+        read_manifest(toml)
+
+
+def test_byte_order_mark_is_read(folder):
+    path = folder / "bom.csv"
+    path.write_bytes("id,log,ra_deg,dec_deg\r\nA,a.csv,10,20\r\n".encode("utf-8-sig"))
+    (entry,) = read_manifest(path)
+    assert entry.problem is None and entry.id == "A" and entry.dec_deg == 20.0
+    toml = folder / "bom.toml"
+    toml.write_bytes('[[system]]\nid = "B"\nlog = "a.csv"\n'.encode("utf-8-sig"))
+    assert read_manifest(toml)[0].id == "B"
+
+
+def test_unclosed_quote_fails_its_own_line_and_keeps_every_later_row(folder):
+    path = _write(folder, 'id,log,ra_deg,dec_deg\nA,a.csv,10,20\nB,"a.csv,10,20\n'
+                  'C,a.csv,30,40\n"D",a.csv,50,60\n')
+    a, b, c, d = read_manifest(path)
+    assert (a.problem, c.problem, d.problem) == (None, None, None)
+    assert (c.id, c.ra_deg, d.id, d.dec_deg) == ("C", 30.0, "D", 60.0)
+    assert b.id == "B" and b.line == 3 and b.problem.count("line 3") == 1
+    assert b.problem.startswith(f"{path}, line 3, column 'log': a quote opens at character 3")
+    assert "not closed on this line" in b.problem
+    with pytest.raises(InputError, match=r"line 1: a quote opens at character 4"):
+        read_manifest(_write(folder, 'id,"log\nA,a.csv\n'))
+
+
+def test_line_numbers_count_only_line_ends(folder):
+    # A form feed or U+2028 inside a value is no line end (Python's str.splitlines would
+    # split there); the row after it keeps its line number.
+    path = _write(folder, "id,log\nA\x0cB,a.csv\nC\u2028D,a.csv\nE,missing.csv\n")
+    ab, cd, e = read_manifest(path)
+    assert (ab.id, cd.id) == ("A\x0cB", "C\u2028D")
+    assert e.problem.startswith(f"{path}, line 4, column 'log'")
+
+
+# Sexagesimal forms as on the command line (reductions.parse_right_ascension and
+# parse_declination, one reader). By hand: 05h14m32.3s = 15 (5 + 14/60 + 32.3/3600) deg
+# = 78.634583 deg; -08d12m05s = -(8 + 12/60 + 5/3600) deg = -8.201389 deg.
+@pytest.mark.parametrize("ra, dec", [("05:14:32.3", "-08:12:05"), ("05h14m32.3s", "-08d12m05s"),
+                                     ("5 14 32.3", "-8 12 5"), ("78.6345833", "-8.2013889")])
+def test_sexagesimal_coordinates(folder, ra, dec):
+    (entry,) = read_manifest(_write(folder, f"id,log,ra_deg,dec_deg\nx,a.csv,{ra},{dec}\n"))
+    assert entry.problem is None
+    assert entry.ra_deg == pytest.approx(78.6345833, abs=1e-6)
+    assert entry.dec_deg == pytest.approx(-8.2013889, abs=1e-6)
+
+
+def test_unreadable_coordinates_name_their_column(folder):
+    ra, dec = read_manifest(_write(folder, "id,log,ra_deg,dec_deg\nr,a.csv,5h14x,10\n"
+                                           "d,a.csv,10,-8d12q\n"))
+    assert "line 2, column 'ra_deg'" in ra.problem and "neither degrees nor" in ra.problem
+    assert "line 3, column 'dec_deg'" in dec.problem and "+dd:mm:ss" in dec.problem
 
 
 def test_velocities_and_mass_ratio_exclude_each_other(folder):
@@ -112,7 +183,7 @@ def test_velocities_and_mass_ratio_exclude_each_other(folder):
                   "out,a.csv,../../outside.csv,,\n")
     v, both, out = read_manifest(path)
     assert v.problem is None and v.rv_log == str((folder / "v.csv").resolve())
-    assert "line 3, column 'q': with rv_log the velocities give K1, K2" in both.problem
+    assert "line 3, column 'q': with rv_log the velocity log gives K1, K2 (hence q)" in both.problem
     assert "line 4, column 'rv_log'" in out.problem and "outside" in out.problem
 
 

@@ -118,11 +118,21 @@ def test_broken_draws_file_is_a_clear_error(tmp_path, capsys, draws_text, messag
         draws.write_text(draws_text)
     with pytest.raises(InputError, match=message):
         load_result(path)
-    for argv in (["ephemeris", str(path), "--epochs", "2030"], ["mass", str(path),
-                 "--parallax", "100", "1"], ["report", str(path), "--out", str(tmp_path / "o")]):
+    out = tmp_path / "out.json"
+    # Every reader of a document refuses the same way (result.validate_document): no
+    # command falls back to the covariance while another uses the draws.
+    for argv in (["ephemeris", str(path), "--epochs", "2030", "--json", str(out)],
+                 ["mass", str(path), "--parallax", "100", "1", "--json", str(out)],
+                 ["plan", str(path), "--window", "2030", "2040", "--json", str(out)],
+                 ["compare", str(path), str(path), "--json", str(out)],
+                 ["report", str(path), "--out", str(tmp_path / "o")]):
         assert main(argv) == 2
         err = capsys.readouterr().err
         assert message in err and "Traceback" not in err
+        assert err.count("\n") == 1          # one paragraph
+        assert f"{path}: its posterior draws file" in err and str(draws) in err
+        assert "remove the 'posterior' block" in err
+        assert not out.exists() and not (tmp_path / "o").exists()
 
 
 def test_commands_refuse_bad_documents_with_exit_2(tmp_path, capsys):

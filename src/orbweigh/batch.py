@@ -22,9 +22,11 @@ interrupted batch leaves no half-written file)::
     summary.tex                 the refitted orbits and masses, one LaTeX table
     index.html                  the same, linking each system's report
 
-``resume`` skips a system whose ``batch.json`` says done with the same input hash:
-SHA-256 of the manifest row, the bytes of its log (and RV log), the batch options and
-the orbweigh version. Workers read the logs by path: on a remote Dask cluster the
+``resume`` skips a system whose ``batch.json`` says done with the same input hash
+(SHA-256 of the manifest row, the bytes of its log (and RV log), the batch options and
+the orbweigh version), whose files still have the SHA-256 it recorded, and whose
+result.json passes ``result.load_result``; a finished system that fails these checks is
+fitted again, with a note on stderr. Workers read the logs by path: on a remote Dask cluster the
 manifest folder must be visible to the workers at the same path.
 """
 from __future__ import annotations
@@ -349,22 +351,42 @@ def _save_record(out, record):
 
 
 def _load_done(out, key, digest):
-    """The saved record of a system when done with the same inputs and its files are the
-    ones it wrote (SHA-256 of each, and the result parses), else None."""
-    path = out / "systems" / key / "batch.json"
+    """(record, note) of a system on resume.
+
+    The record when the system was done with the same inputs (``input_hash``), its files
+    are the ones it wrote (SHA-256 of each) and its result document passes
+    ``result.load_result``; else None, with a note saying why a finished system is fitted
+    again (no note when it never finished or its inputs changed).
+    """
+    from .result import load_result
+
+    folder = out / "systems" / key
+    path = folder / "batch.json"
+    if not path.exists():
+        return None, None
     try:
-        saved = json.loads(path.read_text(encoding="utf-8"))
-        files = saved["files"]
-        intact = isinstance(files, dict) and all(
-            hashlib.sha256((path.parent / name).read_bytes()).hexdigest() == sha
-            for name, sha in files.items())
-        if "result.json" in files:
-            json.loads((path.parent / "result.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError, KeyError, TypeError, AttributeError):
-        return None
-    if saved.get("status") == "done" and saved.get("input_hash") == digest and intact:
-        return saved
-    return None
+        saved = json.loads(path.read_text(encoding="utf-8"))   # the batch's own record
+        done = saved.get("status") == "done" and saved.get("input_hash") == digest
+        files = saved["files"] if done else {}
+        if not isinstance(files, dict):
+            raise TypeError("'files' is not an object")
+    except (OSError, ValueError, KeyError, TypeError, AttributeError) as exc:
+        return None, f"{path} cannot be read ({exc})"
+    if not done:
+        return None, None
+    for name, sha in files.items():
+        try:
+            intact = hashlib.sha256((folder / name).read_bytes()).hexdigest() == sha
+        except OSError:
+            intact = False
+        if not intact:
+            return None, f"{folder / name} is missing or not the file the batch wrote"
+    if "result.json" in files:
+        try:
+            load_result(folder / "result.json")
+        except InputError as exc:
+            return None, str(exc)
+    return saved, None
 
 
 # ----------------------------------------------------------------------------- summary
@@ -699,8 +721,11 @@ def _run_locked(manifest, out, entries, options, workers, scheduler, resume, pro
                 hashes[k] = input_hash(entry, options)
             except OSError as exc:
                 entry.problem = f"log: cannot read {exc.filename} ({exc.strerror})"
-        saved = _load_done(out, system_key(entry.id), hashes[k]) if resume and k in hashes \
-            else None
+        saved, note = (_load_done(out, system_key(entry.id), hashes[k])
+                       if resume and k in hashes else (None, None))
+        if note is not None:
+            bar.write(f"orbweigh batch: note: {entry.id}: {note}; fitting it again",
+                      file=sys.stderr)
         if saved is not None:
             records[k] = saved
             _announce(bar, saved, resumed=True)

@@ -17,17 +17,22 @@ parallax_err_mas
 q, q_err           mass ratio M2/M1 and its error
 rv_log             radial-velocity log, relative to the manifest's folder like ``log``: the
                    system gets the combined visual-spectroscopic solution (not with q)
-ra_deg, dec_deg    target coordinates (J2000) [deg] for position-angle precession
+ra_deg, dec_deg    target coordinates (J2000) for position-angle precession: degrees, or
+                   sexagesimal as on the command line (RA in hours ``05:14:32.3`` or
+                   ``05h14m32.3s``, Dec ``-08:12:05`` or ``-08d12m05s``)
 ================== ==========================================================================
 
 Epochs (T, last_epoch) are written as in measurement logs (``reductions.parse_epoch``): a
 plain decimal year is a Besselian year (the trade's custom), ``J2015.5`` a Julian year,
 ``JD2457000.5`` / ``MJD57000`` dates, ``2015-07-01`` an ISO date. P is in Julian years.
 
-CSV: a header line naming the columns, ``#`` starts a comment line. TOML: an array of
-tables ``[[system]]`` with the same keys. Unknown columns stop the whole manifest (a
-misspelt column would otherwise be silently ignored); a broken row only makes that system
-fail, with a message naming the manifest file, line and column.
+CSV: a header line naming the columns, ``#`` starts a comment line, one system a line (a
+quoted value does not continue on the next line, so an unclosed quote fails only its own
+row). TOML: an array of tables ``[[system]]`` with the same keys. UTF-8, with or without a
+byte-order mark. Unknown columns and duplicate ids stop the whole manifest (a misspelt
+column would otherwise be silently ignored, and two systems of one id would share one
+output folder); a broken row only makes that system fail, with a message naming the
+manifest file, line and column.
 """
 from __future__ import annotations
 
@@ -40,7 +45,8 @@ from pathlib import Path
 
 from .elements import ELEMENT_KEYS, CampbellElements
 from .errors import InputError
-from .reductions import epoch_unit, parse_epoch
+from .masses import MassInputError, check_mass_inputs
+from .reductions import epoch_unit, parse_declination, parse_epoch, parse_right_ascension
 
 __all__ = ["SystemEntry", "MANIFEST_KEYS", "read_manifest"]
 
@@ -124,25 +130,32 @@ def read_manifest(path):
     """
     path = Path(path)
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_bytes().decode("utf-8-sig")   # a byte-order mark is not a character
     except OSError as exc:
         raise InputError(f"{path}: cannot read the manifest ({exc.strerror})") from None
     except UnicodeDecodeError as exc:
         raise InputError(f"{path}: the manifest is not UTF-8 text ({exc.reason} at byte "
                          f"{exc.start})") from None
     rows = _toml_rows(path, text) if path.suffix.lower() == ".toml" else _csv_rows(path, text)
-    entries, seen = [], {}
-    for line, row, problems in rows:
-        entry = _entry(path, line, row, problems)
-        if entry.id in seen and not entry.problem:
-            entry.problem = _where(path, line, "id") + (
-                f": id {entry.id!r} is already used on line {seen[entry.id]}; ids must be "
-                "unique")
-        seen.setdefault(entry.id, line)
-        entries.append(entry)
+    entries = [_entry(path, line, row, problems) for line, row, problems in rows]
     if not entries:
         raise InputError(f"{path}: the manifest lists no systems")
+    _refuse_duplicate_ids(path, entries)
     return entries
+
+
+def _refuse_duplicate_ids(path, entries):
+    """Each system writes into a folder named after its id: two rows of one id would mix
+    their outputs, so the manifest as a whole is refused."""
+    rows = {}
+    for k, entry in enumerate(entries, start=1):
+        where = f"line {entry.line}" if entry.line is not None else f"system {k}"
+        rows.setdefault(entry.id, []).append(where)
+    repeated = [(i, where) for i, where in rows.items() if len(where) > 1]
+    if repeated:
+        told = "; ".join(f"id {i!r} on {' and '.join(where)}" for i, where in repeated)
+        raise InputError(f"{path}: ids must be unique (each system has its own output folder), "
+                         f"but the manifest gives {told}; rename or remove the repeated rows")
 
 
 def _where(path, line, column=None):
@@ -158,32 +171,71 @@ def _check_keys(path, keys, line=None):
 
 
 def _csv_rows(path, text):
-    """(line, {key: text}, problems) for each data row of a CSV manifest."""
-    lines = [("" if ln.lstrip().startswith("#") else ln) for ln in text.splitlines()]
-    reader = csv.reader(io.StringIO("\n".join(lines) + "\n"))
+    """(line, {key: text}, problems) for each data row of a CSV manifest.
+
+    One system a line: every line is read on its own (only \\n, \\r\\n and \\r end a
+    line), so an unclosed quote is reported on the line where it opens and every later
+    row is still read.
+    """
     header, rows = None, []
-    for record in reader:
-        if not any(cell.strip() for cell in record):
+    for number, text_line in enumerate(_LINE_END.split(text), start=1):
+        if not text_line.strip() or text_line.lstrip().startswith("#"):
             continue
+        record, problem = _split_line(text_line, header)
         if header is None:
-            header = [c.strip() for c in record]
-            missing = [k for k in ("id", "log") if k not in header]
-            if missing:
-                raise InputError(f"{_where(path, reader.line_num)}: the header has no "
-                                 f"{' and no '.join(map(repr, missing))} column; the first "
-                                 "line must name the columns, e.g. 'id,log,P,T,e,a,i,Omega,omega'")
-            _check_keys(path, header, reader.line_num)
+            if problem:
+                raise InputError(f"{_where(path, number)}: {problem[0]}")
+            header = _header(path, number, record)
+            continue
+        if problem:   # the row cannot be split: only its id (before the quote) is known
+            row = {"id": record[0].strip()} if record and record[0].strip() else {}
+            rows.append((number, row, [_where(path, number, problem[1]) + ": " + problem[0]]))
             continue
         problems = []
         if len(record) != len(header):
-            problems.append(_where(path, reader.line_num) + f": {len(record)} fields where the "
+            problems.append(_where(path, number) + f": {len(record)} fields where the "
                             f"header has {len(header)}; quote values that contain commas")
+        if not any(cell.strip() for cell in record):
+            continue
         row = {k: v.strip() for k, v in zip(header, record) if v.strip()}
-        rows.append((reader.line_num, row, problems))
+        rows.append((number, row, problems))
     if header is None:
         raise InputError(f"{path}: the manifest is empty; expected a header line such as "
                          "'id,log,P,T,e,a,i,Omega,omega' and one row per system")
     return rows
+
+
+_LINE_END = re.compile(r"\r\n|\r|\n")
+
+
+def _split_line(text_line, header):
+    """(cells, None) of one CSV line, or (cells before the quote, (what is wrong, column))
+    for an unclosed quote, naming the column where it opens."""
+    try:
+        return next(csv.reader([text_line], strict=True)), None
+    except csv.Error as exc:
+        opened, inside = None, False
+        for k, char in enumerate(text_line):
+            if char == '"':
+                inside = not inside
+                opened = k if inside else opened
+        fields_before = text_line[:opened].count(",") if opened is not None else 0
+        column = header[fields_before] if header and fields_before < len(header) else None
+        where = f"a quote opens at character {opened + 1} " if opened is not None else ""
+        before = next(csv.reader([text_line[:opened]]), []) if opened else []
+        return before, (f"{where}and is not closed on this line ({exc}); close it with a "
+                      "second \" (a manifest row is one line), or drop the quote", column)
+
+
+def _header(path, number, record):
+    header = [c.strip() for c in record]
+    missing = [k for k in ("id", "log") if k not in header]
+    if missing:
+        raise InputError(f"{_where(path, number)}: the header has no "
+                         f"{' and no '.join(map(repr, missing))} column; the first "
+                         "line must name the columns, e.g. 'id,log,P,T,e,a,i,Omega,omega'")
+    _check_keys(path, header, number)
+    return header
 
 
 def _toml_rows(path, text):
@@ -223,8 +275,11 @@ def _entry(path, line, row, problems):
     """Validate one row; problems go into ``entry.problem``, never raise."""
     entry = SystemEntry(id=row.get("id") or f"<line {line}>", line=line, manifest=str(path),
                         fields=dict(row))
+    if problems and set(row) <= {"id"}:   # nothing else of the row could be read
+        entry.problem = "; ".join(problems)
+        return entry
     for check in (_check_id, _set_log, _set_previous, _set_last_epoch, _set_parallax,
-                  _set_mass_ratio, _set_rv_log, _set_coordinates):
+                  _set_mass_ratio, _set_rv_log, _check_masses, _set_coordinates):
         try:
             check(entry, row)
         except _RowProblem as exc:
@@ -272,9 +327,6 @@ def _set_log(entry, row):
 
 def _set_rv_log(entry, row):
     if row.get("rv_log"):
-        if row.get("q"):
-            raise _RowProblem("q", "with rv_log the velocities give K1, K2 and hence q; "
-                              "leave q and q_err empty")
         entry.rv_log = _inside(entry, row, "rv_log")
 
 
@@ -325,11 +377,7 @@ def _pair(row, key, err_key, what):
     for k in (key, err_key):
         if not row.get(k):
             raise _RowProblem(k, f"{key} and {err_key} go together; give both or neither")
-    value, err = _number(row, key, what), _number(row, err_key, "an error")
-    if not value > 0 or not err > 0:
-        bad = key if not value > 0 else err_key
-        raise _RowProblem(bad, f"expected a positive number, got {row[bad]!r}")
-    return value, err
+    return _number(row, key, what), _number(row, err_key, "an error")  # ranges: _check_masses
 
 
 def _set_parallax(entry, row):
@@ -338,9 +386,21 @@ def _set_parallax(entry, row):
 
 def _set_mass_ratio(entry, row):
     entry.mass_ratio = _pair(row, "q", "q_err", "a mass ratio M2/M1")
-    if entry.mass_ratio is not None and not row.get("parallax_mas") and not row.get("rv_log"):
-        raise _RowProblem("q", "a mass ratio splits a total mass, which needs a distance: "
-                          "give parallax_mas and parallax_err_mas too")
+
+
+#: The manifest's names of the mass inputs, for the shared rule's messages.
+_MASS_COLUMNS = {"parallax": "parallax_mas", "mass_ratio": "q", "velocity_log": "rv_log",
+                 "rv_amplitudes": "rv_amplitudes", "magnitudes": "magnitudes", "band": "band",
+                 "bolometric_corrections": "bolometric_corrections"}
+
+
+def _check_masses(entry, row):
+    """The mass inputs by the rule of the command line (``masses.check_mass_inputs``)."""
+    try:
+        check_mass_inputs(entry.parallax_mas, entry.mass_ratio,
+                          velocity_log=bool(row.get("rv_log")), names=_MASS_COLUMNS)
+    except MassInputError as exc:
+        raise _RowProblem(_MASS_COLUMNS[exc.key], str(exc)) from None
 
 
 def _set_coordinates(entry, row):
@@ -349,9 +409,8 @@ def _set_coordinates(entry, row):
     for k in ("ra_deg", "dec_deg"):
         if not row.get(k):
             raise _RowProblem(k, "ra_deg and dec_deg go together; give both or neither")
-    ra, dec = _number(row, "ra_deg", "degrees"), _number(row, "dec_deg", "degrees")
-    if not 0 <= ra < 360:
-        raise _RowProblem("ra_deg", f"expected 0 <= ra_deg < 360, got {row['ra_deg']!r}")
-    if not -90 <= dec <= 90:
-        raise _RowProblem("dec_deg", f"expected -90 <= dec_deg <= 90, got {row['dec_deg']!r}")
-    entry.ra_deg, entry.dec_deg = ra, dec
+    for key, parse in (("ra_deg", parse_right_ascension), ("dec_deg", parse_declination)):
+        try:
+            setattr(entry, key, parse(row[key]))
+        except InputError as exc:
+            raise _RowProblem(key, str(exc)) from None

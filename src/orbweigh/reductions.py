@@ -32,7 +32,8 @@ from .errors import InputError
 
 __all__ = ["EPOCH_SCALES", "to_julian_year", "from_julian_year", "epoch_unit", "interval_in_scale",
            "PLAUSIBLE_YEARS", "split_epoch", "parse_epoch", "parse_epochs", "julian_years_of",
-           "PA_PRECESSION_DEG_PER_YR", "parse_target_coordinates", "precess_theta_to_j2000",
+           "PA_PRECESSION_DEG_PER_YR", "parse_target_coordinates", "parse_right_ascension",
+           "parse_declination", "precess_theta_to_j2000",
            "precess_theta_to_date",
            "approx_theta_correction_deg"]
 
@@ -206,6 +207,9 @@ PA_PRECESSION_DEG_PER_YR = 0.00557
 def parse_target_coordinates(ra, dec):
     """Right ascension and declination in degrees from numbers or sexagesimal text.
 
+    The one reader of target coordinates (command line, log header, elements file, batch
+    manifest): ``parse_right_ascension`` and ``parse_declination``.
+
     Parameters
     ----------
     ra : float or str
@@ -222,27 +226,40 @@ def parse_target_coordinates(ra, dec):
     InputError
         When a value cannot be read or is out of range.
     """
-    from astropy.coordinates import Angle  # imported on use: astropy.coordinates is heavy
+    return parse_right_ascension(ra), parse_declination(dec)
 
-    def angle(value, name, sexagesimal_unit):
-        text = str(value).strip()
-        try:
-            return float(text)
-        except ValueError:
-            pass
-        try:
-            return float(Angle(text, unit=sexagesimal_unit).deg)
-        except (ValueError, TypeError):
-            raise InputError(f"target {name} '{text}' is neither degrees nor sexagesimal "
-                             f"({'hh:mm:ss.s' if name == 'RA' else '+dd:mm:ss'})") from None
 
-    ra_deg, dec_deg = angle(ra, "RA", "hourangle"), angle(dec, "Dec", "deg")
+def parse_right_ascension(value):
+    """Right ascension [deg, 0..360) from degrees or hours 'hh:mm:ss.s' / '06h45m08.9s'."""
+    ra_deg = _angle(value, "RA", "hourangle", "hh:mm:ss.s")
     if not 0.0 <= ra_deg < 360.0:
         raise InputError(f"target RA {ra_deg} deg is outside [0, 360)")
+    return ra_deg
+
+
+def parse_declination(value):
+    """Declination [deg, open interval (-90, 90)] from degrees or 'dd:mm:ss' / '-16d42m58s'."""
+    dec_deg = _angle(value, "Dec", "deg", "+dd:mm:ss")
     if not -90.0 < dec_deg < 90.0:
         raise InputError(f"target Dec {dec_deg} deg is outside (-90, 90): position angles "
                          "are undefined at the pole")
-    return ra_deg, dec_deg
+    return dec_deg
+
+
+def _angle(value, name, sexagesimal_unit, form):
+    """Degrees from a plain number, else from sexagesimal text in ``sexagesimal_unit``."""
+    from astropy.coordinates import Angle  # imported on use: astropy.coordinates is heavy
+
+    text = str(value).strip()
+    try:
+        return float(text)
+    except ValueError:
+        pass
+    try:
+        return float(Angle(text, unit=sexagesimal_unit).deg)
+    except (ValueError, TypeError):
+        raise InputError(f"target {name} '{text}' is neither degrees nor sexagesimal "
+                         f"({form})") from None
 
 
 def precess_theta_to_j2000(theta_deg, epoch_yr, ra_deg, dec_deg):

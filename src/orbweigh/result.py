@@ -174,7 +174,7 @@ def validate_document(doc, source, needs=("elements",)):
         if posterior.get("draws_file") is not None:
             if not isinstance(posterior["draws_file"], str):
                 _fail(source, "posterior.draws_file", "must be a file name (a string)")
-            read_draws(draws_path(doc))
+            _check_draws(doc, source)
     return doc
 
 
@@ -221,6 +221,19 @@ def _check_techniques(source, stats):
         elif f.get("error") is not None or f["factor"] != 1.0:
             _fail(source, where, "is not estimated (too few points), so its factor must be 1 "
                   "and its error null")
+
+
+def _check_draws(doc, source):
+    """The draws file must be readable: every command that reads the document (mass,
+    ephemeris, plan, report, compare) would use the draws, and silently falling back to
+    the covariance would give other numbers than the document promises."""
+    try:
+        read_draws(draws_path(doc))
+    except InputError as exc:
+        raise InputError(f"{source}: its posterior draws file (posterior.draws_file "
+                         f"{doc['posterior']['draws_file']!r}) cannot be used: {exc}. To go on "
+                         "without the draws, remove the 'posterior' block from the document: "
+                         "the commands then work from its covariance") from None
 
 
 def draws_path(doc):
@@ -307,8 +320,9 @@ def _parse_draws(path):
         raise InputError(f"{path}: the posterior draws file has no column {exc}; it needs "
                          f"{', '.join(ELEMENT_KEYS)} (rerun 'orbweigh fit --sample')") from None
     except Exception as exc:  # astropy raises many kinds for a foreign or broken table
+        detail = " ".join(str(exc).split())[:200]   # one paragraph: astropy's has lines
         raise InputError(f"{path}: not a readable ECSV table of posterior draws "
-                         f"({type(exc).__name__}: {str(exc)[:200]}); rerun "
+                         f"({type(exc).__name__}: {detail}); rerun "
                          "'orbweigh fit --sample'") from None
     if draws.shape[0] == 0 or not np.isfinite(draws).all():
         raise InputError(f"{path}: the posterior draws file has no rows or non-finite values; "
