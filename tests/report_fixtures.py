@@ -112,6 +112,21 @@ def _mass_blocks(draws, seed):
                        mass_ratio=(0.82, 0.04), seed=seed)
 
 
+def _summary(draws):
+    """Median, 68 % and 95 % percentiles of the draws (T as a Besselian year), as the
+    sampling module summarises them."""
+    p = np.percentile(draws, (2.5, 15.865525393145708, 50.0, 84.13447460685429, 97.5), axis=0)
+    out = {}
+    for j, key in enumerate(ELEMENT_KEYS):
+        values = from_julian_year(p[:, j], "besselian") if key == "T" else p[:, j]
+        low95, low, median, high, high95 = (float(v) for v in values)
+        out[key] = {"median": median, "low": low, "high": high, "low95": low95,
+                    "high95": high95, "unit": {"a": "arcsec", "e": "", "P": "yr",
+                                               "T": "yr"}.get(key, "deg")}
+    out["T"]["scale"] = "besselian"
+    return out
+
+
 def build_document(seed=2024, elements=TRUE_ELEMENTS, n_draws=3000):
     """Result document (dict) and posterior draws (n, 7) of an invented pair.
 
@@ -154,8 +169,12 @@ def build_document(seed=2024, elements=TRUE_ELEMENTS, n_draws=3000):
                      "velocities); Omega is given in [0, 180) deg."],
            "seed": seed, "version": "0.1.0",
            "parallax": masses["parallax"], "mass": masses["mass"],
-           "posterior": {"draws_file": None, "n_draws": n_draws, "sampler": "emcee",
-                         "walkers": 32, "steps": 3000, "burn_in": 1000,
+           "posterior": {"draws_file": None, "n_draws": n_draws, "seed": seed,
+                         "walkers": 32, "steps": 3000, "burn": 1000, "thin": 20,
+                         "acceptance_fraction": 0.41, "converged": True, "sigma_scale": 1.0,
+                         "autocorr_time": {"ln_P": 48.2, "T": 51.7, "e": 44.0, "ln_a": 47.5,
+                                           "cos_i": 40.3, "Omega": 39.9, "omega": 42.8},
+                         "summary": _summary(draws),
                          "priors": {"P": "log-uniform over the search range",
                                     "T": "uniform over one period", "e": "uniform in [0, 1)",
                                     "a": "log-uniform", "i": "uniform in cos i",

@@ -277,3 +277,80 @@ def test_joint_posterior_matches_least_squares(synthetic):
     assert blocks["mass"]["draws_source"] == "posterior"
     assert blocks["mass"]["draws"] == len(draws)
     assert blocks["mass"]["total"]["low95"] < M_TOTAL < blocks["mass"]["total"]["high95"]
+
+
+def test_report_shows_the_combined_solution_as_tables(synthetic, capsys, tmp_path):
+    from html.parser import HTMLParser
+
+    class Cells(HTMLParser):
+        def __init__(self):
+            super().__init__()
+            self.rows, self.cell = [], None
+
+        def handle_starttag(self, tag, attrs):
+            if tag == "tr":
+                self.rows.append([])
+            elif tag in ("td", "th"):
+                self.cell = ""
+
+        def handle_endtag(self, tag):
+            if tag in ("td", "th"):
+                self.rows[-1].append(self.cell)
+                self.cell = None
+
+        def handle_data(self, data):
+            if self.cell is not None:
+                self.cell += data
+
+    _, folder = synthetic
+    rv = _write_velocities(folder / "rv_page.csv", 19, 300.0, 40.0)
+    status, _, _ = _run(capsys, folder / "positions.csv", "--rv", rv, "--period-range", 30, 80,
+                        "--parallax", 30.1, 0.3, "--out", tmp_path / "fit", "--report",
+                        tmp_path / "page", "--name", "Synthetic AB")
+    assert status == 0
+    doc = json.loads((tmp_path / "fit" / "result.json").read_text())
+    html = (tmp_path / "page" / "report.html").read_text(encoding="utf-8")
+    assert "<title>Orbit of Synthetic AB</title>" in html and doc["name"] == "Synthetic AB"
+    page = Cells()
+    page.feed(html)
+    rows = {r[0]: r for r in page.rows if r}
+    for label, key in (("Systemic velocity", "gamma"), ("Velocity amplitude, primary", "K1"),
+                       ("Velocity amplitude, secondary", "K2")):
+        value, error = rows[label][2].replace("\u2212", "-"), rows[label][3]
+        assert float(value) == pytest.approx(doc[key]["value"], abs=0.51 * 10 ** -len(
+            value.split(".")[1])) and rows[label][4] == "km/s"
+        assert float(error) == pytest.approx(doc[key]["error"], rel=0.05)
+    orbital, trig = rows["orbital \u03d6"], rows["trigonometric \u03d6"]
+    assert orbital[-1] == "used for the masses" and trig[-1] == ""
+    low, high = (float(x) for x in orbital[2].split(" to "))
+    o = doc["parallax"]["orbital"]
+    assert low == pytest.approx(o["low"], abs=0.01) and high == pytest.approx(o["high"], abs=0.01)
+    agreement = f"{o['agreement_sigma']:.1f}".replace("-", "\u2212")
+    assert f"minus the trigonometric one is {agreement}\u03c3" in html
+    assert "orbital.low95" not in html and "agreement_sigma" not in html
+    tex = (tmp_path / "page" / "elements.tex").read_text()
+    assert r"\caption{Orbital elements of Synthetic AB" in tex
+    assert "Parallax, orbital (used for the masses)" in tex and r"$\gamma$" in tex
+
+
+def test_joint_posterior_epoch_in_the_log_scale():
+    # Besselian epoch of a Julian year through astropy's Time (independent of reductions).
+    from types import SimpleNamespace
+
+    from astropy.time import Time
+
+    from orbweigh.combined import _posterior_summary
+
+    rng = np.random.default_rng(5)
+    draws = np.column_stack([rng.normal(v, s, 4000) for v, s in
+                             ((50.0, 0.2), (1930.25, 0.05), (0.4, 0.01), (1.0, 0.01),
+                              (60.0, 1.0), (120.0, 1.0), (40.0, 1.0), (-5.0, 0.1),
+                              (10.0, 0.2), (12.0, 0.2))])
+    sol = SimpleNamespace(keys=("P", "T", "e", "a", "i", "Omega", "omega", "gamma", "K1", "K2"),
+                          visual=SimpleNamespace(data=SimpleNamespace(epoch_scale="besselian")))
+    t = _posterior_summary(sol, draws)["T"]
+    assert t["scale"] == "besselian"
+    expected = Time(np.median(draws[:, 1]), format="jyear", scale="tt").byear
+    assert t["value"] == pytest.approx(expected, abs=1e-6)
+    assert t["value"] - np.median(draws[:, 1]) == pytest.approx(
+        Time(1930.25, format="jyear", scale="tt").byear - 1930.25, abs=1e-6)

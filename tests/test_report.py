@@ -26,13 +26,23 @@ FIGURES_WITH_DRAWS = ("orbit", "residuals", "corner_elements", "corner_masses", 
 
 
 # ----------------------------------------------------------------------------- helpers
+def _plain(text):
+    return text.replace("\u2212", "-")
+
+
 def _half_unit(text):
     """Half a unit of the last digit shown in a number string: the rounding tolerance."""
-    return 0.5 * 10.0 ** Decimal(text).as_tuple().exponent + 1e-12
+    return 0.5 * 10.0 ** Decimal(_plain(text)).as_tuple().exponent + 1e-12
 
 
 def _close(text, value):
-    return abs(float(text) - value) <= _half_unit(text) * (1 + 1e-9)
+    return abs(float(_plain(text)) - value) <= _half_unit(text) * (1 + 1e-9)
+
+
+def _interval(text):
+    """(low, high) strings of an HTML interval cell 'a to b'."""
+    low, high = text.split(" to ")
+    return low, high
 
 
 class _Page(HTMLParser):
@@ -229,13 +239,19 @@ def test_html_masses_budget_and_counts_equal_json(report):
     doc, _, page = report
     rows = {r[0]: r for r in page.table("mass")[1:]}
     assert set(rows) == {"total", "primary", "secondary"}
+    assert page.table("mass")[0] == ["mass", "median", "68 % interval", "95 % interval",
+                                     "linear estimate (\u00b1 1\u03c3)", "unit"]
     for name, row in rows.items():
         entry = doc["mass"][name]
-        for text, key in zip(row[1:6], ("value", "low", "high", "low95", "high95")):
+        assert _close(row[1], entry["value"])
+        for text, key in zip((*_interval(row[2]), *_interval(row[3])),
+                             ("low", "high", "low95", "high95")):
             assert _close(text, entry[key])
-        assert _close(row[6], entry["linear"]["value"])
-        assert _close(row[7], entry["linear"]["error"])
-    budget = {r[0].strip("\u2003 "): float(r[1].rstrip(" %")) / 100
+        value, error = row[4].split(" \u00b1 ")
+        assert _close(value, entry["linear"]["value"])
+        assert _close(error, entry["linear"]["error"])
+        assert row[5] == "M\u2609"
+    budget = {r[0].strip("\u2003 "): float(_plain(r[1]).rstrip(" %")) / 100
               for r in page.table("source")[1:]}
     b = doc["mass"]["budget"]
     # The orbit's share is the sum of its a, P and covariance terms (d ln M = 3 d ln a -
@@ -244,41 +260,85 @@ def test_html_masses_budget_and_counts_equal_json(report):
                 "parallax": b["parallax"], "a": b["a"], "P": b["P"],
                 "a\u2013P covariance": b["a_P_covariance"]}
     assert budget == pytest.approx(expected, abs=5.1e-4)
-    counts = {r[0]: int(r[1]) for r in page.table("count")[1:]}
-    assert counts == {k: doc["statistics"][k] for k in counts} and len(counts) == 6
-    assert counts["n_rejected"] == 2 and counts["n_flipped"] == 1
+    labels = {"n_input": "lines in the log", "n_used": "fitted",
+              "n_flipped": "corrected for a 180\u00b0 flip",
+              "n_outliers": "left out as outliers", "n_excluded": "excluded by the log",
+              "n_rejected": "rejected (unreadable)"}
+    counts = {r[0]: int(r[1]) for r in page.table("measurements")[1:]}
+    assert counts == {labels[k]: doc["statistics"][k] for k in labels}
+    assert counts["rejected (unreadable)"] == 2
     plx = page.table("parallax")[1]
-    assert _close(plx[1], doc["parallax"]["value"]) and _close(plx[2], doc["parallax"]["error"])
+    value, error = plx[1].split(" \u00b1 ")
+    assert _close(value, doc["parallax"]["value"]) and _close(error, doc["parallax"]["error"])
+    assert plx[-1] == "used for the masses"
+
+
+def test_html_posterior_table_and_convergence(report):
+    doc, _, page = report
+    table = next(t for t in page.tables if t[0][:3] == ["element", "symbol", "median"])
+    summary = doc["posterior"]["summary"]
+    for row, key in zip(table[1:], ELEMENT_KEYS):
+        s = summary[key]
+        assert _close(row[2], s["median"])
+        for text, k in zip((*_interval(row[3]), *_interval(row[4])),
+                           ("low", "high", "low95", "high95")):
+            assert _close(text, s[k]), (key, k, text)
+    assert table[2][5] == "Besselian year"
+    html = report[1]["report.html"].read_text(encoding="utf-8")
+    sentence = html.split("<p class='convergence'>")[1].split("</p>")[0]
+    post = doc["posterior"]
+    for fact in (f"{post['walkers']} walkers", f"{post['steps']} steps",
+                 f"Seed {post['seed']}."):
+        assert fact in sentence
+    for name, tau in post["autocorr_time"].items():
+        assert f"{name.replace('_', ' ')} {tau:.0f}" in sentence
+    text = " ".join(c for t in page.tables for r in t for c in r) + sentence
+    for identifier in ("summary.", "autocorr_time", "sigma_rho_arcsec", "solMass", "low95",
+                       "n_input", "_deg"):   # headers and cells are words, not keys
+        assert identifier not in text
 
 
 def test_html_residual_table_equals_json(report):
     doc, _, page = report
-    table = next(t for t in page.tables if t[0][0] == "line")
+    table = page.table("epoch (Besselian year)")
     header, body = table[0], table[1:]
+    assert header[:6] == ["epoch (Besselian year)", "O\u2212C \u03b8 (deg)",
+                          "O\u2212C \u03c1 (arcsec)", "status", "(O\u2212C)/\u03c3 \u03b8",
+                          "(O\u2212C)/\u03c3 \u03c1"]
     assert len(body) == len(doc["residuals"])
+    keys = {"epoch (Besselian year)": "epoch", "O\u2212C \u03b8 (deg)": "d_theta_deg",
+            "O\u2212C \u03c1 (arcsec)": "d_rho_arcsec", "\u03b8 (deg)": "theta_deg",
+            "\u03c1 (arcsec)": "rho_arcsec", "\u03c3 \u03b8 (deg)": "sigma_theta_deg",
+            "\u03c3 \u03c1 (arcsec)": "sigma_rho_arcsec", "computed \u03b8 (deg)": "theta_pred_deg",
+            "computed \u03c1 (arcsec)": "rho_pred_arcsec", "log line": "line",
+            "status": "status", "technique": "technique", "reason": "reason", "note": "note"}
     for cells, row in zip(body, doc["residuals"]):
-        for (key, _), text in zip(tb.RESIDUAL_COLUMNS, cells):
-            value = row.get(key)
+        for title, key in keys.items():
+            text, value = cells[header.index(title)], row.get(key)
             if isinstance(value, float):
                 assert _close(text, value), (key, text, value)
             else:
                 assert text == ("" if value is None else str(value))
-    assert header[1] == "epoch [besselian]"
+        if row.get("sigma_theta_deg"):
+            ratio = row["d_theta_deg"] / row["sigma_theta_deg"]
+            assert _close(cells[4], ratio) or (cells[4] == "0.0" and abs(ratio) < 0.05)
     statuses = [r[header.index("status")] for r in body]
     assert statuses.count("rejected") == 2 and statuses.count("outlier") == 1
 
 
 def test_html_warnings_method_seed_and_version(report):
     doc, _, page = report
-    text = " ".join(" ".join(r) for t in page.tables for r in t)
     html = report[1]["report.html"].read_text(encoding="utf-8")
     for warning in doc["warnings"] + doc["notes"]:
         assert warning.replace("'", "&#x27;") in html
     assert html.index("class='warnings'") < html.index("id='elements'")   # warnings first
+    symbols = {"Omega": "\u03a9", "omega": "\u03c9"}
     priors = {r[0]: r[1] for r in page.table("parameter")[1:]}
-    assert priors == doc["posterior"]["priors"]
+    assert priors == {symbols.get(k, k): v for k, v in doc["posterior"]["priors"].items()}
     assert f"fit seed {doc['seed']}" in html and f"orbweigh {doc['version']}" in html
-    assert "outlier_sigma" in text and "period_range_yr" in text
+    options = {r[0]: r[1] for r in page.table("option")[1:]}
+    assert options["outliers beyond"] == f"{doc['options']['outlier_sigma']:g} \u03c3"
+    assert "period search range" in options
 
 
 def _latex_cells(tex):

@@ -653,6 +653,18 @@ def _update_astrometry(doc, sol):
     return [r for r in rows if r["status"] in ("used", "flipped")]
 
 
+def _posterior_summary(sol, draws):
+    """Median and 68 %, 95 % intervals of each joint parameter; T in the log's epoch scale."""
+    scale = sol.visual.data.epoch_scale
+    out = {}
+    for j, k in enumerate(sol.keys):
+        values = draws[:, j] if k != "T" else from_julian_year(draws[:, j], scale)
+        out[k] = summarise(values, PARAMETER_UNITS[k])
+        if k == "T":
+            out[k]["scale"] = scale
+    return out
+
+
 def add_to_document(doc, sol, blocks, posterior=None):
     """Write a combined solution and its blocks into a visual fit's result document.
 
@@ -660,7 +672,8 @@ def add_to_document(doc, sol, blocks, posterior=None):
     residuals and statistics become those of the joint fit; "gamma", "K1", "K2", "node",
     "combined", "velocities", "rv_residuals" and the blocks of ``combined_blocks`` are added.
     ``posterior``: (draws, info) of ``sample_combined``, summarised in
-    doc["combined"]["posterior"] (median and 68 % interval of every parameter).
+    doc["combined"]["posterior"] (median, 68 % and 95 % intervals of every parameter, T in
+    the log's epoch scale).
     """
     fitted = _update_astrometry(doc, sol)
     s = doc["statistics"]
@@ -694,9 +707,7 @@ def add_to_document(doc, sol, blocks, posterior=None):
         "weighting": "each datum by its own sigma (no relative factor)"}
     if posterior is not None:
         draws, info = posterior
-        doc["combined"]["posterior"] = {
-            **info, "parameters": {k: summarise(draws[:, j], PARAMETER_UNITS[k])
-                                   for j, k in enumerate(sol.keys)}}
+        doc["combined"]["posterior"] = {**info, "parameters": _posterior_summary(sol, draws)}
         doc["warnings"].extend(f"Joint posterior: {w}" for w in info["warnings"])
     doc["velocities"] = {"source": str(vs.source), "n_input": int(vs.n_lines or len(vs)),
                          "n_used": int(vs.usable.sum()), "n_excluded": int((~vs.usable).sum()),

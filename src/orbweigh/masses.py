@@ -683,12 +683,13 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
     Returns
     -------
     dict
-        {"mass": {"total", ["primary", "secondary"], ["budget"], "draws", "seed",
-        "warnings", ...}, "parallax": {"value", "error", "unit", "kind", ...},
+        {"mass": {"total", ["primary", "secondary", "mass_ratio"], ["budget"], "draws",
+        "seed", "warnings", ...}, "parallax": {"value", "error", "unit", "kind", ...},
         "warnings": [...]}. With RV amplitudes and e, i draws, parallax["orbital"] holds
         the orbital parallax's percentiles (a check on the trigonometric one).
         Each mass entry: value (median), low/high (16/84 %), low95/high95 (2.5/97.5 %),
-        unit, and with a trigonometric parallax "linear": {"value", "error"}. The
+        unit, and with a trigonometric parallax "linear": {"value", "error"}. The mass
+        ratio used for the components: {"value", "error", "source": "given" or "K1/K2"}. The
         budget (trigonometric parallax only) is the share of the linear variance from
         parallax, a, P and the a-P covariance. The warnings are also stored in
         mass["warnings"], so a caller can keep its own top-level list.
@@ -721,6 +722,8 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
             q_draws, q, q_rel, k_sum = _mass_ratio(rng, period.size, mass_ratio, rv_amplitudes,
                                                    warnings)
             mass.update(_components(total, q_draws, linear, q, q_rel))
+            mass["mass_ratio"] = {"value": float(q), "error": float(q * q_rel),
+                                  "source": "given" if mass_ratio is not None else "K1/K2"}
             if k_sum is not None and e_draws is not None and i_draws is not None:
                 plx_block["orbital"] = summarise(orbital_parallax_mas(
                     a, k_sum, 0.0, period, np.asarray(e_draws, float),

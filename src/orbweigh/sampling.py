@@ -59,7 +59,8 @@ _BALL = 0.1                    # start ball radius, in units of the given scales
 _MAX_REDRAWS = 100             # attempts to put a start walker inside the prior
 _LOW_ACCEPTANCE = 0.1
 _A_PRIOR_FACTOR = 100.0
-_PERCENTILES = (15.865525393145708, 50.0, 84.13447460685429)   # median and central 68.27 %
+# Median, central 68.27 % (1 sigma of a normal distribution) and central 95 % (as the masses).
+_PERCENTILES = (2.5, 15.865525393145708, 50.0, 84.13447460685429, 97.5)
 _BLOCK_ELEMENTS = 5000         # walkers x points per likelihood block
 
 
@@ -373,7 +374,7 @@ class AstrometricPosterior:
         a_lo, a_hi = self.a_range
         return {"P": f"log-uniform on [{lo:.6g}, {hi:.6g}] yr (the fit's search range)",
                 "T": "uniform over one period (density 1/P); reported in the period centred "
-                     f"on {self.t_ref:.4f} (Julian yr)",
+                     "on the fit's T",
                 "e": f"uniform on [0, {E_MAX})",
                 "a": f"log-uniform on [{a_lo:.6g}, {a_hi:.6g}] arcsec (1/100 to 100 times the "
                      "fit's a)",
@@ -538,7 +539,7 @@ def _centred(draws, best):
 def posterior_block(doc, sample, posterior, draws_file):
     """The document's "posterior" block.
 
-    Summary percentiles (median, 16th, 84th) are in the units of the elements block (T in
+    Summary percentiles (median, 15.9th and 84.1th, 2.5th and 97.5th) are in the units of the elements block (T in
     the document's epoch scale); angles are summarised on the branch nearest the best
     value, so an interval may cross 0 or 180 deg.
     """
@@ -547,15 +548,16 @@ def posterior_block(doc, sample, posterior, draws_file):
 
     best = np.array(elements_from_document(doc).as_tuple())
     draws = _centred(posterior.elements(sample.draws()), best)
-    low, median, high = np.percentile(draws, _PERCENTILES, axis=0)
+    percentiles = np.percentile(draws, _PERCENTILES, axis=0)
     scale = epoch_scale_of(doc)
     summary = {}
     for j, key in enumerate(ELEMENT_KEYS):
-        values = (low[j], median[j], high[j])
+        values = percentiles[:, j]
         if key == "T":
-            values = tuple(float(from_julian_year(v, scale)) for v in values)
-        summary[key] = {"median": float(values[1]), "low": float(values[0]),
-                        "high": float(values[2]), "unit": doc["elements"][key].get("unit", "")}
+            values = from_julian_year(values, scale)
+        low95, low, median, high, high95 = (float(v) for v in values)
+        summary[key] = {"median": median, "low": low, "high": high, "low95": low95,
+                        "high95": high95, "unit": doc["elements"][key].get("unit", "")}
         if key == "T":
             summary[key]["scale"] = scale
     return {"draws_file": draws_file, "n_draws": int(len(draws)),

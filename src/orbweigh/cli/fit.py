@@ -56,6 +56,9 @@ def add_arguments(parser):
     _add_sampling_arguments(parser)
     parser.add_argument("--report", metavar="DIR",
                         help="also write the HTML report, figures and tables into DIR")
+    parser.add_argument("--name", metavar="NAME",
+                        help="the object's name, kept in the result and shown in the report's "
+                             "title and the LaTeX caption (default: the log's file stem)")
 
 
 def run(args):
@@ -75,6 +78,8 @@ def run(args):
                          technique_scales=args.technique_scales)
     solution = fit_orbit(data, options)
     doc = solution.to_document()
+    if args.name:
+        doc["name"] = args.name
     advice = None     # why no mass is given, if so
     if args.sample and not args.rv:   # with --rv the joint posterior is sampled instead
         _add_posterior(doc, args)

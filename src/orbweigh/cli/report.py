@@ -18,6 +18,9 @@ def add_arguments(parser):
                              "(default: %(default)s); the HTML embeds its figures regardless")
     parser.add_argument("--seed", type=int, default=None,
                         help="seed of the figures' random draws (default: the fit's seed)")
+    parser.add_argument("--name", metavar="NAME",
+                        help="the object's name in the title and the LaTeX caption (default: "
+                             "the name the fit recorded, else the log's file stem)")
 
 
 def _formats(text):
@@ -32,6 +35,6 @@ def run(args):
     from ..result import load_result
     formats = _formats(args.formats)
     doc = load_result(args.result)
-    written = write_report(doc, args.out, formats=formats, seed=args.seed)
+    written = write_report(doc, args.out, formats=formats, seed=args.seed, name=args.name)
     print(f"wrote {len(written)} files to {args.out}: {written['report.html']}")
     return 0

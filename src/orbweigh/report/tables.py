@@ -14,7 +14,7 @@ from ..result import epoch_scale_of
 __all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "THIELE_INNES_KEYS", "MASS_KEYS",
            "RESIDUAL_COLUMNS", "RESIDUAL_DECIMALS", "decimals_for",
            "format_value_error", "format_interval",
-           "theta_equinox", "object_name", "elements_rows", "elements_latex", "elements_table_latex",
+           "theta_equinox", "object_name", "parallax_entries", "elements_rows", "elements_latex", "elements_table_latex",
            "residuals_table"]
 
 #: Name, LaTeX symbol and HTML symbol of each element.
@@ -114,8 +114,12 @@ _PLX_NAME = {"trigonometric": "trigonometric", "orbital": "orbital", "combined":
              "dynamical": "dynamical"}
 
 
-def _parallax_rows(doc):
-    """The parallax the masses used first, then the others with the agreement."""
+def parallax_entries(doc):
+    """(kind, entry, used) of every parallax of the document, the one the masses used first.
+
+    ``entry`` has value and error, or a median with low/high (and low95/high95) percentiles;
+    ``used`` tells whether the masses were computed with it.
+    """
     plx, mass = doc.get("parallax") or {}, doc.get("mass") or {}
     used = mass.get("parallax_used") or plx.get("kind")
     entries = {plx.get("kind"): plx} if _finite(plx.get("value")) else {}
@@ -125,11 +129,16 @@ def _parallax_rows(doc):
         entries["orbital"] = doc["orbital_parallax"]
     if "combined" in plx:
         entries["combined"] = plx["combined"]
-    rows = []
-    for kind in sorted(entries, key=lambda k: k != used):
-        note = " (used for the masses)" if kind == used and mass else ""
-        rows.append((r"$\varpi$", f"Parallax, {_PLX_NAME.get(kind, kind)}{note}",
-                     _latex_cell(entries[kind]), "mas"))
+    return [(kind, entries[kind], bool(mass) and kind == used)
+            for kind in sorted(entries, key=lambda k: k != used)]
+
+
+def _parallax_rows(doc):
+    """The parallax the masses used first, then the others with the agreement."""
+    plx = doc.get("parallax") or {}
+    rows = [(r"$\varpi$", f"Parallax, {_PLX_NAME.get(kind, kind)}"
+             + (" (used for the masses)" if used else ""), _latex_cell(entry), "mas")
+            for kind, entry, used in parallax_entries(doc)]
     if "agreement_sigma" in plx.get("orbital", {}):
         rows.append(("", r"Orbital $-$ trigonometric parallax",
                      f"${plx['orbital']['agreement_sigma']:+.1f}$", r"$\sigma$"))

@@ -76,7 +76,7 @@ def _png_bytes(fig, written, name):
     return buffer.getvalue()
 
 
-def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None, keep=()):
+def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None, keep=(), name=None):
     """Write the report of a result document into ``out_dir``.
 
     Parameters
@@ -94,6 +94,9 @@ def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None, keep=()):
         Files the run still needs (its inputs, its other outputs): ``out_dir`` is replaced
         as a whole, so a folder holding one of them is refused. The document and its draws
         file are always kept.
+    name : str, optional
+        The object's name in the page's title and the LaTeX caption (default: the
+        document's "name", else the log's file stem).
 
     Returns
     -------
@@ -112,13 +115,13 @@ def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None, keep=()):
     keep = [*keep, doc.get("_path"), _draws_file(doc)]
     with replace_folder(out, keep, _owned) as build:   # a failure leaves the old folder
         written, embedded = {}, {}
-        for name, fig in figures.items():
-            files = style.save_figure(fig, build / name, formats)
+        for figure, fig in figures.items():
+            files = style.save_figure(fig, build / figure, formats)
             written.update(files)
-            embedded[name] = (_CAPTIONS[name], _png_bytes(fig, files, name))
-        write_atomic(build / "elements.tex", elements_latex(doc))
+            embedded[figure] = (_CAPTIONS[figure], _png_bytes(fig, files, figure))
+        write_atomic(build / "elements.tex", elements_latex(doc, name))
         write_table(build / "residuals.ecsv", residuals_table(doc))
-        write_atomic(build / "report.html", render_html(doc, embedded, seed, __version__))
+        write_atomic(build / "report.html", render_html(doc, embedded, seed, __version__, name))
         written.update({n: build / n for n in _TABLES})
     written = {n: out / n for n in written}
     return written
