@@ -140,6 +140,29 @@ def test_short_arc_with_one_quadrant_error(seed):
     assert not (clean.status == "flipped").any()
 
 
+WIDE = dict(P=24.0, T=2015.0, e=0.5, a=0.85, i=48.0, Omega=112.0, omega=250.0)
+
+
+@pytest.mark.parametrize("flips", [(20,), (10, 30, 50, 70)])
+def test_long_log_searches_flip_hypotheses_only_when_the_null_orbit_fails(flips):
+    # 80 points over 2.5 periods: the quadrant errors cannot drag the global search, the
+    # null orbit's flip correction finds them, so the suspects' hypotheses (1 and 15 global
+    # searches more) are not searched; the planted rows are the ones corrected.
+    from unittest import mock
+
+    from orbweigh import fitting
+
+    data = make_log(WIDE, np.linspace(1960.0, 2020.0, 80), 0.5, 0.005, seed=5, flips=flips)
+    usable = np.flatnonzero(data.usable)
+    assert len(fitting._flip_hypotheses(80, fitting._suspected_flips(data, usable))) > 1
+    counter = mock.Mock(wraps=fitting._search_under)
+    with mock.patch.object(fitting, "_search_under", counter):
+        sol = fit_orbit(data)
+    assert counter.call_count == 1
+    assert list(np.flatnonzero(sol.status == "flipped")) == list(flips)
+    assert abs(sol.elements.period_yr - 24.0) < 4 * sol.errors["P"]
+
+
 # --- an undetermined orbit gives no mass, parallax or plan ------------------------------
 
 def test_undetermined_orbit_prints_no_mass_nor_plan(tmp_path, capsys):

@@ -7,8 +7,9 @@ Steps (each documented where it is done):
 2. the deepest local minima over period are polished in (P, e, T) and then refined in
    all seven parameters with Levenberg-Marquardt (``refine``);
 3. quadrant flips: before the search, the rows ``check`` suspects (and, in a small log,
-   each single row) are tried flipped, each hypothesis with its own global search; after
-   it, a point whose theta + 180 deg fits decisively better is corrected;
+   each single row) are tried flipped, each hypothesis with its own global search (in a
+   log of more than 15 points only when the null orbit leaves a suspect unexplained);
+   after it, a point whose theta + 180 deg fits decisively better is corrected;
 4. outliers: points beyond ``outlier_sigma`` (in units of sigma scaled by sqrt of the
    reduced chi2 of the inliers when that exceeds 1) are set aside and refitted without;
 5. every other distinct minimum within ``alternative_delta_chi2`` of the best is kept as
@@ -228,8 +229,7 @@ def _fit(data, options):
                      data.sigma_rho_arcsec[usable] / weight, constraints)
     period_range = _search_range(options, points.t)
 
-    hypotheses = _flip_hypotheses(data, usable) if options.flips else [np.zeros(usable.size, bool)]
-    first, flipped, n_trials = _searched(points, hypotheses, period_range, options.loss)
+    first, flipped, n_trials = _searched(points, data, usable, period_range, options)
     best = first[0]
     if options.flips:
         best, flipped = _correct_flips(points, best, options.loss, flipped)
@@ -255,8 +255,17 @@ def _fit(data, options):
         sigma_factor=factor, technique_scales=scales)
 
 
-def _flip_hypotheses(data, usable):
-    """Sets of usable rows to search with theta + 180, the first one none.
+def _suspected_flips(data, usable):
+    """Indices (into ``usable``) of the rows ``check`` suspects of a quadrant error."""
+    from .measurements import suspicious_rows
+
+    index = {int(line): k for k, line in enumerate(data.line[usable])}
+    return sorted({index[s.line] for s in suspicious_rows(data)
+                   if s.rule == "quadrant_flip" and s.line in index})
+
+
+def _flip_hypotheses(n, suspects):
+    """Sets of the n usable rows to search with theta + 180, the first one none.
 
     A single quadrant error on a short arc drags the global search to a wrong orbit, after
     which no flip looks decisive; so the search itself is run under each hypothesis:
@@ -265,13 +274,7 @@ def _flip_hypotheses(data, usable):
     """
     from itertools import combinations
 
-    from .measurements import suspicious_rows
-
-    n = usable.size
     room = int(_MAX_FLIP_FRACTION * n)
-    index = {int(line): k for k, line in enumerate(data.line[usable])}
-    suspects = sorted({index[s.line] for s in suspicious_rows(data)
-                       if s.rule == "quadrant_flip" and s.line in index})
     sets = {()}
     for size in range(1, min(room, _MAX_SUSPECT_COMBINATION) + 1):
         sets.update(combinations(suspects, size))
@@ -285,22 +288,52 @@ def _flip_hypotheses(data, usable):
     return masks
 
 
-def _searched(points, hypotheses, period_range, loss):
-    """Global search and refinement under each flip hypothesis; the best one wins.
+def _search_under(points, flipped, period_range, loss):
+    """Global search and refinement with the rows of ``flipped`` turned by 180 deg."""
+    trial = points.subset(np.ones(points.t.size, bool), flipped)
+    starts, n_trials = _global_candidates(trial, period_range)
+    runs = trial.refine_candidates(
+        [_near_mean_epoch(s, trial.t, trial.constraints) for s in starts], loss)
+    return runs, n_trials
+
+
+def _searched(points, data, usable, period_range, options):
+    """Global search under the flip hypotheses; the best one wins.
 
     Each flipped point must pay for itself: the score is chi2 + FLIP_MIN_GAIN per flip.
+    The null hypothesis is searched first. In a log of more than ``_SMALL_LOG`` points one
+    quadrant error cannot drag the search far, so the other hypotheses (each a whole
+    global search) are searched only when a suspected row stays unexplained by the null
+    orbit after the usual correction (``_suspects_explained``); a small log always tries
+    them (measured in benchmarks/bench_flips.py).
     Returns (refined minima of the winner, its flips, trials per search).
     """
-    best = None
+    null = np.zeros(usable.size, bool)
+    runs, n_trials = _search_under(points, null, period_range, options.loss)
+    if not options.flips:
+        return runs, null, n_trials
+    suspects = _suspected_flips(data, usable)
+    hypotheses = _flip_hypotheses(usable.size, suspects)[1:]
+    if not hypotheses or (usable.size > _SMALL_LOG
+                          and _suspects_explained(points, runs[0], suspects, options)):
+        return runs, null, n_trials
+    best = (runs[0].chi2, runs, null)
     for flipped in hypotheses:
-        trial = points.subset(np.ones(points.t.size, bool), flipped)
-        starts, n_trials = _global_candidates(trial, period_range)
-        runs = trial.refine_candidates(
-            [_near_mean_epoch(s, trial.t, trial.constraints) for s in starts], loss)
+        runs, _ = _search_under(points, flipped, period_range, options.loss)
         score = runs[0].chi2 + FLIP_MIN_GAIN * int(flipped.sum())
-        if best is None or score < best[0]:
+        if score < best[0]:
             best = (score, runs, flipped)
     return best[1], best[2], n_trials
+
+
+def _suspects_explained(points, found, suspects, options):
+    """Whether the null orbit accounts for every suspected row once flips are corrected:
+    each is corrected, or lies within the outlier threshold as it is."""
+    best, flipped = _correct_flips(points, found, options.loss,
+                                   np.zeros(points.t.size, bool))
+    chi2_pt = _point_chi2(points, best.params, flipped)
+    red = max(best.chi2 / max(2 * points.t.size - 7 + len(options.fixed), 1), 1.0)
+    return all(flipped[k] or chi2_pt[k] / red <= options.outlier_sigma ** 2 for k in suspects)
 
 
 def _constraints(options, data):
