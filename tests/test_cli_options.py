@@ -45,6 +45,10 @@ def _refused(capsys, argv, *phrases):
      ["--mass-ratio: the mass ratio q must be a positive number, got 0"]),
     (["--combine-parallax", "--rv", "never-read-rv.csv"],
      ["--combine-parallax weighs the trigonometric parallax"]),
+    (["--fix", "e=2"], ["the fixed value of e must be an eccentricity"]),
+    (["--fix", "a=nan"], ["the fixed value of a must be a finite number"]),
+    (["--period-range", "50", "10"], ["0 < PMIN < PMAX"]),
+    (["--outlier-sigma", "-1"], ["the outlier threshold must be positive"]),
 ])
 def test_fit_refuses_mass_options_before_reading_the_log(tmp_path, capsys, extra, phrases):
     log = tmp_path / "never-read.csv"

@@ -69,13 +69,13 @@ def run(args):
     check_mass_arguments(args)
     _check_sampling_arguments(args)
     _check_targets(args)
-    velocities = _read_velocities(args)  # before the fit: a bad log fails fast
-    data = load_log(args)
     options = FitOptions(period_bounds=tuple(args.period_range) if args.period_range else None,
                          loss=args.loss, flips=not args.no_flips,
                          outlier_sigma=args.outlier_sigma, seed=args.seed,
                          fixed=parse_fixed(args.fix),
-                         technique_scales=args.technique_scales)
+                         technique_scales=args.technique_scales)   # checked: before reading
+    velocities = _read_velocities(args)  # before the fit: a bad log fails fast
+    data = load_log(args)
     solution = fit_orbit(data, options)
     doc = solution.to_document()
     if args.name:
