@@ -6,12 +6,13 @@ __all__ = ["add_log_arguments", "load_log", "add_mass_arguments", "check_mass_ar
            "MAX_SAMPLER_EVALUATIONS", "MAX_SEED"]
 
 #: Bounds of the whole-number options that memory or time follow: (command or None for
-#: every other, option) -> (lowest, highest, why). Measured on one core (orbweigh 0.1,
-#: 24-row log, benchmarks/bench_option_limits.py): mass 10^6 draws 0.7 GB; compare 10^5
-#: draws 3.8 GB and 26 s; ephemeris 10^4 draws x 10^4 epochs 20 s; sampling 32 x 5000
-#: steps 11 s and 160 MB.
+#: every other, option) -> (lowest, highest, why). At the limits (24-row log, CPU time and
+#: peak memory, benchmarks/bench_option_limits.py): mass 2 x 10^5 draws 0.5 s, 90 MB;
+#: compare 10^4 draws 2 s, 480 MB; ephemeris 10^4 draws x 10^4 epochs 28 s, 350 MB;
+#: sampling at the default 32 x 5000 steps 7 s, 160 MB. Beyond them (same machine,
+#: /usr/bin/time): mass 10^6 draws 0.7 GB, compare 10^5 draws 3.8 GB.
 LIMITS = {
-    ("mass", "draws"): (2, 200_000, "200,000 draws take about 150 MB and a few seconds"),
+    ("mass", "draws"): (2, 200_000, "a million draws take 0.7 GB"),
     (None, "draws"): (2, 10_000, "a 68 % band from 10,000 draws is far finer than its "
                       "width, and memory grows with the draws"),
     (None, "walkers"): (14, 1_000, "at least twice the seven elements; every walker is a "

@@ -23,7 +23,7 @@ __all__ = ["add_arguments", "run", "epoch_grid", "parse_epoch_option", "parse_ep
 #: Largest number of epochs one command computes (a guard against a mistyped --step).
 MAX_ROWS = 100_000
 #: Largest draws x epochs of the 68 % bands (computed in chunks: time, not memory,
-#: follows it; 10^8 take about 20 s on one core).
+#: follows it; 10^8 take about 30 s of CPU, benchmarks/bench_option_limits.py).
 MAX_BAND_POINTS = 100_000_000
 
 _BAND_KEYS = ("theta_low_deg", "theta_high_deg", "rho_low_arcsec", "rho_high_arcsec")
@@ -180,7 +180,7 @@ def ephemeris_rows(doc, epochs, t_yr, n_draws=1000, seed=1):
     if n_draws * epochs.size > MAX_BAND_POINTS:
         raise InputError(f"--draws {n_draws} at {epochs.size:,} epochs is "
                          f"{n_draws * epochs.size:,} predictions for the bands, more than "
-                         f"{MAX_BAND_POINTS:,} (about 20 s); use fewer --draws, a larger "
+                         f"{MAX_BAND_POINTS:,} (half a minute of CPU); use fewer --draws, a larger "
                          "--step or a shorter span")
     draws = element_draws(doc, n_draws, seed)
     independent = draws is None
