@@ -537,14 +537,14 @@ def _components(total_draws, q_draws, total_linear, q, q_rel):
     return blocks
 
 
-def _trigonometric(period, a, parallax, best, cov_Pa, rng, warnings):
+def _trigonometric(period, a, parallax, best, cov_Pa, rng, warnings, parallax_draws=None):
     value, error = (float(v) for v in parallax)   # checked by check_mass_inputs
     if error > 0 and value / error < 10:
         warnings.append(f"The parallax is only {value / error:.1f} times its error (below 10): "
                         f"the mass, which goes as the inverse cube of the parallax, is biased "
                         f"and its distribution is skewed; quote the percentiles, not the "
                         f"linear error.")
-    plx = rng.normal(value, error, len(period))
+    plx = rng.normal(value, error, len(period)) if parallax_draws is None else parallax_draws
     bad = plx <= 0
     total = np.where(bad, np.inf, total_mass_msun(a, np.where(bad, 1.0, plx), period))
     if bad.any():
@@ -647,7 +647,7 @@ def _dynamical(period, a, magnitudes, band, best, rng, warnings, corrections=Non
 
 def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplitudes=None,
                 magnitudes=None, band=None, seed=0, best=None, cov_Pa=None,
-                e_draws=None, i_draws=None, bolometric_corrections=None):
+                e_draws=None, i_draws=None, bolometric_corrections=None, parallax_draws=None):
     """The "mass" and "parallax" blocks of the result document, from (P, a) draws.
 
     Parameters
@@ -679,6 +679,9 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
         Covariance of (P, a); default: covariance of the draws.
     e_draws, i_draws : array_like, optional
         Eccentricity and inclination [deg] draws, used with ``rv_amplitudes``.
+    parallax_draws : array_like, optional
+        Parallax draws [mas] paired with the (P, a) draws (the joint posterior of
+        ``fit --sample``), used instead of drawing from ``parallax``.
 
     Returns
     -------
@@ -714,7 +717,8 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
     mass = {"draws": int(period.size), "seed": seed}
     if parallax is not None:
         total, plx_block, linear, budget, n_bad = _trigonometric(
-            period, a, parallax, best, cov_Pa, rng, warnings)
+            period, a, parallax, best, cov_Pa, rng, warnings,
+            None if parallax_draws is None else np.asarray(parallax_draws, float).ravel())
         mass["total"] = {**summarise(total, "solMass"), "linear": linear}
         mass["budget"] = budget
         mass["draws_nonpositive_parallax"] = n_bad
@@ -806,7 +810,8 @@ def format_mass_blocks(blocks):
               if name in mass]
     if mass.get("budget"):
         lines += _budget_lines(mass["budget"])
-    lines += ["", f"{mass['draws']} draws, seed {mass['seed']}"]
+    lines += ["", f"{mass['draws']} draws, seed {mass['seed']}"
+              + (f"; parallax {mass['parallax_draws']}" if "parallax_draws" in mass else "")]
     if blocks["warnings"]:
         lines += ["", "Warnings:"] + [f"  - {w}" for w in blocks["warnings"]]
     return "\n".join(lines)
@@ -820,14 +825,27 @@ def masses_for_document(doc, parallax=None, mass_ratio=None, rv_amplitudes=None,
     ``mass["draws_source"]`` set; the document itself is not changed."""
     from .result import draws_for_masses, elements_from_document
 
-    draws, source, cov_pa, notes = draws_for_masses(doc, n_draws, seed)
+    joint = _sampled_parallax(doc, parallax)
+    draws, source, cov_pa, notes = draws_for_masses(doc, n_draws, seed, with_parallax=joint)
     best = elements_from_document(doc)
     blocks = mass_blocks(draws[:, 0], draws[:, 3], parallax=parallax, mass_ratio=mass_ratio,
                          rv_amplitudes=rv_amplitudes, magnitudes=magnitudes, band=band,
                          seed=seed, best=(best.period_yr, best.a_arcsec), cov_Pa=cov_pa,
                          e_draws=draws[:, 2], i_draws=draws[:, 4],
-                         bolometric_corrections=bolometric_corrections)
+                         bolometric_corrections=bolometric_corrections,
+                         parallax_draws=draws[:, 7] if joint else None)
     blocks["warnings"][:0] = notes
     blocks["mass"]["warnings"][:0] = notes
     blocks["mass"]["draws_source"] = source
+    if parallax is not None:
+        blocks["mass"]["parallax_draws"] = ("sampled with the elements (posterior draws)"
+                                            if joint else "drawn from N(value, error)")
     return blocks
+
+
+def _sampled_parallax(doc, parallax):
+    """Whether the posterior draws hold this very parallax, sampled with the elements."""
+    prior = (doc.get("posterior") or {}).get("parallax_prior")
+    return bool(prior and parallax is not None and doc["posterior"].get("draws_file")
+                and (float(prior["value"]), float(prior["error"]))
+                == (float(parallax[0]), float(parallax[1])))

@@ -171,6 +171,7 @@ def validate_document(doc, source, needs=("elements",)):
     if posterior is not None:
         if not isinstance(posterior, dict):
             _fail(source, "posterior", "must be an object")
+        _check_posterior_priors(source, posterior)
         if posterior.get("draws_file") is not None:
             if not isinstance(posterior["draws_file"], str):
                 _fail(source, "posterior.draws_file", "must be a file name (a string)")
@@ -228,12 +229,37 @@ def _check_draws(doc, source):
     ephemeris, plan, report, compare) would use the draws, and silently falling back to
     the covariance would give other numbers than the document promises."""
     try:
-        read_draws(draws_path(doc))
+        read_draws(draws_path(doc),
+                   with_parallax=bool(doc["posterior"].get("parallax_prior")))
     except InputError as exc:
         raise InputError(f"{source}: its posterior draws file (posterior.draws_file "
                          f"{doc['posterior']['draws_file']!r}) cannot be used: {exc}. To go on "
                          "without the draws, remove the 'posterior' block from the document: "
                          "the commands then work from its covariance") from None
+
+
+def _check_posterior_priors(source, posterior):
+    """The posterior's Gaussian priors (names, finite means, sigma > 0) and parallax prior."""
+    from .priors import PRIOR_NAMES
+
+    gaussian = posterior.get("gaussian_priors")
+    if gaussian is not None:
+        if not isinstance(gaussian, dict):
+            _fail(source, "posterior.gaussian_priors", "must be an object {name: {mean, sigma}}")
+        for name, prior in gaussian.items():
+            key = f"posterior.gaussian_priors.{name}"
+            if name not in PRIOR_NAMES:
+                _fail(source, key, f"names no element; priors are on {', '.join(PRIOR_NAMES)}")
+            if not isinstance(prior, dict):
+                _fail(source, key, "must be an object {mean, sigma}")
+            _check_number(source, key + ".mean", prior.get("mean"))
+            _check_number(source, key + ".sigma", prior.get("sigma"), low=0.0, strict="> 0")
+    plx = posterior.get("parallax_prior")
+    if plx is not None:
+        if not isinstance(plx, dict):
+            _fail(source, "posterior.parallax_prior", "must be an object {value, error, unit}")
+        _check_number(source, "posterior.parallax_prior.value", plx.get("value"))
+        _check_number(source, "posterior.parallax_prior.error", plx.get("error"), low=0.0)
 
 
 def draws_path(doc):
@@ -278,8 +304,11 @@ def elements_from_document(doc):
 MAX_DRAWS_BYTES = 512 * 2 ** 20
 
 
-def read_draws(path):
+def read_draws(path, with_parallax=False):
     """Posterior draws as an (n, 7) array in internal units, and the table's metadata.
+
+    With ``with_parallax`` the array is (n, 8), the last column the sampled parallax [mas]
+    (``fit --sample`` with a parallax prior); InputError when the file has none.
 
     The file is parsed once per content: validation and the command that then uses the
     draws share the reading (keyed by path, size and modification time).
@@ -297,10 +326,16 @@ def read_draws(path):
     except OSError:
         key = None  # let the reader give its clear message
     if key is None:
-        draws, meta = _parse_draws(path)
+        draws, parallax, meta = _parse_draws(path)
     else:
-        draws, meta = _parse_draws_cached(key, path)
-    return draws.copy(), dict(meta)
+        draws, parallax, meta = _parse_draws_cached(key, path)
+    if not with_parallax:
+        return draws.copy(), dict(meta)
+    if parallax is None:
+        raise InputError(f"{path}: the posterior draws file has no parallax column (the "
+                         "parallax was not sampled); rerun 'orbweigh fit --sample --parallax "
+                         "VALUE ERROR'")
+    return np.column_stack([draws, parallax]), dict(meta)
 
 
 @functools.lru_cache(maxsize=2)
@@ -324,10 +359,12 @@ def _parse_draws(path):
         raise InputError(f"{path}: not a readable ECSV table of posterior draws "
                          f"({type(exc).__name__}: {detail}); rerun "
                          "'orbweigh fit --sample'") from None
-    if draws.shape[0] == 0 or not np.isfinite(draws).all():
+    parallax = np.asarray(table["parallax"], float) if "parallax" in table.colnames else None
+    if draws.shape[0] == 0 or not np.isfinite(draws).all() or (
+            parallax is not None and not np.isfinite(parallax).all()):
         raise InputError(f"{path}: the posterior draws file has no rows or non-finite values; "
                          "rerun 'orbweigh fit --sample'")
-    return draws, dict(table.meta)
+    return draws, parallax, dict(table.meta)
 
 
 def covariance_from_document(doc):
@@ -364,17 +401,18 @@ def covariance_from_document(doc):
     return matrix
 
 
-def element_draws(doc, n, seed):
+def element_draws(doc, n, seed, with_parallax=False):
     """Draws of the seven elements, shape (n, 7), internal units.
 
     From the posterior draws file when the document has one (resampled with the seed),
     else from a multivariate normal around the best elements with the document's
-    covariance. Returns None when neither exists.
+    covariance. Returns None when neither exists. ``with_parallax`` (posterior draws
+    only) adds the sampled parallax [mas] as an eighth column.
     """
     rng = np.random.default_rng(seed)
     posterior = doc.get("posterior") or {}
     if posterior.get("draws_file"):
-        draws, _ = read_draws(draws_path(doc))
+        draws, _ = read_draws(draws_path(doc), with_parallax=with_parallax)
         return draws[rng.choice(len(draws), size=min(n, len(draws)), replace=False)]
     matrix = covariance_from_document(doc)
     if matrix is None:
@@ -388,9 +426,12 @@ def element_draws(doc, n, seed):
     return draws
 
 
-def draws_for_masses(doc, n, seed):
-    """(n, 7) element draws, their source, and the (P, a) covariance for the linear estimate."""
-    draws = element_draws(doc, n, seed)
+def draws_for_masses(doc, n, seed, with_parallax=False):
+    """(n, 7) element draws, their source, and the (P, a) covariance for the linear estimate.
+
+    ``with_parallax``: (n, 8) posterior draws, the sampled parallax last.
+    """
+    draws = element_draws(doc, n, seed, with_parallax=with_parallax)
     if (doc.get("posterior") or {}).get("draws_file"):
         return draws, "posterior draws", None, []
     if draws is not None:

@@ -3,32 +3,13 @@
 Two layers:
 
 * ``sample_posterior`` is generic: any vectorised log-posterior, walkers started in small
-  balls around one or more start points, autocorrelation-based convergence check,
-  burn-in and thinning. The joint astrometric + radial-velocity posterior reuses it.
-* ``AstrometricPosterior`` is the posterior of the seven Campbell elements given the
-  fit's measurements, with the priors below; ``sample_document`` samples it for a result
-  document, ``write_draws`` saves the draws (ECSV) and ``posterior_block`` summarises them
-  for the document's "posterior" key.
-
-Priors of the astrometric posterior (walker coordinates in brackets):
-
-* P log-uniform over the fit's period search range [ln P];
-* T uniform over one period (density 1/P) [T, Julian yr]; drawn values are given in the
-  period centred on the fit's T;
-* e uniform on [0, 0.99);
-* a log-uniform from 1/100 to 100 times the fit's a [ln a]: scale-free, so the prior
-  favours no mass scale (M goes as a^3); the bounds only make it proper;
-* cos i uniform on [-1, 1] (isotropic orientation of the orbit) [cos i];
-* Omega and omega uniform [rad]; drawn values are normalised to Omega in [0, 180) deg
-  and omega in [0, 360) deg (the node ambiguity without radial velocities).
-
-The likelihood is periodic in T (period P), Omega and omega (2 pi). The walkers move in
-a window of two periods centred on the fit's values (T within +-P, the angles within
-+-2 pi), where the prior is uniform: a mode near a seam of the reported ranges lies whole
-inside the window, so walkers cross the seam instead of being stopped by it, and after
-mapping into one period the prior is exactly uniform. The window's walls keep the
-ensemble from spreading without bound along a direction the data leave free (Omega -
-omega of a face-on orbit, every angle under a flat likelihood), which would stall it.
+  balls around one or more start points, autocorrelation-based convergence (optionally
+  stopping as soon as the chain is long enough), burn-in and thinning. The joint
+  astrometric + radial-velocity posterior reuses it.
+* ``sample_document`` samples the visual-orbit posterior of a result document
+  (``orbit_posterior``; priors in ``priors``), ``write_draws`` saves the draws (ECSV),
+  ``posterior_block`` summarises them for the document's "posterior" key and
+  ``format_posterior`` prints them.
 """
 from __future__ import annotations
 
@@ -37,20 +18,20 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .elements import ELEMENT_KEYS, normalise_node, thiele_innes_from_campbell
+from .elements import ELEMENT_KEYS
 from .errors import FitError, InputError
+from .orbit_posterior import DirectPosterior, MarginalPosterior, Positions
+from .priors import ElementPriors, check_gaussian_priors
 
-__all__ = ["PosteriorSample", "sample_posterior", "AstrometricPosterior", "sample_document",
-           "write_draws", "posterior_block", "attach_posterior", "format_posterior",
-           "cos_sin_eccentric_anomaly", "E_MAX", "MIN_TAU_MULTIPLE", "BURN_TAU_MULTIPLE",
-           "DEFAULT_WALKERS", "DEFAULT_STEPS"]
+__all__ = ["PosteriorSample", "VisualPosterior", "sample_posterior", "sample_document",
+           "write_draws", "posterior_block", "attach_posterior",
+           "format_posterior", "MIN_TAU_MULTIPLE", "BURN_TAU_MULTIPLE", "DEFAULT_WALKERS",
+           "DEFAULT_STEPS"]
 
-#: Default ensemble: 32 walkers x 5000 steps is about 70 autocorrelation times on a
-#: well-covered orbit (tau ~ 70 steps for the sample pair) and takes seconds.
+#: Default ensemble of the generic sampler (the joint position + velocity posterior);
+#: the visual-orbit posterior uses ``VISUAL_WALKERS``. Steps: at most this many.
 DEFAULT_WALKERS = 32
 DEFAULT_STEPS = 5000
-#: Upper bound (excluded) of the eccentricity prior.
-E_MAX = 0.99
 #: The chain should be at least this many autocorrelation times long (emcee's advice).
 MIN_TAU_MULTIPLE = 50
 #: Burn-in discarded, in autocorrelation times (common practice, no source: "a few").
@@ -61,7 +42,8 @@ _LOW_ACCEPTANCE = 0.1
 _A_PRIOR_FACTOR = 100.0
 # Median, central 68.27 % (1 sigma of a normal distribution) and central 95 % (as the masses).
 _PERCENTILES = (2.5, 15.865525393145708, 50.0, 84.13447460685429, 97.5)
-_BLOCK_ELEMENTS = 5000         # walkers x points per likelihood block
+_CHECK_EVERY = 100             # steps between convergence checks (stopping rule)
+_TAU_SETTLED = 0.05            # relative change of tau between checks deemed settled
 
 
 # ------------------------------------------------------------------- generic sampler
@@ -147,7 +129,8 @@ def _burn_and_thin(tau, steps):
 
 
 def sample_posterior(log_prob, start_points, scales, names, walkers=DEFAULT_WALKERS,
-                     steps=DEFAULT_STEPS, seed=0, progress=False):
+                     steps=DEFAULT_STEPS, seed=0, progress=False, stop_when_converged=False,
+                     differential=False):
     """Sample a posterior with emcee's ensemble sampler.
 
     Parameters
@@ -166,11 +149,20 @@ def sample_posterior(log_prob, start_points, scales, names, walkers=DEFAULT_WALK
     walkers : int
         Number of walkers, at least 2 * ndim.
     steps : int
-        Steps of every walker.
+        Steps of every walker (at most, with ``stop_when_converged``).
     seed : int
         Seeds the start balls and the ensemble moves (independent streams).
     progress : bool
         Show a progress bar on standard error.
+    stop_when_converged : bool
+        Every ``_CHECK_EVERY`` steps estimate the autocorrelation time tau and stop once
+        the chain is ``MIN_TAU_MULTIPLE`` tau long and tau changed by less than
+        ``_TAU_SETTLED`` since the last check (the convergence rule of the flag below).
+    differential : bool
+        Differential-evolution moves (ter Braak 2006, Statistics and Computing 16, 239)
+        instead of stretch moves (Goodman & Weare 2010). On the three-dimensional
+        visual-orbit chain they give tau ~ 11 steps instead of ~ 34 (measured on the
+        sample pair, 16 walkers; benchmarks/bench_likelihood.py).
 
     Returns
     -------
@@ -180,23 +172,44 @@ def sample_posterior(log_prob, start_points, scales, names, walkers=DEFAULT_WALK
 
     ndim = len(names)
     if walkers < 2 * ndim:
-        raise InputError(f"--walkers: need at least {2 * ndim} walkers for {ndim} parameters, "
-                         f"got {walkers}")
+        raise InputError(f"--walkers: need at least {2 * ndim} walkers for {ndim} sampled "
+                         f"parameters ({', '.join(names)}), got {walkers}")
     if steps < 2:
         raise InputError(f"--steps: need at least 2 steps, got {steps}")
     ball_seq, move_seq = np.random.SeedSequence(seed).spawn(2)
     p0 = _start_ball(log_prob, start_points, scales, walkers, np.random.default_rng(ball_seq))
-    sampler = emcee.EnsembleSampler(walkers, ndim, log_prob, vectorize=True)
+    moves = emcee.moves.DEMove() if differential else None
+    sampler = emcee.EnsembleSampler(walkers, ndim, log_prob, vectorize=True, moves=moves)
     sampler.random_state = np.random.RandomState(np.random.MT19937(move_seq)).get_state()
-    sampler.run_mcmc(p0, steps, progress=progress)
+    if stop_when_converged:
+        _run_until_converged(sampler, p0, steps, progress)
+    else:
+        sampler.run_mcmc(p0, steps, progress=progress)
+    done = sampler.iteration
     tau = np.asarray(sampler.get_autocorr_time(tol=0), float)
-    burn, thin = _burn_and_thin(tau, steps)
-    converged = bool(np.all(np.isfinite(tau)) and steps >= MIN_TAU_MULTIPLE * np.max(tau))
+    burn, thin = _burn_and_thin(tau, done)
+    converged = bool(np.all(np.isfinite(tau)) and done >= MIN_TAU_MULTIPLE * np.max(tau))
     sample = PosteriorSample(tuple(names), sampler.get_chain(), sampler.get_log_prob(),
                              float(np.mean(sampler.acceptance_fraction)), tau, burn, thin,
                              converged, int(seed))
-    sample.warnings.extend(_diagnostics(sample, steps, len(np.atleast_2d(start_points))))
+    sample.warnings.extend(_diagnostics(sample, done, len(np.atleast_2d(start_points))))
     return sample
+
+
+def _run_until_converged(sampler, p0, steps, progress):
+    """Run in chunks of ``_CHECK_EVERY`` steps until the stopping rule holds or ``steps``."""
+    state, previous = p0, None
+    while sampler.iteration < steps:
+        state = sampler.run_mcmc(state, min(_CHECK_EVERY, steps - sampler.iteration),
+                                 progress=progress)
+        tau = np.asarray(sampler.get_autocorr_time(tol=0), float)
+        if not np.all(np.isfinite(tau)):
+            continue
+        long_enough = sampler.iteration >= MIN_TAU_MULTIPLE * np.max(tau)
+        if long_enough and previous is not None and np.all(
+                np.abs(tau - previous) < _TAU_SETTLED * tau):
+            return
+        previous = tau
 
 
 def _diagnostics(sample, steps, n_starts):
@@ -223,308 +236,280 @@ def _diagnostics(sample, steps, n_starts):
     return out
 
 
-# --------------------------------------------------------------- fast Kepler kernel
-_STEP = np.pi / 4096                  # node spacing of the sin/cos tables [rad]
-_OFFSET = 2048                        # nodes below 0: the tables cover [-pi/2, 3 pi/2]
-_ANGLES = (np.arange(4 * 4096 // 2 + 1) - _OFFSET) * _STEP
-_SIN_TABLE, _COS_TABLE = np.sin(_ANGLES), np.cos(_ANGLES)
-_KEPLER_ROUNDS = 3
+# ------------------------------------------------------------ result documents
+#: Default walkers of the visual-orbit posterior: the chain runs over at most three
+#: coordinates (ln P, T, e), so 16 walkers are five times the dimension.
+VISUAL_WALKERS = 16
+_LINEAR_ELEMENTS = ("a", "i", "Omega", "omega")
+_IID_DRAWS = 4000              # draws when P, T and e are all held (no chain)
+_LOW_EFFECTIVE = 0.25          # effective / weighted draws below this is warned of
+_DRAW_STREAM, _PARALLAX_STREAM = 2, 3   # SeedSequence spawn keys beside the sampler's 0, 1
 
 
-def _node(angle):
-    """Index of the table node nearest ``angle`` (clipped to the table by ``take``)."""
-    return (angle * (1.0 / _STEP) + (_OFFSET + 0.5)).astype(np.intp)
-
-
-def cos_sin_eccentric_anomaly(mean_anom, e):
-    """cos E and sin E from Kepler's equation, for 0 <= e <= ``E_MAX``; fast, no sin calls.
-
-    Parameters
-    ----------
-    mean_anom : ndarray
-        Mean anomaly M [rad], any real value.
-    e : ndarray
-        Eccentricity, broadcast against ``mean_anom``; 0 <= e <= 0.99.
-
-    Returns
-    -------
-    cos_E, sin_E : ndarray
-
-    Notes
-    -----
-    Transcendental calls dominate a numpy Kepler solver, so there are none. M is reduced
-    to m in [0, pi] (sin E is odd in M). The start is E = m + e sin m / (1 - sin(m + e)
-    + sin m) with the sines looked up in a table (step pi/4096). Each round snaps E to the
-    nearest table node, where sin and cos are known exactly, and takes Danby's quartic
-    step from there; sin and cos at the final E follow by rotating the node's values
-    through the last step (|step| < 1e-3, so short Taylor series are exact to rounding).
-    Three rounds give |dE| < 1e-11 rad for e <= 0.99 (checked against
-    ``kepler.eccentric_anomaly`` in the tests).
-    """
-    signed = mean_anom - (2.0 * np.pi) * np.rint(mean_anom * (0.5 / np.pi))   # [-pi, pi]
-    m = np.abs(signed)
-    sin_m = _SIN_TABLE.take(_node(m), mode="clip")
-    E = m + e * sin_m / (1.0 - _SIN_TABLE.take(_node(m + e), mode="clip") + sin_m)
-    for _ in range(_KEPLER_ROUNDS):
-        k = _node(E)
-        s, c = _SIN_TABLE.take(k, mode="clip"), _COS_TABLE.take(k, mode="clip")
-        node = _ANGLES.take(k, mode="clip")
-        half_es, ec = 0.5 * e * s, e * c
-        f = node - 2.0 * half_es - m
-        d1 = 1.0 - ec
-        step = f / d1                                   # steps are subtracted: E = node - step
-        step = f / (d1 - step * half_es)
-        step = f / (d1 - step * (half_es - step * ec * (1.0 / 6.0)))
-        E = node - step
-    h2 = step * step
-    sin_step = step * (1.0 - h2 * (1.0 / 6.0) * (1.0 - h2 * (1.0 / 20.0)))
-    cos_step = 1.0 - h2 * 0.5 * (1.0 - h2 * (1.0 / 12.0) * (1.0 - h2 * (1.0 / 30.0)))
-    # sin(node - step) >= 0 on [0, pi] (up to rounding); it takes the sign of M
-    return c * cos_step + s * sin_step, np.copysign(s * cos_step - c * sin_step, signed)
-
-
-# ----------------------------------------------------------- astrometric posterior
-@dataclass(frozen=True)
-class AstrometricPosterior:
-    """Log-posterior of the Campbell elements given relative positions (see module notes).
-
-    Sampled coordinates, in order (``NAMES``): ln P [P in yr], T [Julian yr], e, ln a
-    [a in arcsec], cos i, Omega [rad], omega [rad].
+@dataclass
+class VisualPosterior:
+    """Equally weighted draws of the visual-orbit posterior, with how they were made.
 
     Attributes
     ----------
-    t : ndarray
-        Epochs of the fitted measurements [Julian yr].
-    cos_theta, sin_theta : ndarray
-        cos and sin of the measured position angles (flips corrected).
-    rho : ndarray
-        Measured separations [arcsec].
-    inv_sigma_theta : ndarray
-        1 / sigma_theta [1/rad], sigmas scaled by ``sigma_scale``.
-    inv_sigma_rho : ndarray
-        1 / sigma_rho [1/arcsec], sigmas scaled by ``sigma_scale``.
-    period_range : (float, float)
-        Bounds of the log-uniform P prior [yr].
-    a_range : (float, float)
-        Bounds of the log-uniform a prior [arcsec].
-    t_ref : float
-        Centre of the window of T and of the period in which drawn T are reported
-        [Julian yr].
-    angle_ref : (float, float)
-        Centres of the windows of Omega and omega [rad].
+    sample : PosteriorSample or None
+        The chain (None when no element is left to sample in it).
+    model : MarginalPosterior or DirectPosterior
+    elements : ndarray, shape (n, 7)
+        Draws of P, T, e, a, i, Omega, omega [yr, Julian yr, -, arcsec, deg x3].
+    parallax : ndarray or None
+        Parallax draws [mas], one per row of ``elements`` (with a parallax prior).
+    weighted : int
+        Weighted draws before resampling.
+    effective : float
+        Their effective number, (sum w)^2 / sum w^2.
+    priors : dict
+        The priors in words, keyed by element.
+    gaussian : dict
+        The user's Gaussian priors as given, name -> (mean, sigma).
+    fixed : dict
+        Held elements in the document's units.
+    parallax_prior : (float, float) or None
     sigma_scale : float
-        Factor applied to the measurement sigmas: sqrt(reduced chi2) of the fit when that
-        exceeds 1, as for the fit's own errors; else 1.
-
-    Notes
-    -----
-    ln L = -chi2 / 2 with the fit's normalised residuals: the tangential one is the
-    position-angle difference (wrapped into (-180, 180] deg) over sigma_theta, the radial
-    one (rho_obs - rho_pred) / sigma_rho. The prior adds -ln P (T uniform over one
-    period of the walker's own P) and is 0 elsewhere inside its bounds.
+        Factor applied to the measurement sigmas: sqrt(reduced chi2) when above 1.
+    seed : int
+    warnings : list of str
     """
 
-    NAMES = ("ln_P", "T", "e", "ln_a", "cos_i", "Omega", "omega")
+    sample: PosteriorSample | None
+    model: object
+    elements: np.ndarray
+    parallax: np.ndarray | None
+    weighted: int
+    effective: float
+    priors: dict
+    gaussian: dict
+    fixed: dict
+    parallax_prior: tuple | None
+    sigma_scale: float
+    seed: int
+    warnings: list = field(default_factory=list)
 
-    t: np.ndarray
-    cos_theta: np.ndarray
-    sin_theta: np.ndarray
-    rho: np.ndarray
-    inv_sigma_theta: np.ndarray
-    inv_sigma_rho: np.ndarray
-    period_range: tuple
-    a_range: tuple
-    t_ref: float
-    angle_ref: tuple = (0.0, 0.0)
-    sigma_scale: float = 1.0
-
-    @classmethod
-    def from_document(cls, doc):
-        """The posterior for a result document: its fitted rows, period range and best T.
-
-        Rows with status 'used' or 'flipped' (theta + 180 deg) are the fit's final set;
-        outliers, excluded and rejected rows stay out.
-        """
-        from .result import elements_from_document
-
-        rows = [r for r in doc["residuals"] if r["status"] in ("used", "flipped")]
-        if len(rows) < 4:
-            raise InputError(f"{len(rows)} fitted measurements; sampling needs at least 4")
-        col = {k: np.array([r[k] for r in rows], float)
-               for k in ("epoch_yr", "theta_deg", "rho_arcsec", "sigma_theta_deg",
-                         "sigma_rho_arcsec")}
-        theta = np.radians(col["theta_deg"] + np.array([180.0 * (r["status"] == "flipped")
-                                                        for r in rows]))
-        reduced = float(doc["statistics"]["reduced_chi2"])
-        scale = math.sqrt(reduced) if reduced > 1.0 else 1.0
-        best = elements_from_document(doc)
-        return cls(t=col["epoch_yr"], cos_theta=np.cos(theta), sin_theta=np.sin(theta),
-                   rho=col["rho_arcsec"],
-                   inv_sigma_theta=1.0 / (scale * np.radians(col["sigma_theta_deg"])),
-                   inv_sigma_rho=1.0 / (scale * col["sigma_rho_arcsec"]),
-                   period_range=tuple(float(p) for p in doc["options"]["period_range_yr"]),
-                   a_range=(best.a_arcsec / _A_PRIOR_FACTOR, best.a_arcsec * _A_PRIOR_FACTOR),
-                   t_ref=best.periastron_yr,
-                   angle_ref=(math.radians(best.node_deg), math.radians(best.omega_deg)),
-                   sigma_scale=scale)
-
-    def priors(self):
-        """The priors in words, keyed by element."""
-        lo, hi = self.period_range
-        a_lo, a_hi = self.a_range
-        return {"P": f"log-uniform on [{lo:.6g}, {hi:.6g}] yr (the fit's search range)",
-                "T": "uniform over one period (density 1/P); reported in the period centred "
-                     "on the fit's T",
-                "e": f"uniform on [0, {E_MAX})",
-                "a": f"log-uniform on [{a_lo:.6g}, {a_hi:.6g}] arcsec (1/100 to 100 times the "
-                     "fit's a)",
-                "i": "uniform in cos i on [-1, 1] (isotropic orientation)",
-                "Omega": "uniform; reported in [0, 180) deg (node ambiguity without radial "
-                         "velocities)",
-                "omega": "uniform; reported in [0, 360) deg"}
-
-    def log_prior(self, q):
-        """Log prior density (up to a constant) of walker positions q, shape (n, 7)."""
-        q = np.atleast_2d(q)
-        ln_p, e, ln_a, cos_i = q[:, 0], q[:, 2], q[:, 3], q[:, 4]
-        inside = ((ln_p >= math.log(self.period_range[0]))
-                  & (ln_p <= math.log(self.period_range[1]))
-                  & (e >= 0.0) & (e < E_MAX) & (np.abs(cos_i) <= 1.0)
-                  & (ln_a >= math.log(self.a_range[0])) & (ln_a <= math.log(self.a_range[1]))
-                  & (np.abs(q[:, 1] - self.t_ref) < np.exp(ln_p))          # windows of two
-                  & (np.abs(q[:, 5] - self.angle_ref[0]) < 2.0 * np.pi)     # periods
-                  & (np.abs(q[:, 6] - self.angle_ref[1]) < 2.0 * np.pi))
-        return np.where(inside, -ln_p, -np.inf)
-
-    def log_likelihood(self, q):
-        """-chi2/2 of walker positions q, shape (n, 7) (must lie inside the prior)."""
-        q = np.atleast_2d(q)
-        period, t_peri, e = np.exp(q[:, 0:1]), q[:, 1:2], q[:, 2:3]
-        A, B, F, G = thiele_innes_from_campbell(np.exp(q[:, 3:4]), np.arccos(q[:, 4:5]),
-                                                q[:, 5:6], q[:, 6:7])
-        cos_E, sin_E = cos_sin_eccentric_anomaly((self.t - t_peri) * (2.0 * np.pi / period), e)
-        X = cos_E - e
-        Y = np.sqrt(1.0 - e * e) * sin_E
-        x = A * X + F * Y
-        y = B * X + G * Y
-        # theta_obs - theta_pred from the cross and dot products: wrapped by construction.
-        d_theta = np.arctan2(self.sin_theta * x - self.cos_theta * y,
-                             self.cos_theta * x + self.sin_theta * y)
-        r_theta = d_theta * self.inv_sigma_theta
-        r_rho = (self.rho - np.sqrt(x * x + y * y)) * self.inv_sigma_rho
-        return -0.5 * (np.einsum("ij,ij->i", r_theta, r_theta)
-                       + np.einsum("ij,ij->i", r_rho, r_rho))
-
-    def __call__(self, q):
-        """Log-posterior (up to a constant), vectorised: (n, 7) -> (n,).
-
-        Walkers are taken in blocks of about ``_BLOCK_ELEMENTS`` walker-points, which keeps
-        the temporary arrays in the processor's cache (measured: ~1.3 times faster than
-        one block of 256 walkers x 100 points, see benchmarks/bench_likelihood.py).
-        """
-        q = np.atleast_2d(q)
-        out = self.log_prior(q)
-        ok = np.flatnonzero(np.isfinite(out))
-        block = max(1, _BLOCK_ELEMENTS // self.t.size)
-        for start in range(0, ok.size, block):
-            rows = ok[start:start + block]
-            out[rows] += self.log_likelihood(q[rows])
-        return out
-
-    def coordinates(self, elements):
-        """Walker coordinates of a ``CampbellElements``, T and the angles moved by whole
-        periods to the middle of their windows."""
-        period = elements.period_yr
-        t_peri = self.t_ref + math.remainder(elements.periastron_yr - self.t_ref, period)
-        node, omega = (ref + math.remainder(math.radians(angle) - ref, 2.0 * math.pi)
-                       for ref, angle in zip(self.angle_ref,
-                                             (elements.node_deg, elements.omega_deg)))
-        return np.array([math.log(period), t_peri, elements.e, math.log(elements.a_arcsec),
-                         math.cos(math.radians(elements.i_deg)), node, omega])
-
-    def elements(self, q):
-        """Element draws (P, T, e, a, i, Omega, omega) [yr, Julian yr, -, arcsec, deg x3].
-
-        T is moved by whole periods into [t_ref - P/2, t_ref + P/2); Omega into
-        [0, 180) deg with omega shifted alike, omega into [0, 360) deg.
-        """
-        q = np.atleast_2d(q)
-        period = np.exp(q[:, 0])
-        t_peri = self.t_ref + np.mod(q[:, 1] - self.t_ref + 0.5 * period, period) - 0.5 * period
-        node, omega = normalise_node(q[:, 5], q[:, 6])
-        return np.column_stack([period, t_peri, q[:, 2], np.exp(q[:, 3]),
-                                np.degrees(np.arccos(np.clip(q[:, 4], -1.0, 1.0))),
-                                np.degrees(node), np.degrees(omega)])
+    @property
+    def method(self):
+        return "marginal" if isinstance(self.model, MarginalPosterior) else "direct"
 
 
-# ------------------------------------------------------------ result documents
-def _start_scales(doc, best):
-    """Start-ball scales in walker coordinates from the document's covariance."""
-    fallback = np.array([1e-3, 1e-3 * best.period_yr, 1e-3, 1e-3, 1e-3, 1e-3, 1e-3])
+def _start_scales(doc, best, names):
+    """Start-ball scales of the walker coordinates from the document's covariance."""
+    err = {k: math.nan for k in ELEMENT_KEYS}
     cov = doc.get("covariance")
-    if not cov:
-        return fallback
-    order = [cov["parameters"].index(k) for k in ELEMENT_KEYS]
-    err = np.sqrt(np.clip(np.diag(np.asarray(cov["matrix"], float))[order], 0.0, None))
-    scales = np.array([err[0] / best.period_yr, err[1], err[2], err[3] / best.a_arcsec,
-                       math.sin(math.radians(best.i_deg)) * math.radians(err[4]),
-                       math.radians(err[5]), math.radians(err[6])])
-    return np.where(np.isfinite(scales) & (scales > 0), scales, fallback)
+    if cov:
+        diag = np.diag(np.asarray(cov["matrix"], float))
+        err.update({k: math.sqrt(max(diag[j], 0.0)) for j, k in enumerate(cov["parameters"])
+                    if k in err})
+    scale = {"ln_P": err["P"] / best.period_yr, "T": err["T"], "e": err["e"],
+             "ln_a": err["a"] / best.a_arcsec,
+             "cos_i": math.sin(math.radians(best.i_deg)) * math.radians(err["i"]),
+             "Omega": math.radians(err["Omega"]), "omega": math.radians(err["omega"])}
+    fallback = {"T": 1e-3 * best.period_yr}
+    return np.array([scale[n] if np.isfinite(scale[n]) and scale[n] > 0
+                     else fallback.get(n, 1e-3) for n in names])
 
 
-def sample_document(doc, walkers=DEFAULT_WALKERS, steps=DEFAULT_STEPS, seed=0, progress=False):
-    """Sample the astrometric posterior of a fit's result document.
+def _internal_fixed(doc, direct):
+    """Held elements in the posterior's internal units (T Julian yr, angles rad)."""
+    from .reductions import to_julian_year
+    from .result import epoch_scale_of
 
-    Walkers start around the best elements and the document's alternatives.
+    fixed = {k: float(v) for k, v in ((doc.get("fit") or {}).get("fixed") or {}).items()}
+    if "T" in fixed:
+        fixed["T"] = float(to_julian_year(fixed["T"], epoch_scale_of(doc)))
+    if not direct:
+        return {k: v for k, v in fixed.items() if k in ("P", "T", "e")}
+    return {k: (math.radians(v) if k in ("i", "Omega", "omega") else v)
+            for k, v in fixed.items()}
+
+
+def _element_priors(doc, best, gaussian):
+    """ElementPriors of a document: period support, a support, the user's Gaussians."""
+    from .formatting import epoch_label
+    from .reductions import to_julian_year
+    from .result import epoch_scale_of
+
+    fit = doc.get("fit") or {}
+    fixed = dict(fit.get("fixed") or {})
+    bounds = fit.get("period_bounds")
+    if "P" in fixed:
+        period_range, source = (fixed["P"], fixed["P"]), "held"
+    elif bounds:
+        period_range, source = tuple(map(float, bounds)), "the period bounds, --period-range"
+    else:
+        period_range = tuple(float(p) for p in doc["options"]["period_range_yr"])
+        source = "the fit's search range"
+    internal = {k: v for k, v in gaussian.items() if k != "parallax"}
+    if "T" in internal:
+        mean, sigma = internal["T"]
+        internal["T"] = (float(to_julian_year(mean, epoch_scale_of(doc))), sigma)
+    return ElementPriors(period_range=period_range,
+                         a_range=(best.a_arcsec / _A_PRIOR_FACTOR,
+                                  best.a_arcsec * _A_PRIOR_FACTOR),
+                         gaussian=internal, period_source=source,
+                         epoch_label=epoch_label(epoch_scale_of(doc)),
+                         gaussian_given=dict(gaussian), fixed=tuple(fixed)), fixed
+
+
+def sample_document(doc, walkers=None, steps=DEFAULT_STEPS, seed=0, priors=None,
+                    parallax=None, progress=False):
+    """Sample the visual-orbit posterior of a fit's result document.
+
+    Parameters
+    ----------
+    doc : dict
+        Result document of a fit (residuals, elements, options, fit, covariance).
+    walkers : int, optional
+        Walkers of the ensemble (default ``VISUAL_WALKERS``).
+    steps : int
+        At most this many steps: the chain stops as soon as it is ``MIN_TAU_MULTIPLE``
+        autocorrelation times long (and the estimate has settled).
+    seed : int
+        Seeds the walkers, the Thiele-Innes draws, the resampling and the parallax draws
+        (independent streams).
+    priors : dict, optional
+        Gaussian priors name -> (mean, sigma) in the document's units (``priors``).
+    parallax : (float, float), optional
+        Parallax and its error [mas]: sampled with this Gaussian prior.
+    progress : bool
+        Show a progress bar on standard error.
 
     Returns
     -------
-    sample : PosteriorSample
-    posterior : AstrometricPosterior
+    VisualPosterior
     """
     from .result import elements_from_document
 
-    posterior = AstrometricPosterior.from_document(doc)
+    gaussian = dict(priors or {})
+    if parallax is not None and "parallax" in gaussian:
+        raise InputError("the parallax is given twice (--parallax and --prior parallax=...): "
+                         "give it once")
+    if parallax is None and "parallax" in gaussian:
+        parallax = gaussian.pop("parallax")
+    fixed_names = tuple((doc.get("fit") or {}).get("fixed") or {})
+    check_gaussian_priors(gaussian, fixed_names)
+    reduced = float(doc["statistics"]["reduced_chi2"])
+    scale = math.sqrt(reduced) if reduced > 1.0 else 1.0
+    positions = Positions.from_document(doc, scale)
     best = elements_from_document(doc)
-    starts = [posterior.coordinates(best)]
-    for alt in doc.get("alternatives") or []:
-        starts.append(posterior.coordinates(elements_from_document(
-            {"elements": alt["elements"], "_path": doc.get("_path", "result document")})))
-    sample = sample_posterior(posterior, starts, _start_scales(doc, best),
-                              AstrometricPosterior.NAMES, walkers=walkers, steps=steps,
-                              seed=seed, progress=progress)
-    return sample, posterior
+    element_priors, fixed_doc = _element_priors(doc, best, gaussian)
+    direct = any(k in fixed_names for k in _LINEAR_ELEMENTS)
+    fixed = _internal_fixed(doc, direct)
+    if direct:
+        model = DirectPosterior(positions, element_priors, fixed, best.periastron_yr,
+                                (math.radians(best.node_deg), math.radians(best.omega_deg)))
+    else:
+        model = MarginalPosterior(positions, element_priors, fixed, best.periastron_yr)
+    names = model.names
+    sample = None
+    if names:
+        starts = [model.coordinates(best)]
+        for alt in doc.get("alternatives") or []:
+            starts.append(model.coordinates(elements_from_document(
+                {"elements": alt["elements"], "_path": doc.get("_path", "result document")})))
+        sample = sample_posterior(model, starts, _start_scales(doc, best, names), names,
+                                  walkers=walkers or VISUAL_WALKERS, steps=steps, seed=seed,
+                                  progress=progress, stop_when_converged=True,
+                                  differential=True)
+        q = sample.draws()
+    else:
+        q = np.zeros((_IID_DRAWS, 0))
+    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(_DRAW_STREAM,)))
+    draws, log_w = model.draw(q, rng)
+    elements, effective = _resample(draws, log_w, rng)
+    plx = None
+    if parallax is not None:
+        prng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(_PARALLAX_STREAM,)))
+        plx = prng.normal(float(parallax[0]), float(parallax[1]), len(elements))
+    from .formatting import fixed as fixed_decimals
+    t_label = "; reported in the period centred on the fit's T"
+    words = element_priors.describe(fixed_doc, t_label, parallax)
+    result = VisualPosterior(sample, model, elements, plx, len(draws), effective, words,
+                             gaussian, fixed_doc, None if parallax is None else
+                             (float(parallax[0]), float(parallax[1])), scale, int(seed))
+    result.warnings.extend(sample.warnings if sample is not None else [])
+    if not names:
+        result.warnings.append("P, T and e are all held: the draws are independent draws of "
+                               "the Thiele-Innes constants, no chain was run.")
+    if effective < _LOW_EFFECTIVE * len(draws):
+        result.warnings.append(
+            f"uneven importance weights: the {len(draws)} draws count as "
+            f"{fixed_decimals(effective, 0)} "
+            f"independent ones; the intervals are less precise than their number suggests "
+            f"(the posterior is far from Gaussian in the Thiele-Innes constants, e.g. "
+            f"nearly face-on, or a narrow prior on a, i, Omega or omega). Run with more "
+            f"--steps or --walkers.")
+    return result
 
 
-def _sampling_meta(sample, posterior):
+def _resample(draws, log_w, rng):
+    """Systematic resampling of weighted draws into as many equally weighted ones.
+
+    Returns the draws and the effective number (sum w)^2 / sum w^2 of the weighted ones.
+    """
+    finite = np.isfinite(log_w)
+    if not finite.any():
+        raise FitError("no posterior draw has a finite weight: the priors exclude every "
+                       "orbit the data allow")
+    w = np.where(finite, np.exp(log_w - np.max(log_w[finite])), 0.0)
+    effective = float(w.sum() ** 2 / np.sum(w * w))
+    if np.all(w == w[0]):
+        return draws, effective
+    edges = np.cumsum(w / w.sum())
+    edges[-1] = 1.0
+    picks = np.searchsorted(edges, (rng.uniform() + np.arange(len(w))) / len(w), side="right")
+    return draws[np.minimum(picks, len(w) - 1)], effective
+
+
+def _sampling_meta(result):
+    sample = result.sample
+    meta = {"seed": int(result.seed), "priors": dict(result.priors), "method": result.method,
+            "sigma_scale": float(result.sigma_scale), "weighted_draws": int(result.weighted),
+            "effective_draws": float(result.effective),
+            "gaussian_priors": {k: {"mean": float(m), "sigma": float(s)}
+                                for k, (m, s) in result.gaussian.items()},
+            "fixed": {k: float(v) for k, v in result.fixed.items()}}
+    if result.parallax_prior is not None:
+        meta["parallax_prior"] = {"value": result.parallax_prior[0],
+                                  "error": result.parallax_prior[1], "unit": "mas"}
+    if sample is None:
+        return {**meta, "walkers": 0, "steps": 0, "burn": 0, "thin": 1,
+                "acceptance_fraction": None, "autocorr_time": {}, "converged": True}
     steps, walkers, _ = sample.chain.shape
-    return {"seed": int(sample.seed), "priors": posterior.priors(), "walkers": int(walkers),
-            "steps": int(steps), "burn": int(sample.burn), "thin": int(sample.thin),
-            "acceptance_fraction": float(sample.acceptance),
+    return {**meta, "walkers": int(walkers), "steps": int(steps), "burn": int(sample.burn),
+            "thin": int(sample.thin), "acceptance_fraction": float(sample.acceptance),
             "autocorr_time": {n: float(t) for n, t in zip(sample.names, sample.autocorr_time)},
-            "converged": bool(sample.converged), "sigma_scale": float(posterior.sigma_scale)}
+            "converged": bool(sample.converged)}
 
 
-def write_draws(path, sample, posterior, inputs=()):
-    """Save the element draws as an ECSV table; returns the number of draws.
+def write_draws(path, result, inputs=()):
+    """Save the draws as an ECSV table; returns the number of draws.
 
     Columns P [yr], T [Julian yr], e, a [arcsec], i, Omega, omega [deg] (as
-    ``result.read_draws`` reads them); the metadata hold the seed, priors, walkers, steps,
-    burn-in, thinning, acceptance, autocorrelation times and the convergence flag.
-    Written as a whole (``files.write_table``); onto one of ``inputs`` is refused.
+    ``result.read_draws`` reads them), and parallax [mas] when it was sampled; the
+    metadata hold the seed, priors, walkers, steps, burn-in, thinning, acceptance,
+    autocorrelation times, weights and the convergence flag. Written as a whole
+    (``files.write_table``); onto one of ``inputs`` is refused.
     """
     from astropy.table import Table
 
     from .files import write_table
-    draws = posterior.elements(sample.draws())
-    units = {"P": "yr", "T": "yr", "e": "", "a": "arcsec", "i": "deg", "Omega": "deg",
+    units = {"P": "yr", "T": "yr", "e": None, "a": "arcsec", "i": "deg", "Omega": "deg",
              "omega": "deg"}
-    table = Table([draws[:, k] for k in range(7)], names=ELEMENT_KEYS,
-                  units=[units[k] or None for k in ELEMENT_KEYS],
+    columns = [result.elements[:, k] for k in range(7)]
+    names, col_units = list(ELEMENT_KEYS), [units[k] for k in ELEMENT_KEYS]
+    if result.parallax is not None:
+        columns.append(result.parallax)
+        names.append("parallax")
+        col_units.append("mas")
+    table = Table(columns, names=names, units=col_units,
                   meta={"description": "posterior draws of the Campbell elements; T is a "
-                                       "decimal Julian year", **_sampling_meta(sample, posterior)})
+                                       "decimal Julian year", **_sampling_meta(result)})
     write_table(path, table, inputs=inputs)
-    return len(draws)
+    return len(result.elements)
 
 
 def _centred(draws, best):
@@ -536,18 +521,19 @@ def _centred(draws, best):
     return out
 
 
-def posterior_block(doc, sample, posterior, draws_file):
+def posterior_block(doc, result, draws_file):
     """The document's "posterior" block.
 
     Summary percentiles (median, 15.9th and 84.1th, 2.5th and 97.5th) are in the units of the elements block (T in
     the document's epoch scale); angles are summarised on the branch nearest the best
-    value, so an interval may cross 0 or 180 deg.
+    value, so an interval may cross 0 or 180 deg. A held element is given with its value
+    and "fixed": true; the sampled parallax under "parallax".
     """
     from .reductions import from_julian_year
     from .result import elements_from_document, epoch_scale_of
 
     best = np.array(elements_from_document(doc).as_tuple())
-    draws = _centred(posterior.elements(sample.draws()), best)
+    draws = _centred(result.elements, best)
     percentiles = np.percentile(draws, _PERCENTILES, axis=0)
     scale = epoch_scale_of(doc)
     summary = {}
@@ -556,21 +542,31 @@ def posterior_block(doc, sample, posterior, draws_file):
         if key == "T":
             values = from_julian_year(values, scale)
         low95, low, median, high, high95 = (float(v) for v in values)
-        summary[key] = {"median": median, "low": low, "high": high, "low95": low95,
-                        "high95": high95, "unit": doc["elements"][key].get("unit", "")}
+        entry = {"median": median, "low": low, "high": high, "low95": low95,
+                 "high95": high95, "unit": doc["elements"][key].get("unit", "")}
+        if key in result.fixed:
+            value = float(result.fixed[key])
+            entry.update(median=value, low=value, high=value, low95=value, high95=value,
+                         fixed=True)
         if key == "T":
-            summary[key]["scale"] = scale
-    return {"draws_file": draws_file, "n_draws": int(len(draws)),
-            **_sampling_meta(sample, posterior), "summary": summary,
-            "warnings": list(sample.warnings)}
+            entry["scale"] = scale
+        summary[key] = entry
+    if result.parallax is not None:
+        low95, low, median, high, high95 = (float(v) for v in
+                                            np.percentile(result.parallax, _PERCENTILES))
+        summary["parallax"] = {"median": median, "low": low, "high": high, "low95": low95,
+                               "high95": high95, "unit": "mas"}
+    return {"draws_file": draws_file, "n_draws": int(len(draws)), **_sampling_meta(result),
+            "summary": summary, "warnings": list(result.warnings)}
 
 
 def attach_posterior(doc, block):
-    """Put the block under doc["posterior"]; add "low"/"high" to each element entry and
-    the sampling warnings and notes to the document's lists (no key changed)."""
+    """Put the block under doc["posterior"]; add "low"/"high" to each sampled element's
+    entry and the sampling warnings and notes to the document's lists (no key changed)."""
     doc["posterior"] = block
     for key, entry in block["summary"].items():
-        doc["elements"][key].update(low=entry["low"], high=entry["high"])
+        if key in doc["elements"] and not entry.get("fixed"):
+            doc["elements"][key].update(low=entry["low"], high=entry["high"])
     doc["warnings"].extend(f"Posterior: {w}" for w in block["warnings"])
     if block["sigma_scale"] > 1.0:
         doc.setdefault("notes", []).append(
@@ -582,20 +578,33 @@ def format_posterior(block):
     """Plain-text summary of a "posterior" block."""
     from . import formatting as fmt
 
-    tau = ", ".join(f"{k} {v:.0f}" for k, v in block["autocorr_time"].items())
-    lines = [f"Posterior ({block['walkers']} walkers x {block['steps']} steps, burn-in "
-             f"{block['burn']}, thinning {block['thin']}: {block['n_draws']} draws, seed "
-             f"{block['seed']})",
-             f"  acceptance {block['acceptance_fraction']:.2f}; autocorrelation times "
-             f"[steps]: {tau}; " + ("converged" if block["converged"] else "NOT converged"),
+    tau = ", ".join(f"{k} {fmt.fixed(v, 0)}" for k, v in block["autocorr_time"].items())
+    if block["walkers"]:
+        head = (f"Posterior ({block['walkers']} walkers x {block['steps']} steps, burn-in "
+                f"{block['burn']}, thinning {block['thin']}: {block['n_draws']} draws, seed "
+                f"{block['seed']})")
+        chain = (f"  acceptance {fmt.fixed(block['acceptance_fraction'], 2)}; "
+                 f"autocorrelation times [steps]: {tau}; "
+                 + ("converged" if block["converged"] else "NOT converged"))
+    else:
+        head = f"Posterior (no chain: {block['n_draws']} independent draws, seed {block['seed']})"
+        chain = "  P, T and e held"
+    how = ("Thiele-Innes constants integrated out, importance-weighted to the priors below"
+           if block.get("method") == "marginal" else "all free elements sampled directly")
+    lines = [head, chain,
+             f"  {how}; effective draws {fmt.fixed(block['effective_draws'], 0)} of "
+             f"{block['weighted_draws']}",
              f"  {'element':<8}{'median':>14}  68% interval"]
     for key, s in block["summary"].items():
-        median, low, high = fmt.interval_parts(s["median"], s["low"], s["high"])
         unit = fmt.epoch_label(s["scale"]) if "scale" in s else s["unit"]
+        if s.get("fixed"):
+            lines.append(f"  {key:<8}{fmt.number(s['median'], 8):>14}  fixed {unit}".rstrip())
+            continue
+        median, low, high = fmt.interval_parts(s["median"], s["low"], s["high"])
         lines.append(f"  {key:<8}{median:>14}  [{low}, {high}] {unit}".rstrip())
     lines.append("  priors:")
-    lines += [f"    {k:<6} {v}" for k, v in block["priors"].items()]
+    lines += [f"    {k:<8} {v}" for k, v in block["priors"].items()]
     if block["sigma_scale"] > 1.0:
-        lines.append(f"  sigmas scaled by sqrt(reduced chi2) = {block['sigma_scale']:.2f}")
+        lines.append(f"  sigmas scaled by sqrt(reduced chi2) = {fmt.fixed(block['sigma_scale'], 2)}")
     lines.append(f"  draws: {block['draws_file'] or 'not saved (give --out DIR or --json PATH)'}")
     return "\n".join(lines)

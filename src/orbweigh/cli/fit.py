@@ -9,7 +9,7 @@ from pathlib import Path
 from ..files import check_target, write_atomic
 from .common import add_log_arguments, add_mass_arguments, check_mass_arguments, load_log
 
-__all__ = ["add_arguments", "run", "parse_fixed"]
+__all__ = ["add_arguments", "run", "parse_fixed", "parse_priors"]
 
 
 def add_arguments(parser):
@@ -66,8 +66,8 @@ def run(args):
     from ..solution import undetermined_advice
     from ..summary import format_result
 
-    check_mass_arguments(args)
     _check_sampling_arguments(args)
+    check_mass_arguments(args)
     _check_targets(args)
     options = FitOptions(period_bounds=tuple(args.period_range) if args.period_range else None,
                          loss=args.loss, flips=not args.no_flips,
@@ -219,7 +219,8 @@ def _payload(doc, where):
 
 # ------------------------------------------------------------------ posterior sampling
 def _add_sampling_arguments(parser):
-    from ..sampling import DEFAULT_STEPS, DEFAULT_WALKERS
+    from ..priors import PRIOR_NAMES
+    from ..sampling import DEFAULT_STEPS, DEFAULT_WALKERS, MIN_TAU_MULTIPLE, VISUAL_WALKERS
 
     parser.add_argument("--sample", action="store_true",
                         help="sample the posterior of the elements (emcee) and save the draws "
@@ -227,25 +228,45 @@ def _add_sampling_arguments(parser):
                              "<stem>.draws.ecsv beside --json PATH); masses then come from "
                              "the draws")
     parser.add_argument("--walkers", type=int, metavar="N",
-                        help=f"walkers of the ensemble, 14 to 1,000 (default {DEFAULT_WALKERS}); "
-                             "walkers x steps at most 2,000,000")
+                        help=f"walkers of the ensemble, 14 to 1,000 (default {VISUAL_WALKERS}; "
+                             f"with --rv {DEFAULT_WALKERS}); walkers x steps at most 2,000,000")
     parser.add_argument("--steps", type=int, metavar="N",
-                        help=f"steps of every walker, 2 to 1,000,000 (default {DEFAULT_STEPS})")
+                        help=f"steps of every walker, 2 to 1,000,000 (default {DEFAULT_STEPS}); "
+                             f"the visual-orbit posterior stops earlier, as soon as the chain "
+                             f"is {MIN_TAU_MULTIPLE} autocorrelation times long")
+    parser.add_argument("--prior", action="append", default=[], metavar="NAME=MEAN,SIGMA",
+                        help="Gaussian prior of the posterior (repeatable; NAME one of "
+                             f"{', '.join(PRIOR_NAMES)}; units as --fix, parallax in mas), "
+                             "e.g. --prior e=0.3,0.05; replaces that element's default "
+                             "prior within the same support")
     parser.add_argument("--quiet", action="store_true", help="no progress bar")
 
 
 def _check_sampling_arguments(args):
-    """Refuse sampling options that cannot work, before the (slow) fit."""
+    """Refuse sampling options that cannot work, before the (slow) fit; parse --prior
+    into args.priors (a parallax prior becomes the parallax when none is given)."""
     from ..errors import InputError
-    from ..sampling import DEFAULT_STEPS, DEFAULT_WALKERS
+    from ..priors import check_gaussian_priors
+    from ..sampling import DEFAULT_STEPS, DEFAULT_WALKERS, VISUAL_WALKERS
     from .common import MAX_SAMPLER_EVALUATIONS
 
+    args.priors = parse_priors(args.prior)
     if not args.sample:
-        if args.walkers is not None or args.steps is not None:
-            raise InputError("--walkers and --steps set up the posterior sampling; add "
-                             "--sample, or drop them")
+        if args.walkers is not None or args.steps is not None or args.priors:
+            raise InputError("--walkers, --steps and --prior set up the posterior sampling; "
+                             "add --sample, or drop them")
         return
-    args.walkers = DEFAULT_WALKERS if args.walkers is None else args.walkers
+    if args.rv and args.priors:
+        raise InputError("--prior applies to the visual-orbit posterior; with --rv the joint "
+                         "posterior keeps its own priors: drop --prior or --rv")
+    check_gaussian_priors(args.priors, tuple(parse_fixed(args.fix)))
+    if "parallax" in args.priors:
+        if args.parallax is not None:
+            raise InputError("the parallax is given twice (--parallax and --prior "
+                             "parallax=...): give it once")
+        args.parallax = list(args.priors.pop("parallax"))
+    args.walkers = (DEFAULT_WALKERS if args.rv else VISUAL_WALKERS) \
+        if args.walkers is None else args.walkers
     args.steps = DEFAULT_STEPS if args.steps is None else args.steps
     if args.walkers * args.steps > MAX_SAMPLER_EVALUATIONS:
         raise InputError(f"--walkers {args.walkers} x --steps {args.steps} = "
@@ -256,6 +277,29 @@ def _check_sampling_arguments(args):
         raise InputError("--sample saves its draws in a file beside the result document: "
                          "give --out DIR (draws in DIR/draws.ecsv), or --json PATH (draws in "
                          "<stem>.draws.ecsv beside PATH)")
+
+
+def parse_priors(items):
+    """{name: (mean, sigma)} from --prior NAME=MEAN,SIGMA items (checked by
+    ``priors.check_gaussian_priors``)."""
+    from ..errors import InputError
+
+    priors = {}
+    for item in items:
+        name, sep, value = item.partition("=")
+        name = name.strip()
+        parts = value.split(",")
+        try:
+            mean, sigma = (float(v) for v in parts) if len(parts) == 2 else (None, None)
+        except ValueError:
+            mean = sigma = None
+        if not sep or not name or mean is None:
+            raise InputError(f"--prior {item!r}: expected NAME=MEAN,SIGMA with two numbers, "
+                             "e.g. --prior e=0.3,0.05 or --prior parallax=40.7,0.4")
+        if name in priors:
+            raise InputError(f"--prior gives {name} twice; give each element once")
+        priors[name] = (mean, sigma)
+    return priors
 
 
 def _add_posterior(doc, args):
@@ -273,10 +317,12 @@ def _add_posterior(doc, args):
         where = Path(args.json)
         draws = where.with_name(where.stem + ".draws.ecsv")
     try:
-        sample, posterior = sample_document(doc, walkers=args.walkers, steps=args.steps,
-                                            seed=args.seed, progress=not args.quiet)
+        result = sample_document(doc, walkers=args.walkers, steps=args.steps, seed=args.seed,
+                                 priors=args.priors, progress=not args.quiet,
+                                 parallax=None if args.parallax is None else
+                                 tuple(args.parallax))
     except ValueError as exc:
         raise FitError(f"{doc['source']}: cannot sample the posterior: {exc}") from None
-    write_draws(draws, sample, posterior, _inputs(args))
-    attach_posterior(doc, posterior_block(doc, sample, posterior, draws.name))
+    write_draws(draws, result, _inputs(args))
+    attach_posterior(doc, posterior_block(doc, result, draws.name))
     doc["_path"] = str(where)
