@@ -4,11 +4,12 @@
 the rows ``check`` suspects and, in a small log, every single row. This script times the
 whole fit three ways, interleaved: with the hypotheses as the fit runs them ("with"),
 with every listed hypothesis searched whatever the null orbit explains ("eager", the
-behaviour before the gate in ``fitting._searched``), and with the null hypothesis alone
+behaviour before the gate ``fitting._null_suffices``), and with the null hypothesis alone
 ("without": the post-search flip correction still runs), on
 
 * a 10-point short arc of a 25-yr pair with one row turned by 180 deg (the case the
   pre-search exists for),
+* the same arc without the quadrant error,
 * 50- and 80-point logs of a well-covered orbit without a quadrant error,
 * a 50-point log with one quadrant error (a row ``check`` suspects),
 * an 80-point log with four quadrant errors (four suspects: 15 hypotheses).
@@ -49,6 +50,7 @@ def logs():
     return [
         ("10-pt arc, 1 flip", make_log(ARC, np.linspace(2005, 2015, 10), 0.5, 0.005, seed=1,
                                        flips=(6,))),
+        ("10-pt arc, clean", make_log(ARC, np.linspace(2005, 2015, 10), 0.5, 0.005, seed=1)),
         ("50-pt normal", make_log(WIDE, np.linspace(1980, 2020, 50), 0.5, 0.005, seed=2)),
         ("80-pt normal", make_log(WIDE, np.linspace(1960, 2020, 80), 0.5, 0.005, seed=3)),
         ("50-pt, 1 flip", make_log(WIDE, np.linspace(1980, 2020, 50), 0.5, 0.005, seed=4,
@@ -68,7 +70,7 @@ VARIANTS = ("with", "eager", "without")
 def timed(data, variant):
     """(wall seconds, solution, global searches run) of one fit."""
     counter = mock.Mock(wraps=fitting._search_under)
-    patches = {"with": {"FLIP_MIN_GAIN": fitting.FLIP_MIN_GAIN}, "eager": {"_suspects_explained": lambda *a: False},
+    patches = {"with": {"FLIP_MIN_GAIN": fitting.FLIP_MIN_GAIN}, "eager": {"_null_suffices": lambda *a: False},
                "without": {"_flip_hypotheses": _null_only}}[variant]
     started = time.perf_counter()
     with mock.patch.object(fitting, "_search_under", counter), \

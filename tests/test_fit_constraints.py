@@ -136,8 +136,18 @@ def test_short_arc_with_one_quadrant_error(seed):
     assert sol.reduced_chi2 < 3.0   # chi2 for 13 dof: 3 is beyond its 99.9 % point
     for key in ("P", "e", "a"):
         assert abs(sol.elements.to_keys()[key] - ARC[key]) < 4 * sol.errors[key], key
-    clean = fit_orbit(make_log(ARC, epochs, 0.5, 0.005, seed=seed))
+    from unittest import mock
+
+    from orbweigh import fitting
+    counter = mock.Mock(wraps=fitting._search_under)
+    with mock.patch.object(fitting, "_search_under", counter):
+        clean = fit_orbit(make_log(ARC, epochs, 0.5, 0.005, seed=seed))
     assert not (clean.status == "flipped").any()
+    # With a chi2 at most FLIP_MIN_GAIN no flip hypothesis can score lower (each flip adds
+    # FLIP_MIN_GAIN), so the ten single-row hypotheses are not searched (seed 1: chi2 4.8);
+    # above it (seed 3: chi2 25.5) they are.
+    gate = clean.chi2 <= fitting.FLIP_MIN_GAIN
+    assert gate == (seed == 1) and counter.call_count == (1 if gate else 11)
 
 
 WIDE = dict(P=24.0, T=2015.0, e=0.5, a=0.85, i=48.0, Omega=112.0, omega=250.0)

@@ -301,11 +301,12 @@ def _searched(points, data, usable, period_range, options):
     """Global search under the flip hypotheses; the best one wins.
 
     Each flipped point must pay for itself: the score is chi2 + FLIP_MIN_GAIN per flip.
-    The null hypothesis is searched first. In a log of more than ``_SMALL_LOG`` points one
-    quadrant error cannot drag the search far, so the other hypotheses (each a whole
-    global search) are searched only when a suspected row stays unexplained by the null
-    orbit after the usual correction (``_suspects_explained``); a small log always tries
-    them (measured in benchmarks/bench_flips.py).
+    The null hypothesis is searched first, and the others (each a whole global search)
+    only when it does not suffice (``_null_suffices``): when its chi2 is at most
+    FLIP_MIN_GAIN no flip can score lower; in a log of more than ``_SMALL_LOG`` points one
+    quadrant error cannot drag the search far, so the null orbit after the usual
+    correction must leave a suspected row unexplained (``_suspects_explained``). Measured
+    in benchmarks/bench_flips.py.
     Returns (refined minima of the winner, its flips, trials per search).
     """
     null = np.zeros(usable.size, bool)
@@ -314,8 +315,7 @@ def _searched(points, data, usable, period_range, options):
         return runs, null, n_trials
     suspects = _suspected_flips(data, usable)
     hypotheses = _flip_hypotheses(usable.size, suspects)[1:]
-    if not hypotheses or (usable.size > _SMALL_LOG
-                          and _suspects_explained(points, runs[0], suspects, options)):
+    if not hypotheses or _null_suffices(points, runs[0], suspects, options):
         return runs, null, n_trials
     best = (runs[0].chi2, runs, null)
     for flipped in hypotheses:
@@ -324,6 +324,15 @@ def _searched(points, data, usable, period_range, options):
         if score < best[0]:
             best = (score, runs, flipped)
     return best[1], best[2], n_trials
+
+
+def _null_suffices(points, found, suspects, options):
+    """Whether the null hypothesis's search ``found`` makes the others needless: its chi2
+    is at most FLIP_MIN_GAIN (no flip can score lower), or the log is larger than
+    ``_SMALL_LOG`` and the null orbit explains every suspect."""
+    if found.chi2 <= FLIP_MIN_GAIN:
+        return True
+    return points.t.size > _SMALL_LOG and _suspects_explained(points, found, suspects, options)
 
 
 def _suspects_explained(points, found, suspects, options):
