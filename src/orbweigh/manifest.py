@@ -47,6 +47,7 @@ from .elements import ELEMENT_KEYS, CampbellElements
 from .errors import InputError
 from .masses import MassInputError, check_mass_inputs
 from .reductions import epoch_unit, parse_declination, parse_epoch, parse_right_ascension
+from .tables import split_lines
 
 __all__ = ["SystemEntry", "MANIFEST_KEYS", "read_manifest"]
 
@@ -178,7 +179,7 @@ def _csv_rows(path, text):
     row is still read.
     """
     header, rows = None, []
-    for number, text_line in enumerate(_LINE_END.split(text), start=1):
+    for number, text_line in enumerate(split_lines(text), start=1):
         if not text_line.strip() or text_line.lstrip().startswith("#"):
             continue
         record, problem = _split_line(text_line, header)
@@ -203,9 +204,6 @@ def _csv_rows(path, text):
         raise InputError(f"{path}: the manifest is empty; expected a header line such as "
                          "'id,log,P,T,e,a,i,Omega,omega' and one row per system")
     return rows
-
-
-_LINE_END = re.compile(r"\r\n|\r|\n")
 
 
 def _split_line(text_line, header):
@@ -308,12 +306,17 @@ def _inside(entry, row, key):
     """Resolved path of a file named in column ``key``, refused when it leaves the folder."""
     folder = Path(entry.manifest).resolve().parent
     written = row[key]
-    target = (folder / written).resolve()  # resolves '..' and symbolic links
+    try:
+        target = (folder / written).resolve()  # resolves '..' and symbolic links
+        is_file = target.is_file()
+    except (OSError, ValueError) as exc:  # a NUL byte, a name too long, ...
+        raise _RowProblem(key, f"{written!r} is not a usable file name ({exc}); give the "
+                          "path of the file relative to the manifest") from None
     if not target.is_relative_to(folder):
         raise _RowProblem(key, f"{written!r} leads outside the manifest's folder ({folder}) "
                           f"to {target}; put the file inside that folder and give its path "
                           "relative to the manifest")
-    if not target.is_file():
+    if not is_file:
         raise _RowProblem(key, f"the file {written!r} does not exist (looked for {target})")
     return str(target)
 

@@ -37,7 +37,7 @@ from pathlib import Path
 
 from .errors import InputError, LogFormatError
 
-__all__ = ["read_bounded_bytes", "read_table", "collect_rows", "epochs_in_days",
+__all__ = ["read_bounded_bytes", "split_lines", "read_table", "collect_rows", "epochs_in_days",
            "parse_column_mapping", "is_number", "LogTable", "RowProblem", "RowError",
            "MISSING_MARKERS", "KEEP_FLAGS", "MAX_LOG_BYTES"]
 
@@ -180,7 +180,15 @@ def _other_delimiter(text, used):
 
 #: Largest log read [bytes]: a log of 100,000 rows is a few MB; a bigger file is a mistake.
 MAX_LOG_BYTES = 64 * 2 ** 20
-_LINE_END = re.compile(r"\r\n|\r|\n")   # only these end a line (not U+2028, form feed, ...)
+_LINE_END = re.compile(r"\r\n|\r|\n")
+
+
+def split_lines(text):
+    """The lines of a text file: only ``\\n``, ``\\r\\n`` and ``\\r`` end a line (not U+2028,
+    a form feed, U+0085 or the other ends of ``str.splitlines``), so line numbers are
+    those of any editor; no empty last line for a final line end."""
+    lines = _LINE_END.split(text)
+    return lines[:-1] if lines[-1] == "" else lines
 
 
 def _read_lines(path):
@@ -191,8 +199,7 @@ def _read_lines(path):
                              "decoded); save the log as plain text") from None
     except InputError as exc:
         raise LogFormatError(path, str(exc).removeprefix(f"{path}: ")) from None
-    lines = _LINE_END.split(text)
-    return lines[:-1] if lines[-1] == "" else lines
+    return split_lines(text)
 
 
 def _ecsv_header(path, lines):
