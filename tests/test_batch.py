@@ -273,7 +273,11 @@ def test_command_line(catalogue, tmp_path, capsys):
     # The command writes each flagged system's review page and the fit's full report, and
     # links the review page from the index (it links the report in turn).
     key = system_key("contradicted")
-    assert "Apparent orbit" in (out / "systems" / key / "report.html").read_text()
+    report = (out / "systems" / key / "report.html").read_text()
+    assert "Apparent orbit" in report
+    # Titled with the system's id; the log's absolute path appears nowhere on the page.
+    assert "<title>Orbit of contradicted</title>" in report
+    assert str(catalogue.parent) not in report and "Log contradicted.csv" in report
     assert "href='report.html'" in (out / "systems" / key / "review.html").read_text()
     assert f'href="systems/{key}/review.html"' in (out / "index.html").read_text()
     assert Table.read(out / "summary.ecsv")["link"][0] == f"systems/{key}/review.html"

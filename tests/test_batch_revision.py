@@ -121,3 +121,21 @@ def test_compare_scaled_circular_face_on_orbit():
     assert comp["max_separation_sigma"] == pytest.approx(5.0, rel=1e-9)
     assert comp["elements"]["a"]["n_sigma"] == pytest.approx(0.1 / 0.05, rel=1e-9)
     assert comp["window_yr"] == [2020.0, 2030.0]
+
+
+@pytest.mark.parametrize("scale, written, shown", [
+    ("besselian", 2012.0, "newer than 2012.000 (Besselian year)"),
+    ("julian", 2012.0, "newer than 2012.000 (Julian year)")])
+def test_reason_names_the_last_epoch_in_the_log_scale(scale, written, shown):
+    # A last epoch written 2012.0 in a Besselian log is J2011.998 inside (astropy's Time,
+    # byear -> jyear); the verdict's reason must give it back as written, in the log's scale.
+    from astropy.time import Time
+
+    last = float(Time(written, format="byear" if scale == "besselian" else "jyear").jyear)
+    t = np.linspace(2005.0, 2020.0, 16)
+    eph = ephemeris(OLD, t)
+    data = MeasurementSet.from_arrays(t, eph.theta_deg, eph.rho_arcsec, SIGMA_THETA, SIGMA_RHO,
+                                      epoch_scale=scale)
+    check = check_revision(OLD, data, last_epoch_yr=last)
+    assert shown in check.reason and "2011.998" not in check.reason
+    assert f"; {int((t > last).sum())} points newer" in check.reason

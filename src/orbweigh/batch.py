@@ -33,6 +33,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import math
 import os
 import re
 import sys
@@ -201,7 +202,7 @@ def _pages(record):
     """{file name: bytes}: the curator's review page, and the fit's report when fitted."""
     files = {}
     if record["document"] is not None:
-        files = _stage(record, "report", _report_files, record["document"]) or {}
+        files = _stage(record, "report", _report_files, record["document"], record["id"]) or {}
     links = [("report.html", "full fit report")] if "report.html" in files else []
     if record["document"] is not None:
         links.append(("result.json", "result document"))
@@ -305,15 +306,16 @@ def _compare(entry, doc, data, check):
                           old_errors=entry.previous_errors, new_errors=errors)
 
 
-def _report_files(doc):
-    """The system's report as {file name: bytes}, made in a scratch folder of the worker.
+def _report_files(doc, system_id):
+    """The system's report as {file name: bytes}, made in a scratch folder of the worker;
+    titled with the system's id (the log's path stays out of the page).
 
     Only the HTML (figures embedded) and its tables: separate figure files for 1000
     systems would cost more than the fits.
     """
     from .report import write_report
     with tempfile.TemporaryDirectory(prefix="orbweigh-report-") as scratch:
-        written = write_report(doc, scratch, formats=())
+        written = write_report(doc, scratch, formats=(), name=system_id)
         return {name: Path(path).read_bytes() for name, path in written.items()}
 
 
@@ -811,13 +813,20 @@ def _finish(out, record, digest, bar):
     return saved
 
 
+def _value_error(value, error):
+    from .formatting import value_error
+    return value_error(value, None if math.isnan(error) else error)
+
+
 def _announce(bar, record, resumed=False):
     """One line for a finished system, written above the progress bar."""
     if not bar.disable:
         s = record["summary"]
         what = record["verdict"] or ""
         if record["fitted"]:
-            what += f"; refit P = {s['P']:.4g} yr, e = {s['e']:.3f}, a = {s['a']:.4g}\""
+            what += "; refit " + ", ".join(
+                f"{k} = {_value_error(s[k], s[f'{k}_err'])}{unit}"
+                for k, unit in (("P", " yr"), ("e", ""), ("a", "\"")))
         elif record.get("fit_note"):
             what += f"; {record['fit_note']}"
         if record["error"]:

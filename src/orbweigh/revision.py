@@ -227,7 +227,7 @@ def check_revision(elements, data, last_epoch_yr=None, flips=True):
         p_systematic=float(_chi2_sf(s_t + s_r, dof_sys)) if n_new else float("nan"),
         max_abs_z=float(np.sqrt(np.max(np.maximum(oc["z_theta"][new] ** 2,
                                                   oc["z_rho"][new] ** 2)))) if n_new else 0.0)
-    verdict, reason = _decide(numbers)
+    verdict, reason = _decide(numbers, data.epoch_scale)
     numbers["decided_by"], numbers["p_decisive"] = _decisive(verdict, numbers)
     rows = [{"line": int(data.line[k]), "epoch_yr": float(data.epoch_yr[k]),
              "d_theta_deg": float(oc["d_theta_deg"][k]),
@@ -250,15 +250,18 @@ def _decisive(verdict, n):
     return name, n[name]
 
 
-def _decide(n):
-    """Apply the rule of the module notes; returns (verdict, reason)."""
+def _decide(n, scale):
+    """Apply the rule of the module notes; returns (verdict, reason), epochs in ``scale``
+    (the log's)."""
+    from .formatting import epoch
+    last = None if n["last_epoch_yr"] is None else epoch(n["last_epoch_yr"], scale,
+                                                         internal=True)
     if n["n_new"] == 0:
-        if n["last_epoch_yr"] is None:
+        if last is None:
             return "no new data", "the log has no usable measurement"
         return "no new data", ("no usable measurement is newer than the old orbit's last data "
-                               f"({n['last_epoch_yr']:.3f})")
-    which = ("all" if n["last_epoch_yr"] is None
-             else f"newer than {n['last_epoch_yr']:.3f}")
+                               f"({last})")
+    which = "all" if last is None else f"newer than {last}"
     numbers = (f"{n['n_new']} points {which}: chi2 = {n['chi2_new']:.1f} for {n['dof_new']} "
                f"dof (p = {n['p_value']:.2g}; sigmas x{ERROR_INFLATION:g}: "
                f"p = {n['p_value_inflated']:.2g}); offset and trend chi2 = "

@@ -103,12 +103,15 @@ def compare_documents(old_doc, new_doc, start_yr, stop_yr, n_draws=1000, seed=1,
                           start_yr, sigma if sigma is not None else np.nan,
                           element_errors(old_doc), element_errors(new_doc),
                           years=stop_yr - start_yr, n_epochs=n_epochs)
-    out = {"old": old_doc["_path"], "new": new_doc["_path"], "elements": {}}
+    from ..result import epoch_scale_of
+    out = {"old": old_doc["_path"], "new": new_doc["_path"], "elements": {},
+           "epoch_scale": epoch_scale_of(new_doc)}
     for key, e in comp["elements"].items():
         out["elements"][key] = {"old": e["old"], "new": e["new"], "difference": e["difference"],
                                 "sigma": e["sigma"] or None, "difference_sigma": e["n_sigma"]}
-    out["elements"]["T"]["note"] = ("Julian years; new T moved by whole periods to the "
-                                    "passage nearest the old T")
+    out["elements"]["T"]["note"] = ("Julian years (the text output writes T in the new "
+                                    "orbit's epoch scale, epoch_scale); new T moved by whole "
+                                    "periods to the passage nearest the old T")
     out.update(window_yr=comp["window_yr"], max_separation_arcsec=comp["max_separation_arcsec"],
                epoch_of_max_yr=comp["epoch_of_max_yr"],
                max_separation_sigma=(comp["max_separation_sigma"] if sigma is not None
@@ -128,29 +131,58 @@ def compare_documents(old_doc, new_doc, start_yr, stop_yr, n_draws=1000, seed=1,
     return out
 
 
+def _epoch(jyear, scale, label=False):
+    """An epoch given in Julian years, written in ``scale`` to 0.01 yr (0.1 d)."""
+    from ..formatting import epoch
+    return epoch(jyear, scale, decimals=1 if scale in ("jd", "mjd") else 2, label=label,
+                 internal=True)
+
+
+def _element_cell(key, value, error, scale):
+    """value ± error; T (Julian years inside) in the new orbit's epoch scale."""
+    from ..formatting import value_error
+    if key != "T":
+        return value_error(value, error)
+    from ..reductions import from_julian_year, interval_in_scale
+    return value_error(float(from_julian_year(value, scale)),
+                       None if error is None else float(interval_in_scale(error, scale)))
+
+
+def _difference(value, sigma):
+    """A difference at the decimal place of its combined sigma (4 digits without one)."""
+    from ..formatting import decimals_for, fixed, number
+    if isinstance(sigma, (int, float)) and sigma > 0:
+        return fixed(value, decimals_for(sigma))
+    return number(value, 4)
+
+
 def _text(c, old_errors, new_errors):
-    from ..formatting import number, value_error
+    from ..formatting import epoch_label, number
+    scale = c.get("epoch_scale", "julian")
     lines = [f"compare {c['old']} (old) with {c['new']} (new)",
              f"{'element':>8s} {'old':>22s} {'new':>22s} {'new-old':>11s} {'in sigma':>9s}"]
     for key, e in c["elements"].items():
         ns = "" if e["difference_sigma"] is None else f"{e['difference_sigma']:9.2f}"
-        lines.append(f"{key:>8s} {value_error(e['old'], old_errors.get(key)):>22s} "
-                     f"{value_error(e['new'], new_errors.get(key)):>22s} "
-                     f"{number(e['difference'], 4):>11s} {ns}")
-    lines.append("(Omega, omega after the common 180 deg shift; T in Julian years, the new T "
-                 "at the passage nearest the old one)")
+        lines.append(f"{key:>8s} {_element_cell(key, e['old'], old_errors.get(key), scale):>22s} "
+                     f"{_element_cell(key, e['new'], new_errors.get(key), scale):>22s} "
+                     f"{_difference(e['difference'], e.get('sigma')):>11s} {ns}")
+    lines.append(f"(Omega, omega after the common 180 deg shift; T as a {epoch_label(scale)}, "
+                 "the new T at the passage nearest the old one; T's difference in yr)")
     w = c["window_yr"]
     sig = ("" if c["max_separation_sigma"] is None else
            f", at most {c['max_separation_sigma']:.2f} x the new orbit's 1-sigma band")
-    lines.append(f"largest distance between the predictions over J{w[0]:.2f}-J{w[1]:.2f}: "
-                 f"{number(c['max_separation_arcsec'], 3)}\" (at J{c['epoch_of_max_yr']:.2f})"
-                 f"{sig}")
+    lines.append(f"largest distance between the predictions over {_epoch(w[0], scale)} to "
+                 f"{_epoch(w[1], scale, label=True)}: "
+                 f"{number(c['max_separation_arcsec'], 3)}\" (at "
+                 f"{_epoch(c['epoch_of_max_yr'], scale)}){sig}")
     lines.append(c["sigma_source"])
     if "mass_difference_msun" in c:
         m = c["mass_difference_msun"]
         ns = "" if m["difference_sigma"] is None else f" ({m['difference_sigma']:.2f} sigma)"
+        comb = (abs(m["difference"] / m["difference_sigma"]) if m["difference_sigma"]
+                else None)
         lines.append(f"total mass: {number(m['old'])} -> {number(m['new'])} M_sun, difference "
-                     f"{number(m['difference'])}{ns}")
+                     f"{_difference(m['difference'], comb)}{ns}")
     return "\n".join(lines)
 
 
@@ -175,11 +207,14 @@ def _figure(path, old_doc, new_doc, comp):
         sky.set_xlabel("East  \N{LEFTWARDS ARROW}  [arcsec]")
         sky.set_ylabel("North [arcsec]")
         sky.legend(loc="best")
-        w = comp["window_yr"]
+        from ..formatting import epoch_label
+        from ..reductions import from_julian_year
+        w, scale = comp["window_yr"], comp["epoch_scale"]
         t = np.linspace(w[0], w[1], 401)
         a, b = ephemeris(old, t), ephemeris(new, t)
-        sep.plot(t, np.hypot(a.x_arcsec - b.x_arcsec, a.y_arcsec - b.y_arcsec), color=ORBIT)
-        sep.set_xlabel("epoch [Julian year]")
+        sep.plot(from_julian_year(t, scale), np.hypot(a.x_arcsec - b.x_arcsec,
+                                                      a.y_arcsec - b.y_arcsec), color=ORBIT)
+        sep.set_xlabel(f"epoch [{epoch_label(scale)}]")
         sep.set_ylabel("|new - old| predicted position [arcsec]")
     save_figure(fig, Path(path).with_suffix(""), [fmt])
 
