@@ -217,3 +217,14 @@ def test_symlinked_manifest_folder_still_confines(folder, tmp_path):
     path = _write(folder, "id,log\nok,a.csv\nout,../outside.csv\n")
     ok, out = read_manifest(link / path.name)
     assert ok.problem is None and "outside" in out.problem
+
+
+def test_batch_command_refuses_repeated_ids_before_writing(folder, tmp_path, capsys):
+    from orbweigh.cli.main import main
+    path = _write(folder, "\ufeffid,log\nA,a.csv\nB,a.csv\nA,alias.csv\n")   # with a BOM
+    out = tmp_path / "out"
+    assert main(["batch", str(path), "--out", str(out), "--workers", "1"]) == 2
+    err = capsys.readouterr().err
+    assert err.startswith(f"orbweigh batch: error: {path}: ids must be unique")
+    assert "id 'A' on line 2 and line 4" in err and "Traceback" not in err
+    assert not out.exists()
