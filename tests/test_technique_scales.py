@@ -134,3 +134,18 @@ def test_cli_prints_factors_and_per_technique_rows(tmp_path, capsys):
     assert main(["fit", str(log)]) == 0
     out = capsys.readouterr().out
     assert "By technique" in out and "sigma factor" not in out
+
+
+def test_stated_factor_error_matches_the_spread_over_independent_logs():
+    # 12 independent logs: the recovered factors scatter about the planted ones as their
+    # stated errors say. 24 z-values: for a correct error their sum of squares is
+    # chi-square with 24 dof, below 0.36 x 24 with probability 0.0017 and above 2.25 x 24
+    # with 0.0004 (scipy.stats.chi2), so their rms lies in [0.6, 1.5]. Measured: 1.02.
+    z = []
+    for seed in range(100, 112):
+        sol = fit_orbit(_log({"micrometer": 30, "speckle": 30}, seed=seed),
+                        FitOptions(technique_scales=True))
+        for name, f in sol.statistics["technique_scales"]["factors"].items():
+            z.append((f["factor"] - WRONG_BY[name]) / f["error"])
+    rms = float(np.sqrt(np.mean(np.square(z))))
+    assert 0.6 < rms < 1.5, z
