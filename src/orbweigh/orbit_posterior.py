@@ -218,7 +218,8 @@ class MarginalPosterior:
 
     def _nonlinear(self, q):
         """(period, t_peri, e) columns, shape (n,), from walker positions (n, k)."""
-        q = np.asarray(q, float).reshape(-1, len(self.names))
+        q = np.asarray(q, float)
+        q = q.reshape(len(q), len(self.names))
         col = dict(zip(self.names, q.T))
         n = q.shape[0]
         period = np.exp(col["ln_P"]) if "ln_P" in col else np.full(n, self.fixed["P"])

@@ -21,7 +21,7 @@ import numpy as np
 from .elements import ELEMENT_KEYS
 from .errors import FitError, InputError
 from .orbit_posterior import DirectPosterior, MarginalPosterior, Positions
-from .priors import ElementPriors, check_gaussian_priors
+from .priors import E_MAX, ElementPriors, check_gaussian_priors
 
 __all__ = ["PosteriorSample", "VisualPosterior", "sample_posterior", "sample_document",
            "write_draws", "posterior_block", "attach_posterior",
@@ -308,7 +308,11 @@ def _start_scales(doc, best, names):
              "cos_i": math.sin(math.radians(best.i_deg)) * math.radians(err["i"]),
              "Omega": math.radians(err["Omega"]), "omega": math.radians(err["omega"])}
     fallback = {"T": 1e-3 * best.period_yr}
-    return np.array([scale[n] if np.isfinite(scale[n]) and scale[n] > 0
+    # a loose orbit's covariance errors can exceed the prior's support; the start needs
+    # only a ball of the right shape near the best orbit
+    cap = {"ln_P": 0.5, "T": 0.1 * best.period_yr, "e": 0.2, "ln_a": 0.5, "cos_i": 0.3,
+           "Omega": 0.5, "omega": 0.5}
+    return np.array([min(scale[n], cap[n]) if np.isfinite(scale[n]) and scale[n] > 0
                      else fallback.get(n, 1e-3) for n in names])
 
 
@@ -410,6 +414,7 @@ def sample_document(doc, walkers=None, steps=DEFAULT_STEPS, seed=0, priors=None,
         for alt in doc.get("alternatives") or []:
             starts.append(model.coordinates(elements_from_document(
                 {"elements": alt["elements"], "_path": doc.get("_path", "result document")})))
+        starts = [_into_support(q, names, element_priors) for q in starts]
         sample = sample_posterior(model, starts, _start_scales(doc, best, names), names,
                                   walkers=walkers or VISUAL_WALKERS, steps=steps, seed=seed,
                                   progress=progress, stop_when_converged=True,
@@ -419,6 +424,9 @@ def sample_document(doc, walkers=None, steps=DEFAULT_STEPS, seed=0, priors=None,
         q = np.zeros((_IID_DRAWS, 0))
     rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(_DRAW_STREAM,)))
     draws, log_w = model.draw(q, rng)
+    for key, value in fixed_doc.items():     # exactly the held value, no unit round trip
+        draws[:, ELEMENT_KEYS.index(key)] = fixed["T"] if key == "T" and "T" in fixed \
+            else value
     elements, effective = _resample(draws, log_w, rng)
     plx = None
     if parallax is not None:
@@ -443,6 +451,19 @@ def sample_document(doc, walkers=None, steps=DEFAULT_STEPS, seed=0, priors=None,
             f"nearly face-on, or a narrow prior on a, i, Omega or omega). Run with more "
             f"--steps or --walkers.")
     return result
+
+
+def _into_support(q, names, priors):
+    """A start point moved into the prior's support: a fit may end beyond the searched
+    periods or at e up to 0.995 (the refinement's bound)."""
+    q = np.array(q, float)
+    lo, hi = np.log(priors.period_range)
+    margin = 1e-3 * (hi - lo)
+    for name, (low, high) in (("ln_P", (lo + margin, hi - margin)), ("e", (0.0, E_MAX - 0.01))):
+        if name in names:
+            k = names.index(name)
+            q[k] = min(max(q[k], low), high)
+    return q
 
 
 def _resample(draws, log_w, rng):
