@@ -46,9 +46,10 @@ def parallax_mas(doc):
 def mass_draws(doc, draws, seed):
     """Total mass and parallax for each posterior draw, or None without a parallax.
 
-    The parallax of each draw is drawn from the normal distribution of the document's
-    measured parallax (seeded); draws with a non-positive parallax have no mass and are
-    dropped, as the third law has no meaning there.
+    When the posterior sampled this very parallax with the elements (``fit --sample
+    --parallax``), each draw's own parallax is used; else it is drawn from the normal
+    distribution of the document's measured parallax (seeded). Draws with a non-positive
+    parallax have no mass and are dropped, as the third law has no meaning there.
 
     Returns
     -------
@@ -58,8 +59,12 @@ def mass_draws(doc, draws, seed):
     plx = parallax_mas(doc)
     if draws is None or plx is None:
         return None
-    rng = np.random.default_rng(seed)
-    plx_draws = rng.normal(plx[0], plx[1], size=len(draws))
+    prior = (doc.get("posterior") or {}).get("parallax_prior")
+    if prior and (float(prior["value"]), float(prior["error"])) == plx:
+        # the same seed picks the same rows as posterior_draws(doc, seed)
+        plx_draws = element_draws(doc, MAX_DRAWS, seed, with_parallax=True)[:len(draws), 7]
+    else:
+        plx_draws = np.random.default_rng(seed).normal(plx[0], plx[1], size=len(draws))
     keep = plx_draws > 0
     P, a = draws[keep, 0], draws[keep, 3]
     return {"mass_msun": total_mass_msun(a, plx_draws[keep], P),
