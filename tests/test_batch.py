@@ -105,7 +105,8 @@ def test_verdicts_on_the_synthetic_catalogue(full_run):
     assert drift["decided_by"] in ("p_value", "p_systematic")
     assert rows["contradicted"]["decided_by"] == "p_value_inflated"
     index = (out / "index.html").read_text()
-    assert f"<td>{float(drift['p_decisive']):.2g} (" in index
+    p = float(drift["p_decisive"])
+    assert f"<td class='num' data-value='{p!r}'>{p:.2g} <small>(" in index
     # summary.tex: one row per refitted system, in summary order, the id as its name.
     tex = (out / "summary.tex").read_text()
     assert tex.index("contradicted &") < tex.index("drifting &") < tex.index("fresh &")

@@ -10,6 +10,8 @@ import dataclasses
 import json
 import math
 import re
+import shutil
+import subprocess
 from html.parser import HTMLParser
 
 import numpy as np
@@ -257,3 +259,94 @@ def test_planted_problems_show_on_the_page(batch):
                  "flipped: 1 (line 7)", "outliers: 1 (line 10)"):
         assert text in rows["planted"]["warnings"] and text in page
     assert "\u26a0 4 warnings" in page
+
+
+class _Index(HTMLParser):
+    """Header cells (data-type, has a button) and, per body row, (data-value, text) cells."""
+
+    def __init__(self):
+        super().__init__()
+        self.heads, self.rows, self.scripts = [], [], []
+        self._where, self._cell, self._script = None, None, False
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if tag in ("thead", "tbody"):
+            self._where = tag
+        elif tag == "th":
+            self.heads.append({"type": attrs.get("data-type"), "button": False})
+        elif tag == "button" and self.heads:
+            self.heads[-1]["button"] = True
+        elif tag == "tr" and self._where == "tbody":
+            self.rows.append([])
+        elif tag == "td":
+            self._cell = [attrs.get("data-value"), ""]
+            self.rows[-1].append(self._cell)
+        elif tag == "script":
+            self._script = True
+            self.scripts.append("")
+
+    def handle_endtag(self, tag):
+        if tag == "script":
+            self._script = False
+
+    def handle_data(self, data):
+        if self._script:
+            self.scripts[-1] += data
+        elif self._cell is not None:
+            self._cell[1] += data
+
+
+def test_index_numbers_carry_values_and_sort_offline(batch):
+    root, out, rows = batch
+    text = (out / "index.html").read_text(encoding="utf-8")
+    assert str(root) not in text and "<link" not in text and "src=" not in text
+    index = _Index()
+    index.feed(text)
+    assert all(h["button"] for h in index.heads)          # every header sorts, by keyboard
+    numeric = [k for k, h in enumerate(index.heads) if h["type"] == "num"]
+    assert len(numeric) >= 12
+    summary = Table.read(out / "summary.ecsv")
+    assert [r[1][1] for r in index.rows] == list(summary["id"])
+    for row, srow in zip(index.rows, summary):
+        for k in numeric:
+            assert row[k][0] is not None              # numeric cells all carry data-value
+        # the p-value that decided, as in the summary (the full value, not the rounded)
+        p_col = 5
+        if np.isfinite(srow["p_decisive"]):
+            assert float(row[p_col][0]) == srow["p_decisive"]
+            assert row[p_col][1].startswith(f"{srow['p_decisive']:.2g}")
+        else:
+            assert row[p_col][0] == ""
+    [script] = index.scripts
+    assert "function sortBy" in script and "data-value" in script and "aria-sort" in script
+    # planted bad line, flip, outlier and flagged line: visible in the index row
+    planted = index.rows[list(summary["id"]).index("planted")]
+    warnings = "".join(c[1] for c in planted)
+    assert "\u26a0 4" in warnings
+    for text in ("rejected: 1 (line 4)", "excluded by flag: 1 (line 13)",
+                 "flipped: 1 (line 7)", "outliers: 1 (line 10)"):
+        assert text in warnings
+
+
+@pytest.mark.skipif(shutil.which("chromium") is None, reason="needs headless chromium")
+def test_sort_script_in_a_browser(batch, tmp_path):
+    """Click the chi2/dof header twice in headless Chromium: ascending, then descending,
+    the systems without a value last both times, in their summary order."""
+    _, out, rows = batch
+    probe = ("<script>var t=document.getElementById('systems'),h=t.tHead.rows[0].cells,"
+             "o=[];function ids(){return Array.prototype.map.call(t.tBodies[0].rows,"
+             "function(r){return r.cells[1].textContent}).join(',')}"
+             "h[4].querySelector('button').click();o.push(ids());"
+             "h[4].querySelector('button').click();o.push(ids()+' '+h[4].getAttribute("
+             "'aria-sort'));document.title='SORTED:'+o.join('|');</script></body>")
+    page = tmp_path / "index.html"
+    page.write_text((out / "index.html").read_text().replace("</body>", probe))
+    dom = subprocess.run(["chromium", "--headless", "--no-sandbox", "--dump-dom",
+                          page.as_uri()], capture_output=True, text=True, timeout=120).stdout
+    ascending, descending = re.search(r"<title>SORTED:(.*?)</title>", dom).group(1).split("|")
+    chi2 = {k: float(v["reduced_chi2_new"]) for k, v in rows.items()}
+    tested = sorted((k for k in chi2 if np.isfinite(chi2[k])), key=chi2.get)
+    untested = [k for k in rows if not np.isfinite(chi2[k])]   # kept in summary order
+    assert ascending.split(",")[:len(tested)] == tested
+    assert descending == ",".join(tested[::-1] + untested) + " descending"

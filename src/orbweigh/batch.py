@@ -20,7 +20,7 @@ interrupted batch leaves no half-written file)::
     systems/<key>/batch.json    the record: verdict, numbers, comparison, errors, hash
     summary.ecsv, summary.csv   one row per system, most urgent first
     summary.tex                 the refitted orbits and masses, one LaTeX table
-    index.html                  the same, linking each system's report
+    index.html                  the same, linking each system's page (report.batch_index)
 
 ``resume`` skips a system whose ``batch.json`` says done with the same input hash
 (SHA-256 of the manifest row, the bytes of its log (and RV log), the batch options and
@@ -50,7 +50,7 @@ from .files import write_atomic
 from .manifest import read_manifest
 
 __all__ = ["BatchOptions", "system_seed", "system_key", "input_hash", "process_system",
-           "run_batch", "URGENCY"]
+           "run_batch", "URGENCY", "urgency_class"]
 
 #: Order of the summary: most urgent first ('failed' = no verdict because of an error).
 URGENCY = ("contradicted", "drifting", "failed", "no previous orbit", "no new data",
@@ -444,13 +444,20 @@ def _summary_row(record):
     return row
 
 
-def _urgency(summary):
-    """Sort key: verdict class (``URGENCY``), then reduced chi2 of the new data, worst first."""
+def urgency_class(summary):
+    """A system's class in ``URGENCY``: its verdict, but 'failed' for a failure unless the
+    verdict is contradicted or drifting (reached before the failure)."""
     verdict = summary["verdict"] if summary["verdict"] else "failed"
     if summary["status"] == "failed" and verdict not in ("contradicted", "drifting"):
         verdict = "failed"
+    return verdict
+
+
+def _urgency(summary):
+    """Sort key: verdict class (``URGENCY``), then reduced chi2 of the new data, worst first."""
     red = summary["reduced_chi2_new"]
-    return URGENCY.index(verdict), -(red if np.isfinite(red) else 0.0), summary["id"]
+    return (URGENCY.index(urgency_class(summary)), -(red if np.isfinite(red) else 0.0),
+            summary["id"])
 
 
 def _summary_table(records):
@@ -488,7 +495,9 @@ def _write_summary(out, records, manifest, options, interrupted=False):
         buffer = io.StringIO()
         table.write(buffer, format=fmt)
         write_atomic(out / name, buffer.getvalue())
-    write_atomic(out / "index.html", _index_html(table, manifest, options))
+    from .report.batch_index import index_page
+    write_atomic(out / "index.html", index_page(table, manifest, options.seed, URGENCY,
+                                                [urgency_class(row) for row in table]))
     write_atomic(out / "summary.tex", _summary_latex(out, table))
     return table
 
@@ -501,70 +510,6 @@ def _summary_latex(out, table):
     docs = [json.loads((out / "systems" / system_key(i) / "result.json").read_text("utf-8"))
             for i in fitted]
     return elements_table_latex(docs, names=fitted)
-
-
-def _index_html(table, manifest, options):
-    from html import escape
-
-    from .formatting import fixed, number
-
-    def cell(row, name, spec):
-        """``spec``: 'fN' for N decimals, 'gN' for N significant digits (the formatter)."""
-        value = float(row[name])
-        if not np.isfinite(value):
-            return ""
-        return fixed(value, int(spec[1:])) if spec[0] == "f" else number(value, int(spec[1:]))
-
-    head = ("<tr><th>#</th><th>system</th><th>verdict</th><th>new points</th>"
-            "<th>&chi;&sup2;/dof new</th><th>p that decided (test)</th><th>P [yr]</th>"
-            "<th>e</th><th>a [&Prime;]</th><th>max &Delta; element [&sigma;]</th>"
-            "<th>max separation, next 10 yr [&Prime;]</th><th>[&sigma;]</th>"
-            "<th>mass [M&#8857;]</th><th>warnings</th><th>error</th></tr>")
-    lines = []
-    for row in table:
-        name = escape(row["id"])
-        name = f'<a href="{escape(row["link"])}">{name}</a>'
-        verdict = (f'<span title="{escape(row["reason"])}">'
-                   f'{escape(row["verdict"] or row["status"])}</span>')
-        lines.append("<tr>" + "".join(f"<td>{c}</td>" for c in (
-            row["rank"], name, verdict, row["n_new"] or "",
-            cell(row, "reduced_chi2_new", "f2"), _decisive_cell(row),
-            cell(row, "P", "g4"), cell(row, "e", "f3"), cell(row, "a", "g4"),
-            cell(row, "max_element_change_sigma", "f1"),
-            cell(row, "max_separation_arcsec", "g3"),
-            cell(row, "max_separation_sigma", "f1"), cell(row, "mass_msun", "g3"),
-            _warning_mark(row), escape(row["error"]))) + "</tr>")
-    counts = {v: int(np.sum(table["verdict"] == v)) for v in URGENCY if len(table)}
-    tally = ", ".join(f"{n} {v}" for v, n in counts.items() if n)
-    return (f"<!DOCTYPE html>\n<html><head><meta charset='utf-8'><title>orbweigh batch: "
-            f"{escape(Path(manifest).name)}</title>\n<style>body{{font-family:sans-serif}}"
-            "table{border-collapse:collapse}td,th{border:1px solid #999;padding:2px 6px;"
-            "font-size:90%}.warn{color:#b35900;font-weight:bold}</style></head><body>\n"
-            f"<h1>Batch of {escape(str(manifest))}</h1>\n<p>{_count(len(table), 'system')}, most urgent "
-            f"first: {escape(tally)}. Batch seed {options.seed}. Verdict rule: see "
-            "orbweigh.revision (chi&sup2; tests at the 1 % level; contradicted = rejected even "
-            f"with sigmas tripled).</p>\n<table>\n{head}\n" + "\n".join(lines)
-            + "\n</table></body></html>\n")
-
-
-_TEST_NAMES = {"p_value": "&chi;&sup2;", "p_value_inflated": "&chi;&sup2;, &sigma;&times;3",
-               "p_systematic": "offset and trend"}
-
-
-def _decisive_cell(row):
-    if not np.isfinite(row["p_decisive"]):
-        return ""
-    from .formatting import number
-    return f'{number(float(row["p_decisive"]), 2)} ({_TEST_NAMES.get(row["decided_by"], "")})'
-
-
-def _warning_mark(row):
-    """A visible mark with the count; the full text on hover and below it."""
-    from html import escape
-    if not row["n_warnings"]:
-        return ""
-    return (f'<span class="warn" title="{escape(row["warnings"])}">&#9888; '
-            f'{row["n_warnings"]}</span> <small>{escape(row["warnings"])}</small>')
 
 
 # ----------------------------------------------------------------------------- execution

@@ -1,0 +1,170 @@
+"""The batch's ``index.html``: one row a system, most urgent first, sortable offline.
+
+Self-contained: inline style (the review pages' verdict classes) and a small inline script
+that sorts the table by any column without a server - numbers by their ``data-value``
+(the full value; empty cells last whichever the direction), text alphabetically, the
+verdict by urgency. The column headers are buttons, so they sort from the keyboard too
+(Tab, then Enter or Space), and each says its order in ``aria-sort``.
+"""
+from __future__ import annotations
+
+from html import escape
+from pathlib import Path
+
+import numpy as np
+
+from .. import formatting as fm
+from .review import CSS, TEST_NAMES, p_text, verdict_badge
+
+__all__ = ["index_page", "COLUMNS"]
+
+#: (summary column, header, unit, decimals 'fN' / significant digits 'gN') of the numbers.
+COLUMNS = (("n_new", "new points", "", "i"),
+           ("reduced_chi2_new", "\u03c7\u00b2/dof new", "", "f2"),
+           ("p_decisive", "p that decided (test)", "", "p"),
+           ("P", "P", "yr", "g4"), ("e", "e", "", "f3"), ("a", "a", "\u2033", "g4"),
+           ("max_element_change_sigma", "largest element change", "\u03c3", "f1"),
+           ("max_separation_arcsec", "largest separation in 10 yr", "\u2033", "g3"),
+           ("max_separation_sigma", "largest separation", "\u03c3", "f1"),
+           ("mass_msun", "total mass", "M\u2609", "g3"))
+
+_EXTRA_CSS = """
+body{max-width:none;margin:1rem 1.2rem} table.index{font-size:.82rem}
+table.index th{position:sticky;top:0;z-index:1;vertical-align:bottom;white-space:normal;
+ max-width:7.5rem}
+table.index th button{font:inherit;font-weight:600;color:inherit;background:none;border:0;
+ padding:0;cursor:pointer;text-align:inherit} table.index th button:focus-visible{
+ outline:2px solid #004488;outline-offset:2px}
+table.index th[aria-sort=ascending] button::after{content:" \\25B2"}
+table.index th[aria-sort=descending] button::after{content:" \\25BC"}
+table.index tbody tr:nth-child(even) td{background:#f7f9fb}
+table.index tbody tr:hover td{background:#eef3f7} td.warnings-cell{max-width:26rem}
+td.warnings-cell small{color:#5a4a2a} .unit{font-weight:400;color:#5a6b7b}
+td.error-cell{max-width:22rem;color:#7a2334} .tally .badge{margin-right:.3rem}
+"""
+
+# Sorts the table's body by the clicked column; data-value cells numerically, the rest as
+# text; empty values last in both directions; stable, so ties keep the urgency order.
+_SCRIPT = """
+(function () {
+  var table = document.getElementById("systems");
+  var heads = table.tHead.rows[0].cells;
+  function key(row, col, numeric) {
+    var cell = row.cells[col];
+    if (!numeric) { return cell.textContent.trim().toLowerCase(); }
+    var v = parseFloat(cell.getAttribute("data-value"));
+    return isNaN(v) ? null : v;
+  }
+  function sortBy(col) {
+    var th = heads[col], numeric = th.getAttribute("data-type") === "num";
+    var dir = th.getAttribute("aria-sort") === "ascending" ? -1 : 1;
+    var body = table.tBodies[0];
+    var rows = Array.prototype.slice.call(body.rows).map(function (r, k) {
+      return {row: r, key: key(r, col, numeric), k: k};
+    });
+    rows.sort(function (a, b) {
+      if (a.key === null || a.key === "") { return (b.key === null || b.key === "") ? a.k - b.k : 1; }
+      if (b.key === null || b.key === "") { return -1; }
+      if (a.key < b.key) { return -dir; }
+      if (a.key > b.key) { return dir; }
+      return a.k - b.k;
+    });
+    rows.forEach(function (r) { body.appendChild(r.row); });
+    for (var j = 0; j < heads.length; j++) { heads[j].removeAttribute("aria-sort"); }
+    th.setAttribute("aria-sort", dir === 1 ? "ascending" : "descending");
+  }
+  Array.prototype.forEach.call(heads, function (th, col) {
+    var button = th.querySelector("button");
+    if (button) { button.addEventListener("click", function () { sortBy(col); }); }
+  });
+})();
+"""
+
+
+def _header(label, unit, numeric):
+    unit_text = f" <span class='unit'>[{escape(unit)}]</span>" if unit else ""
+    kind = " data-type='num' class='num'" if numeric else ""
+    return f"<th scope='col'{kind}><button type='button'>{escape(label)}{unit_text}</button></th>"
+
+
+def _number_cell(row, name, spec):
+    value = float(row[name])
+    untested = spec == "i" and row["verdict"] in ("", "no previous orbit")
+    if not np.isfinite(value) or untested:
+        return "<td class='num' data-value=''></td>"
+    if spec == "i":
+        text = str(int(value))
+    elif spec == "p":
+        test = TEST_NAMES.get(row["decided_by"], "")
+        text = f"{p_text(value)}" + (f" <small>({escape(test)})</small>" if test else "")
+        return f"<td class='num' data-value='{value!r}'>{text}</td>"
+    else:
+        text = fm.fixed(value, int(spec[1:])) if spec[0] == "f" else fm.number(value,
+                                                                              int(spec[1:]))
+    return f"<td class='num' data-value='{value!r}'>{escape(text)}</td>"
+
+
+def _warnings_cell(row):
+    """The mark with the count, the full list beside it (visible, not only on hover)."""
+    if not row["n_warnings"]:
+        return "<td class='warnings-cell' data-value=''></td>"
+    return (f"<td class='warnings-cell' data-value='{int(row['n_warnings'])}'>"
+            f"<span class='warn' title='{escape(row['warnings'])}'>&#9888; "
+            f"{row['n_warnings']}</span> <small>{escape(row['warnings'])}</small></td>")
+
+
+def _row(row, order):
+    cells = [f"<td class='num' data-value='{int(row['rank'])}'>{row['rank']}</td>",
+             f'<td><a href="{escape(row["link"])}">{escape(row["id"])}</a></td>',
+             f"<td data-value='{order}' "
+             f"title='{escape(row['reason'])}'>{verdict_badge(row['verdict'], row['status'])}"
+             "</td>"]
+    cells += [_number_cell(row, name, spec) for name, _, _, spec in COLUMNS]
+    cells += [_warnings_cell(row), f"<td class='error-cell'>{escape(row['error'])}</td>"]
+    return "<tr>" + "".join(cells) + "</tr>"
+
+
+def index_page(table, manifest, seed, urgency, classes):
+    """The index as one HTML string.
+
+    Parameters
+    ----------
+    table : astropy.table.Table
+        The batch summary, most urgent first (``batch`` summary columns).
+    manifest : str or Path
+        The manifest; only its file name is shown.
+    seed : int
+        The batch seed.
+    urgency : sequence of str
+        Verdict classes, most urgent first (``batch.URGENCY``): the verdict column's order.
+    classes : sequence of str
+        The class in ``urgency`` of each row of ``table`` (``batch.urgency_class``).
+    """
+    from ..revision import ALPHA, ERROR_INFLATION
+    head = ("<tr>" + _header("#", "", True) + _header("system", "", False)
+            + "<th scope='col' data-type='num'><button type='button'>verdict</button></th>"
+            + "".join(_header(label, unit, True) for _, label, unit, _ in COLUMNS)
+            + _header("warnings", "", True) + _header("error", "", False) + "</tr>")
+    rows = [_row(row, urgency.index(c)) for row, c in zip(table, classes)]
+    tally = [f"{classes.count(v)} "
+             f"{verdict_badge('' if v == 'failed' else v, 'failed' if v == 'failed' else 'done')}"
+             for v in urgency if v in classes]
+    warned = int(np.sum(table["n_warnings"] > 0)) if len(table) else 0
+    name = escape(Path(manifest).name)
+    count = f"{len(table)} {'system' if len(table) == 1 else 'systems'}"
+    return ("<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
+            "<meta name='viewport' content='width=device-width, initial-scale=1'>"
+            f"<title>orbweigh batch: {name}</title><style>{CSS}{_EXTRA_CSS}</style></head>"
+            f"<body>\n<h1>Batch of {name}</h1>\n"
+            f"<p class='tally'>{count}, most urgent first: {' '.join(tally) or 'none'}"
+            + (f" \u00b7 <span class='warn'>&#9888; {warned} with warnings</span>" if warned
+               else "") + "</p>\n"
+            f"<p class='meta'>Batch seed {seed}. The verdict tests the new points against "
+            f"the catalogued orbit at the {fm.number(ALPHA)} level: contradicted = rejected "
+            f"even with every \u03c3 \u00d7 {ERROR_INFLATION:g}; drifting = rejected as "
+            "stated or by an offset and trend; the p-value shown is the one that decided "
+            "(for consistent: the test closest to rejecting). Click a column header (or "
+            "Tab to it and press Enter) to sort; again to reverse.</p>\n"
+            f"<table class='index' id='systems'>\n<thead>{head}</thead>\n<tbody>\n"
+            + "\n".join(rows) + f"\n</tbody></table>\n<script>{_SCRIPT}</script>\n"
+            "</body></html>\n")
