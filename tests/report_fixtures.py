@@ -23,8 +23,10 @@ TRUE_ELEMENTS = CampbellElements(period_yr=36.2, periastron_yr=2008.4, e=0.46, a
                                  i_deg=63.0, node_deg=118.0, omega_deg=252.0)
 ERRORS = {"P": 0.8, "T": 0.15, "e": 0.012, "a": 0.011, "i": 1.1, "Omega": 0.9, "omega": 1.6}
 _CORRELATIONS = {("P", "a"): 0.55, ("P", "T"): 0.3, ("e", "T"): -0.25, ("Omega", "omega"): 0.2}
-_TECHNIQUES = (("micrometer", 12, 1.0, 0.05), ("speckle", 16, 0.4, 0.008),
-               ("adaptive optics", 8, 0.2, 0.004))
+#: (technique class, as the log wrote it, rows, sigma_theta [deg], sigma_rho [arcsec])
+_TECHNIQUES = (("micrometer", "micrometer", 12, 1.0, 0.05),
+               ("speckle", "Speckle", 16, 0.4, 0.008),
+               ("adaptive_optics", "adaptive_optics", 8, 0.2, 0.004))
 _PARALLAX = {"value": 45.0, "error": 0.9}
 
 
@@ -43,11 +45,11 @@ def _wrap(d):
 
 def _residuals(el, rng, scale_factor):
     rows, line = [], 2  # line 1 of the invented log is its header
-    epochs = np.sort(rng.uniform(1978.0, 2024.5, sum(n for _, n, _, _ in _TECHNIQUES)))
+    epochs = np.sort(rng.uniform(1978.0, 2024.5, sum(t[2] for t in _TECHNIQUES)))
     besselian = from_julian_year(epochs, "besselian")
     pred = ephemeris(el, epochs)
     k = 0
-    for tech, n, s_theta, s_rho in _TECHNIQUES:
+    for tech, written, n, s_theta, s_rho in _TECHNIQUES:
         for _ in range(n):
             theta = float(pred.theta_deg[k] + rng.normal(0, s_theta)) % 360.0
             rho = float(pred.rho_arcsec[k] + rng.normal(0, s_rho * scale_factor))
@@ -55,7 +57,8 @@ def _residuals(el, rng, scale_factor):
                          "epoch_text": f"{besselian[k]:.4f}",
                          "epoch_yr": float(epochs[k]), "theta_deg": theta, "rho_arcsec": rho,
                          "sigma_theta_deg": s_theta, "sigma_rho_arcsec": s_rho * scale_factor,
-                         "technique": tech, "theta_pred_deg": float(pred.theta_deg[k]),
+                         "technique": tech, "technique_text": written,
+                         "theta_pred_deg": float(pred.theta_deg[k]),
                          "rho_pred_arcsec": float(pred.rho_arcsec[k]),
                          "status": "used", "reason": "", "note": ""})
             line += 1

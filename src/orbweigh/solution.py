@@ -129,6 +129,7 @@ class OrbitSolution:
                 "sigma_rho_arcsec": float(factor * d.sigma_rho_arcsec[k] / np.sqrt(d.weight[k])),
                 **({"sigma_factor": factor} if scaled else {}),
                 "technique": str(d.technique[k]),
+                "technique_text": str(d.technique_input[k]),
                 "theta_pred_deg": float(self.theta_pred_deg[k]),
                 "rho_pred_arcsec": float(self.rho_pred_arcsec[k]),
                 "d_theta_deg": float(self.d_theta_deg[k]),

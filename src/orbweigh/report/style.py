@@ -13,7 +13,9 @@ from pathlib import Path
 from ..files import write_atomic
 
 __all__ = ["SINGLE_COLUMN_IN", "DOUBLE_COLUMN_IN", "INK", "ORBIT", "BAND", "NODES",
-           "PERIASTRON", "STATUS_STYLE", "VERDICT_PALETTE", "technique_styles", "figure_style", "new_figure",
+           "PERIASTRON", "STATUS_STYLE", "VERDICT_PALETTE", "TECHNIQUE_STYLE",
+           "OTHER_TECHNIQUE_COLORS", "OTHER_TECHNIQUE_MARKERS", "COMPONENT_STYLE", "KEY_ROW_PT",
+           "KEY_FONT_PT", "technique_styles", "figure_style", "new_figure", "new_mosaic",
            "save_figure", "angular_unit"]
 
 SINGLE_COLUMN_IN = 3.4
@@ -33,11 +35,25 @@ PERIASTRON = "#c0392b"
 VERDICT_PALETTE = {"consistent": "#004488", "drifting": "#DDAA33", "contradicted": "#BB5566",
                    "failed": "#000000", "other": "#888888"}
 
-# Technique styles are dealt out in this order to the techniques sorted by name, so the
-# same log always gets the same look in every figure.
-_PALETTE = ("#1f5f8b", "#e07b39", "#3a8f5c", "#8a4f9e", "#b8860b", "#4d6d7a", "#c2185b",
-            "#6b8e23")
-_MARKERS = ("o", "D", "s", "^", "v", "p", "h", "<")
+#: The fixed look of each technique orbweigh knows (the keys of
+#: ``measurements.TECHNIQUE_DEFAULTS``): the same colour and marker in every report and batch
+#: page, whatever else the log holds. Colours are orbweigh's own, picked by a farthest-point
+#: search over an sRGB grid (L* 35-75, C* > 30) for the largest smallest CIEDE2000
+#: difference in normal vision and under simulated deuteranopia, protanopia and tritanopia
+#: (Machado, Oliveira & Fernandes 2009, severity 1) by scripts/pick_technique_colours.py
+#: (smallest difference 17.0); tests/test_style.py checks it stays above 15.
+#: Every technique also has its own marker, so colour is never the only cue.
+TECHNIQUE_STYLE = {
+    "micrometer": {"color": "#873c2d", "marker": "o"},
+    "photographic": {"color": "#788700", "marker": "s"},
+    "speckle": {"color": "#0f7869", "marker": "D"},
+    "adaptive_optics": {"color": "#693ca5", "marker": "^"},
+    "space": {"color": "#5ac3e1", "marker": "v"},
+}
+#: Looks for technique names orbweigh does not know, dealt out to those names in sorted
+#: order; past the last one the colours repeat, each time with new markers.
+OTHER_TECHNIQUE_COLORS = ("#e19696", "#a5c300", "#a55aff")
+OTHER_TECHNIQUE_MARKERS = ("P", "X", "h", "p", "*", "<", ">", "8", "H")
 
 #: How each residual status is drawn. ``face``: 'fill' uses the technique colour,
 #: 'none' leaves the marker hollow; ``ring``: an extra outline around the marker;
@@ -51,13 +67,25 @@ STATUS_STYLE = {
                  "label": "excluded by the log"},
 }
 
+#: Radial-velocity components: 1 the primary, 2 the secondary (two of the technique
+#: colours above, so they too stay apart under colour-vision deficiencies).
+COMPONENT_STYLE = {
+    1: {"color": "#0f7869", "marker": "o", "label": "primary (component 1)"},
+    2: {"color": "#873c2d", "marker": "s", "label": "secondary (component 2)"},
+}
+
+#: Height of one row of a figure's key [points] (legend font and marker, with spacing).
+KEY_ROW_PT = 11.0
+#: Font size of a figure's key [points] (the rcParams legend size below).
+KEY_FONT_PT = 6.5
+
 _RC = {
     "font.size": 8.0,
     "axes.labelsize": 8.0,
     "axes.titlesize": 8.5,
     "xtick.labelsize": 7.0,
     "ytick.labelsize": 7.0,
-    "legend.fontsize": 6.5,
+    "legend.fontsize": KEY_FONT_PT,
     "axes.linewidth": 0.7,
     "xtick.direction": "in",
     "ytick.direction": "in",
@@ -80,21 +108,28 @@ _RC = {
 
 
 def technique_styles(techniques):
-    """Colour and marker for each technique name.
+    """Colour and marker for each technique of a figure.
 
     Parameters
     ----------
     techniques : iterable of str
-        Technique names as they appear in the residual rows.
+        Techniques as the residual rows group them: a ``TECHNIQUE_STYLE`` key for a known
+        technique, the name as written for any other.
 
     Returns
     -------
     dict
-        {technique: {"color": str, "marker": str}}, assigned in sorted-name order.
+        {technique: {"color": str, "marker": str}}: known techniques from
+        ``TECHNIQUE_STYLE``, the others from ``OTHER_TECHNIQUE_COLORS`` and
+        ``OTHER_TECHNIQUE_MARKERS`` in sorted-name order.
     """
-    names = sorted({str(t) for t in techniques})
-    return {name: {"color": _PALETTE[k % len(_PALETTE)], "marker": _MARKERS[k % len(_MARKERS)]}
-            for k, name in enumerate(names)}
+    names = {str(t) for t in techniques}
+    styles = {name: dict(TECHNIQUE_STYLE[name]) for name in names if name in TECHNIQUE_STYLE}
+    others = sorted(names - set(styles))
+    for k, name in enumerate(others):
+        styles[name] = {"color": OTHER_TECHNIQUE_COLORS[k % len(OTHER_TECHNIQUE_COLORS)],
+                        "marker": OTHER_TECHNIQUE_MARKERS[k % len(OTHER_TECHNIQUE_MARKERS)]}
+    return styles
 
 
 @contextlib.contextmanager
@@ -113,6 +148,13 @@ def new_figure(width_in=SINGLE_COLUMN_IN, height_in=None, **subplots):
     from matplotlib.figure import Figure
     fig = Figure(figsize=(width_in, height_in or width_in), layout="constrained")
     return fig, fig.subplots(**subplots)
+
+
+def new_mosaic(width_in, height_in, layout, **mosaic):
+    """A backend-free Figure and its named axes (``Figure.subplot_mosaic`` arguments)."""
+    from matplotlib.figure import Figure
+    fig = Figure(figsize=(width_in, height_in), layout="constrained")
+    return fig, fig.subplot_mosaic(layout, **mosaic)
 
 
 def save_figure(fig, stem, formats):

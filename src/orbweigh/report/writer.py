@@ -21,13 +21,20 @@ _CAPTIONS = {
              "join each measurement to its predicted position; thin lines are orbits drawn "
              "from the posterior (or the covariance).",
     "residuals": "Residuals (observed minus computed) in position angle and separation, with "
-                 "the measurement uncertainties as used in the fit.",
+                 "the measurement uncertainties as used in the fit (left), and the same in "
+                 "units of each point's uncertainty (right). A point beyond an axis sits on "
+                 "its edge with its value written beside it.",
     "corner_elements": "Posterior of the seven elements (contours at 1 and 2 sigma; "
                        "dashed: 16th, 50th, 84th percentiles; red: best fit).",
     "corner_masses": "Posterior of the total mass with the parallax, semi-major axis and "
                      "period it follows from (parallax drawn from its measurement).",
     "mass_histogram": "Total mass of the posterior draws: median, 68 % and 95 % intervals "
                       "of the plotted draws.",
+    "radial_velocity": "Radial velocities of each component against the orbital phase (left, "
+                       "0 at periastron) and against time (right, in the velocity log's "
+                       "scale), with the combined solution's model curves and the systemic "
+                       "velocity (dashed); observed minus computed below. Error bars: the "
+                       "velocity errors as used; hollow points are excluded by the log.",
 }
 
 
@@ -36,6 +43,8 @@ def _figures(doc, seed):
     figs = {"orbit": fg.plot_orbit(doc, seed=seed).figure}
     if fg.measurement_rows(doc)["line"].size:
         figs["residuals"] = fg.plot_residuals(doc)[0].figure
+    if fg.velocity_rows(doc)["line"].size:
+        figs["radial_velocity"] = fg.plot_radial_velocities(doc)["phase"].figure
     draws = posterior_draws(doc, seed)
     if draws is not None:
         figs["corner_elements"] = fg.plot_corner_elements(doc, draws)
