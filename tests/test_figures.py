@@ -331,3 +331,13 @@ def test_compass_sits_where_no_measurement_is(built):
     inside = (frac[:, 0] > x0 - 0.12) & (frac[:, 0] < x0 + 0.02) & (frac[:, 1] > y0 - 0.02) \
         & (frac[:, 1] < y0 + 0.12)
     assert not inside.any()
+
+
+def test_corner_t_of_a_julian_log_says_julian(built):
+    doc, draws = built
+    fig = figures.plot_corner_elements(_julian(doc), draws[:400])
+    grid = np.array(fig.axes).reshape(7, 7)
+    assert grid[6, 1].get_xlabel().endswith("[Julian year]")
+    assert grid[1, 1].get_title().startswith("$T$ [Julian year]")
+    assert not any("Besselian" in ax.get_xlabel() + ax.get_ylabel() + ax.get_title()
+                   for ax in fig.axes)

@@ -268,14 +268,12 @@ def _draw_key(host, key_rows, note=""):
     return legends
 
 
-def _grid_legend(host, key_rows, note=""):
-    """One legend under ``host`` (an Axes, or a Figure when ``host`` is one) laying the key
-    rows out as rows: columns are filled top-down, so short rows are padded with blanks."""
-    from matplotlib.lines import Line2D
-    ncols = max(len(row) for row in key_rows)
-    blank = Line2D([], [], linestyle="none", label="")
-    handles = [row[c] if c < len(row) else blank for c in range(ncols) for row in key_rows]
-    kwargs = {"handles": handles, "ncols": ncols, "fontsize": style.KEY_FONT_PT, **_KEY}
+def _caller_legend(host, key_rows, note=""):
+    """One two-column legend of every key entry, under ``host`` when it is an Axes, above
+    the figure when it is a Figure: drawing into a caller's axes, the caller owns the page
+    (and may extend ``legend_handles``)."""
+    handles = [h for row in key_rows for h in row]
+    kwargs = {"handles": handles, "ncols": 2, "fontsize": style.KEY_FONT_PT, **_KEY}
     if hasattr(host, "transAxes"):
         legend = host.legend(loc="upper center", bbox_to_anchor=(0.5, -0.13), **kwargs)
     else:
@@ -424,8 +422,8 @@ def plot_orbit(doc, ax=None, n_band=80, seed=None):
         if key_ax is not None:
             _fit_width(ax.figure, key_rows, note)
             _draw_key(key_ax, key_rows, note)
-        else:   # the caller's axes: one legend (rows kept), which the caller may extend
-            _grid_legend(ax, key_rows, note)
+        else:   # the caller's axes: one legend, which the caller may extend
+            _caller_legend(ax, key_rows, note)
     return ax
 
 
@@ -532,8 +530,8 @@ def plot_residuals(doc, axes=None):
         if key_ax is not None:
             _fit_width(key_ax.figure, key_rows, note)
             _draw_key(key_ax, key_rows, note)
-        else:   # the caller's axes: one figure legend (rows kept) above them
-            _grid_legend(axes[0].get_figure(root=False), key_rows, note)
+        else:   # the caller's axes: one figure legend above them
+            _caller_legend(axes[0].get_figure(root=False), key_rows, note)
     return axes
 
 
@@ -830,5 +828,5 @@ def plot_radial_velocities(doc, axes=None):
             _fit_width(key_ax.figure, key_rows, "")
             _draw_key(key_ax, key_rows)
         else:
-            _grid_legend(axes["phase"].get_figure(root=False), key_rows)
+            _caller_legend(axes["phase"].get_figure(root=False), key_rows)
     return axes
