@@ -423,6 +423,36 @@ def test_commands_on_mutated_documents_exit_0_or_2(tmp_path, capsys, doc, argv):
     assert "Traceback" not in capsys.readouterr().err
 
 
+def _report_parts(doc):
+    """Everything of a report but the figures' drawing: the tables, the HTML page and the
+    arrays the figures plot (fast enough to fuzz; drawing is not)."""
+    from orbweigh.report import figures
+    from orbweigh.report.html import render_html
+    from orbweigh.report.posterior import mass_draws, posterior_draws
+    from orbweigh.report.tables import elements_latex, residuals_table
+    seed = int(doc.get("seed") or 0)
+    figures.measurement_rows(doc)
+    draws = posterior_draws(doc, seed)
+    if draws is not None:
+        mass_draws(doc, draws, seed)
+    elements_latex(doc)
+    residuals_table(doc)
+    assert "<html" in render_html(doc, {}, seed, "test")
+
+
+@given(doc=_mutated_documents())
+@fuzz(80)
+def test_report_of_mutated_documents_is_written_or_refused(tmp_path, doc):
+    # Every block the report reads is checked where the document is read: a document
+    # load_result accepts never breaks the report's tables or page.
+    _write_draws(tmp_path)
+    path = tmp_path / "result.json"
+    path.write_text(json.dumps(doc))
+    doc = _load_or_refuse(path)
+    if doc is not None:
+        _report_parts(doc)
+
+
 @given(data=st.one_of(st.binary(max_size=300),
                       _JSON.map(lambda d: json.dumps(d).encode("utf-16")),
                       st.integers(1, 200_000).map(lambda n: b"[" * n + b"]" * n),
@@ -462,6 +492,65 @@ def test_command_line_refuses_with_exit_2_and_no_traceback(tmp_path, case):
 
 
 # ---------------------------------------------- regressions: bugs the fuzzing found, kept
+
+@pytest.mark.parametrize("path, value, key", [
+    (("elements", "P", "unit"), ["yr"], "elements.P.unit"),
+    (("thiele_innes", "A"), 0.3, "thiele_innes.A"),
+    (("thiele_innes", "A", "value"), {"x": 1}, "thiele_innes.A.value"),
+    (("mass", "total", "linear"), {"error": 0.1}, "mass.total.linear.value"),
+    (("mass", "total", "unit"), {"a": 1}, "mass.total.unit"),
+    (("mass", "budget", "a"), {"b": 2}, "mass.budget.a"),
+    (("mass", "draws"), None, "mass.draws"),
+    (("parallax", "unit"), "bananas", "parallax.unit"),
+    (("parallax", "unit"), None, "parallax.unit"),
+    (("posterior", "summary", "P"), "x", "posterior.summary.P"),
+    (("posterior", "summary", "P", "median"), [1], "posterior.summary.P.median"),
+    (("posterior", "summary", "T", "scale"), "lunar", "posterior.summary.T.scale"),
+    (("posterior", "autocorr_time", "e"), {"x": 1}, "posterior.autocorr_time.e"),
+    (("posterior", "autocorr_time", "e"), None, "posterior.autocorr_time.e"),
+    (("posterior", "steps"), None, "posterior.steps"),
+    (("posterior", "sigma_scale"), None, "posterior.sigma_scale"),
+    (("residuals", 0, "theta_deg"), {"v": 1}, "residuals[0].theta_deg"),
+    (("residuals", 0, "epoch"), "x", "residuals[0].epoch"),
+    (("statistics", "epoch_last"), None, None),   # deleted below: epoch_first alone
+    (("options", "period_range_yr"), [1, 2, 3], "options.period_range_yr"),
+])
+def test_blocks_the_report_reads_are_checked_where_read(tmp_path, path, value, key):
+    # Found by test_report_of_mutated_documents_is_written_or_refused: each of these was
+    # accepted by load_result and then raised TypeError, KeyError or ValueError in the
+    # report (page, LaTeX or ECSV table, parallax draws).
+    from orbweigh.errors import InputError
+    from orbweigh.result import load_result
+    _write_draws(tmp_path)
+    doc = json.loads(_base_document()[0])
+    doc["posterior"]["draws_file"] = "result_draws.ecsv"
+    parent = doc
+    for step in path[:-1]:
+        parent = parent[step]
+    if key is None:
+        del parent[path[-1]]
+        key = "statistics.epoch_first"
+    else:
+        parent[path[-1]] = value
+    target = tmp_path / "result.json"
+    target.write_text(json.dumps(doc))
+    with pytest.raises(InputError, match=re.escape(f"'{key}'")):
+        load_result(target)
+
+
+def test_bare_number_elements_serve_every_reader(tmp_path):
+    # Found by the same test: elements written as bare numbers passed validation but the
+    # report's tables expected objects; they are now read as {"value": number}.
+    from orbweigh.result import load_result
+    doc = json.loads(_base_document()[0])
+    del doc["posterior"]
+    doc["elements"] = {k: v["value"] for k, v in doc["elements"].items()}
+    target = tmp_path / "result.json"
+    target.write_text(json.dumps(doc))
+    loaded = load_result(target)
+    assert loaded["elements"]["P"] == {"value": doc["elements"]["P"]}
+    _report_parts(loaded)
+
 
 def test_manifest_path_with_nul_byte_is_a_row_problem(tmp_path):
     # Found by test_random_csv_manifests_are_read_or_refused: a NUL byte in a file name made

@@ -18,7 +18,10 @@ change. Keys read here:
 (``load_result``, batch, published-elements inputs) goes through it, so commands work on
 a document whose types and ranges are known. Physical ranges checked: P > 0 and a > 0
 finite, 0 <= e < 1, 0 <= i <= 180 deg, -360 <= Omega, omega <= 360 deg, T finite, errors
-finite and >= 0 (or absent).
+finite and >= 0 (or absent). The other blocks a command reads (``mass``, ``parallax``,
+``thiele_innes``, the posterior's summary and run, ``residuals``, ``statistics``,
+``options``, ``precession``, ...) are checked for their types and required keys
+(``_SHAPES``); elements written as bare numbers are read as ``{"value": number}``.
 """
 from __future__ import annotations
 
@@ -102,6 +105,8 @@ def _check_elements(source, block, name="elements"):
             _fail(source, where, f"is missing; the elements block needs {', '.join(ELEMENT_KEYS)}")
         entry = block[key]
         value = entry.get("value") if isinstance(entry, dict) else entry
+        if isinstance(entry, dict):
+            _check_shape(source, f"{where}.unit", entry.get("unit"), "string")
         low, high = _RANGES[key]
         _check_number(source, f"{where}.value" if isinstance(entry, dict) else where,
                       value, low, high, _STRICT.get(key))
@@ -110,6 +115,8 @@ def _check_elements(source, block, name="elements"):
                 if entry.get(bound) is not None:
                     _check_number(source, f"{where}.{bound}", entry[bound],
                                   0.0 if bound == "error" else None)
+        else:   # a bare number: the form every reader expects
+            block[key] = {"value": entry}
 
 
 def validate_document(doc, source, needs=("elements",)):
@@ -167,6 +174,17 @@ def validate_document(doc, source, needs=("elements",)):
             and all(isinstance(r, dict) for r in doc["residuals"])):
         _fail(source, "residuals", "must be a list of objects")
     covariance_from_document(doc)
+    for block, shape in _SHAPES.items():
+        if doc.get(block) is not None:
+            _check_shape(source, block, doc[block], shape)
+    for block, groups in _TOGETHER.items():
+        for keys in groups:
+            given = [k for k in keys if k in (doc.get(block) or {})]
+            if given and len(given) < len(keys):
+                _fail(source, f"{block}.{given[0]}", f"comes with {', '.join(keys)}; give all")
+    if (doc.get("posterior") or {}).get("summary"):   # a summary is reported with its run
+        _check_shape(source, "posterior", doc["posterior"], _SAMPLING)
+    _check_parallax_unit(source, doc.get("parallax") or {})
     posterior = doc.get("posterior")
     if posterior is not None:
         if not isinstance(posterior, dict):
@@ -260,6 +278,96 @@ def _check_posterior_priors(source, posterior):
             _fail(source, "posterior.parallax_prior", "must be an object {value, error, unit}")
         _check_number(source, "posterior.parallax_prior.value", plx.get("value"))
         _check_number(source, "posterior.parallax_prior.error", plx.get("error"), low=0.0)
+
+
+# The shapes of the blocks that commands read (the report reads nearly all of them): a
+# kind ('number', 'integer', 'string', 'boolean': null allowed; 'real', 'count': a number,
+# an integer, not null; 'scale': an epoch scale), an object {key: shape}
+# whose keys ending in '!' must be present (others are optional, unknown keys are free),
+# ('each', shape) for an object of like entries, ('list', shape) for a list, ('pair', shape)
+# for a list of two. Keys of one block read together are in _TOGETHER.
+_QUANTITY = {"value": "number", "error": "number", "low": "number", "high": "number",
+             "low95": "number", "high95": "number", "median": "number", "unit": "string",
+             "scale": "scale", "source": "string", "kind": "string"}
+_VALUED = {**_QUANTITY, "value!": "number"}
+_SAMPLING = {"walkers!": "count", "steps!": "count", "burn!": "count", "thin!": "count",
+             "n_draws!": "count", "seed!": "integer", "acceptance_fraction": "number",
+             "acceptance": "number", "sigma_scale": "real", "converged": "boolean",
+             "autocorr_time": ("each", "real"), "priors": ("each", "string")}
+_MASS = {**_QUANTITY, "linear": _VALUED}
+_SHAPES = {
+    "thiele_innes": ("each", _VALUED),
+    "mass": {"total": _MASS, "primary": _MASS, "secondary": _MASS, "mass_ratio": _VALUED,
+             "budget": ("each", "number"), "warnings": ("list", "string"), "draws!": "count",
+             "seed": "integer", "parallax_used": "string", "draws_source": "string",
+             "draws_nonpositive_parallax": "integer"},
+    "mass_function": _QUANTITY,
+    "parallax": {**_QUANTITY, "orbital": _QUANTITY, "combined": _QUANTITY},
+    "orbital_parallax": _QUANTITY,
+    "posterior": {**{k.rstrip("!"): v for k, v in _SAMPLING.items()},
+                  "summary": ("each", {**_QUANTITY, "median!": "number"})},
+    "combined": {"posterior": {**_SAMPLING, "parameters!": ("each", _VALUED)}},
+    "residuals": ("list", {"line": "integer", "status": "string", "technique": "string",
+                           **{k: "number" for k in (
+                               "epoch", "epoch_yr", "theta_deg", "rho_arcsec", "theta_pred_deg",
+                               "rho_pred_arcsec", "d_theta_deg", "d_rho_arcsec",
+                               "sigma_theta_deg", "sigma_rho_arcsec")}}),
+    "statistics": {**{k: "number" for k in ("chi2", "dof", "reduced_chi2", "rms_theta_deg",
+                                             "rms_rho_arcsec", "phase_coverage", "fit_seconds",
+                                             "epoch_first", "epoch_last")},
+                   **{k: "integer" for k in ("n_input", "n_used", "n_flipped", "n_outliers",
+                                             "n_excluded", "n_rejected", "n_trials")},
+                   "errors_scaled": "boolean", "period_range_yr": ("pair", "real")},
+    "options": {"period_range_yr": ("pair", "number"), "outlier_sigma": "number",
+                "alternative_delta_chi2": "number", "flips": "boolean"},
+    "fit": {"fixed": ("each", "number"), "period_bounds": ("pair", "number")},
+    "precession": {"applied": "boolean", "target_ra_deg": "number", "target_dec_deg": "number",
+                   "source": "string"},
+    "notes": ("list", "string"), "name": "string", "source": "string",
+}
+_TOGETHER = {"statistics": (("epoch_first", "epoch_last"), ("rms_theta_deg", "rms_rho_arcsec"))}
+_KINDS = {"number": (int, float), "real": (int, float), "integer": (int,), "count": (int,),
+          "string": (str,), "scale": (str,), "boolean": (bool,)}
+
+
+def _check_shape(source, where, value, shape):
+    """``value`` has ``shape`` (see ``_SHAPES``), else an error naming ``where``."""
+    if isinstance(shape, str):
+        ok = (value is None and shape not in ("real", "count")) or (
+            isinstance(value, _KINDS[shape]) and (shape == "boolean" or not isinstance(value, bool)))
+        if ok and shape == "scale" and value is not None and value not in EPOCH_SCALES:
+            _fail(source, where, f"is {value!r:.40}, not one of {', '.join(EPOCH_SCALES)}")
+        if not ok:
+            _fail(source, where, f"must be a {shape}, not {type(value).__name__} {value!r:.40}")
+    elif isinstance(shape, tuple):
+        kind, inner = shape
+        if not isinstance(value, dict if kind == "each" else list):
+            _fail(source, where, "must be an object" if kind == "each" else "must be a list")
+        if kind == "pair" and len(value) != 2:
+            _fail(source, where, f"must be a list of two, not of {len(value)}")
+        items = value.items() if kind == "each" else enumerate(value)
+        for key, item in items:
+            _check_shape(source, f"{where}.{key}" if kind == "each" else f"{where}[{key}]",
+                         item, inner)
+    else:
+        if not isinstance(value, dict):
+            _fail(source, where, "must be an object")
+        for key, inner in shape.items():
+            name = key.rstrip("!")
+            if name in value:
+                _check_shape(source, f"{where}.{name}", value[name], inner)
+            elif key.endswith("!"):
+                _fail(source, f"{where}.{name}", "is missing")
+
+
+def _check_parallax_unit(source, plx):
+    if "unit" not in plx:
+        return
+    import astropy.units as u
+    try:
+        u.Unit(plx["unit"]).to(u.mas)
+    except (ValueError, TypeError, u.UnitsError):
+        _fail(source, "parallax.unit", f"is {plx['unit']!r:.40}, not an angle unit such as 'mas'")
 
 
 def draws_path(doc):
