@@ -283,7 +283,8 @@ def _check_posterior_priors(source, posterior):
 # The shapes of the blocks that commands read (the report reads nearly all of them): a
 # kind ('number', 'integer', 'string', 'boolean': null allowed; 'real', 'count': a number,
 # an integer, not null; 'scale': an epoch scale), an object {key: shape}
-# whose keys ending in '!' must be present (others are optional, unknown keys are free),
+# whose keys ending in '!' must be present (others are optional, null or absent; unknown
+# keys are free),
 # ('each', shape) for an object of like entries, ('list', shape) for a list, ('pair', shape)
 # for a list of two. Keys of one block read together are in _TOGETHER.
 _QUANTITY = {"value": "number", "error": "number", "low": "number", "high": "number",
@@ -354,7 +355,7 @@ def _check_shape(source, where, value, shape):
             _fail(source, where, "must be an object")
         for key, inner in shape.items():
             name = key.rstrip("!")
-            if name in value:
+            if value.get(name) is not None or (name in value and isinstance(inner, str)):
                 _check_shape(source, f"{where}.{name}", value[name], inner)
             elif key.endswith("!"):
                 _fail(source, f"{where}.{name}", "is missing")
