@@ -34,6 +34,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import formatting as fmt
 from .elements import ELEMENT_KEYS, CampbellElements, centre_angles, thiele_innes_from_campbell
 from .errors import InputError
 from .masses import format_mass_blocks, summarise, total_mass_msun
@@ -430,8 +431,9 @@ def _double_lined(d, trig, parallax, combine, mass):
                  "orbital": {**plx_orb, "agreement_sigma": float(agreement)}}
         if abs(agreement) > 3.0:
             blocks["warnings"].append(
-                f"The orbital parallax ({plx_orb['value']:.3f} mas) and the trigonometric "
-                f"one ({value:g} mas) differ by {agreement:+.1f} sigma.")
+                f"The orbital parallax ({fmt.value_error(plx_orb['value'], plx_orb['error'], 'mas')}"
+                f") and the trigonometric one ({fmt.value_error(value, error, 'mas')}) differ "
+                f"by {agreement:+.1f} sigma.")
         if combine:
             w_orb, w_trig = 1.0 / plx_orb["error"] ** 2, 1.0 / error**2
             mixed = (w_orb * orbital + w_trig * trig) / (w_orb + w_trig)
@@ -727,8 +729,6 @@ def format_combined(doc):
     s, node, v = doc["statistics"], doc["node"], doc["velocities"]
     out = [f"Combined with radial velocities ({v['source']}: {v['n_used']} used, "
            f"{v['n_excluded']} excluded, {v['n_rejected']} rejected)"]
-    from . import formatting as fmt
-
     out += [f"  {label:<26}{fmt.value_error(doc[k]['value'], doc[k].get('error'), 'km/s')}"
             for k, label in
             (("gamma", "gamma (systemic velocity)"), ("K1", "K1 (primary)"),

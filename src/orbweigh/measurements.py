@@ -38,6 +38,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import formatting as fmt
 from .elements import wrap_degrees
 from .errors import InputError, LogFormatError
 from .reductions import (EPOCH_SCALES, julian_years_of, parse_target_coordinates,
@@ -281,7 +282,7 @@ def _check_bounds(value, text, column, name):
         return
     low, high, unit = PHYSICAL_BOUNDS[name]
     if not low <= value <= high:
-        shown = f"'{text}'" if text.strip() else f"{value:.6g}"
+        shown = f"'{text}'" if text.strip() else fmt.number(value, 6)
         raise RowError(column, f"{shown} is outside [{low:g}, {high:g}] {unit}, the range a "
                         f"measurement can have; expected {_EXPECTED[name]}")
 
@@ -301,7 +302,7 @@ def _parse_row(cells, factors, header, day_unit):
         if value is None:
             raise RowError(col(name), f"the value is missing; expected {_EXPECTED[name]}")
     if not 0.0 <= theta < 360.0:
-        shown = cells["theta"] if "theta" not in factors else f"{cells['theta']} = {theta:.6g} deg"
+        shown = cells["theta"] if "theta" not in factors else f"{cells['theta']} = {fmt.number(theta, 6)} deg"
         raise RowError(col("theta"), f"'{shown}' is outside [0, 360) deg; position "
                         "angles run from 0 (North) through 90 (East); correct it (e.g. add or "
                         "subtract 360)")
@@ -576,12 +577,12 @@ def _tight_sigma(technique, rho, sig_theta, sig_rho):
     typ_theta, typ_rho = TECHNIQUE_DEFAULTS[technique]
     small = []
     if sig_rho < TIGHT_FRACTION * typ_rho:
-        small.append(f"sigma_rho {sig_rho:.4g} arcsec")
+        small.append(f"sigma_rho {fmt.number(sig_rho, 6)} arcsec")
     if typ_theta is None:
         if rho * np.radians(sig_theta) < TIGHT_FRACTION * typ_rho:
-            small.append(f"sigma_theta {sig_theta:.3g} deg")
+            small.append(f"sigma_theta {fmt.number(sig_theta, 6)} deg")
     elif sig_theta < TIGHT_FRACTION * typ_theta:
-        small.append(f"sigma_theta {sig_theta:.3g} deg")
+        small.append(f"sigma_theta {fmt.number(sig_theta, 6)} deg")
     if not small:
         return None
     return (f"{' and '.join(small)} below {TIGHT_FRACTION:g} x the typical value for "

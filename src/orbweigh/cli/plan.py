@@ -12,6 +12,7 @@ from dataclasses import asdict
 import numpy as np
 
 from ..files import write_atomic
+from ..formatting import number
 
 __all__ = ["add_arguments", "run", "plan_to_dict"]
 
@@ -70,7 +71,8 @@ def _advice_lines(advice, sigma_now):
             f"{a.epoch:10.3f} {a.theta_deg:9.2f} {a.theta_low_deg:7.2f}-{a.theta_high_deg:<7.2f} "
             f"{a.rho_arcsec:10.4f} {a.rho_low_arcsec:7.4f}-{a.rho_high_arcsec:<7.4f} "
             f"{-100 * a.gain_P:5.1f}% {-100 * a.gain_a:5.1f}% {-100 * a.gain_mass:5.1f}% "
-            f"{a.score:6.3f}  {after[0]:.3g} yr, {after[1]:.3g}\", {100 * after[2]:.3g}%")
+            f"{a.score:6.3f}  {number(after[0], 2)} yr, {number(after[1], 2)}\", "
+            f"{number(100 * after[2], 2)}%")
     return lines
 
 
@@ -80,8 +82,8 @@ def _text(plan, source, scale, top):
              f"# new measurement: {plan.sigma_arcsec * 1e3:g} mas in x and y; uncertainty "
              f"from the {plan.covariance_source}; bands from {plan.n_draws} draws, "
              f"seed {plan.seed}",
-             f"# now: sigma_P {s['P_yr']:.3g} yr, sigma_a {s['a_arcsec']:.3g}\", mass from "
-             f"the orbit (3 ln a - 2 ln P) {100 * s['mass_relative']:.3g}%",
+             f"# now: sigma_P {number(s['P_yr'], 2)} yr, sigma_a {number(s['a_arcsec'], 2)}\", "
+             f"mass from the orbit (3 ln a - 2 ln P) {number(100 * s['mass_relative'], 2)}%",
              "# score = mean fractional variance reduction of P, a and M (var_* columns)"]
     if plan.dawes_limit_arcsec is not None:
         lines.append(f"# aperture {plan.aperture_mm:g} mm: Dawes limit "

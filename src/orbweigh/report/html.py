@@ -26,7 +26,7 @@ body{font-family:system-ui,-apple-system,"Segoe UI",Roboto,"DejaVu Sans",sans-se
  color:#22313f;max-width:64rem;margin:1.5rem auto;padding:0 1rem;line-height:1.45}
 h1{font-size:1.5rem;margin-bottom:.2rem} h2{font-size:1.15rem;border-bottom:1px solid #c8d3de;
  padding-bottom:.2rem;margin-top:2rem} h3{font-size:1rem} .meta{color:#5a6b7b;font-size:.9rem}
-nav{font-size:.88rem} nav a{margin-right:.8rem;color:#2a5d8a}
+nav{font-size:.88rem;margin:.3rem 0 1rem} nav a{margin-right:.8rem;color:#2a5d8a}
 table{border-collapse:collapse;margin:.6rem 0;font-size:.88rem}
 th,td{padding:.2rem .55rem;border-bottom:1px solid #e3e9ef;text-align:left}
 th{background:#eef3f7;font-weight:600;vertical-align:bottom}
@@ -37,6 +37,7 @@ figure{margin:1rem 0} figure img{max-width:100%;height:auto;border:1px solid #e3
 #fig-corner_elements img,#fig-corner_masses img{max-width:min(100%,46rem)}
 figcaption{font-size:.85rem;color:#5a6b7b} .scroll{overflow-x:auto;max-width:100%}
 .scroll td{white-space:nowrap} .scroll th{min-width:3.2rem}
+.scroll td.reason{white-space:normal;min-width:11rem;max-width:18rem}
 tr.status-flipped td{background:#f1f1f1} tr.status-outlier td{background:#fdecea}
 tr.status-excluded td,tr.status-rejected td{color:#8a8a8a}
 footer{margin-top:2rem;font-size:.8rem;color:#5a6b7b}
@@ -52,8 +53,9 @@ def _unit(unit):
     return _UNITS.get(unit, unit)
 
 
-def _table(header, rows, row_classes=None, numeric=(), table_id=None):
-    """HTML table; numbers in the columns listed in ``numeric`` are aligned right."""
+def _table(header, rows, row_classes=None, numeric=(), table_id=None, classes=None):
+    """HTML table; numbers in the columns listed in ``numeric`` are aligned right;
+    ``classes`` {column: class} marks the cells of a column (e.g. wrapped text)."""
     ident = f" id='{escape(table_id)}'" if table_id else ""
     out = [f"<table{ident}>", "<thead><tr>" + "".join(f"<th>{escape(h)}</th>" for h in header)
            + "</tr></thead>", "<tbody>"]
@@ -61,9 +63,16 @@ def _table(header, rows, row_classes=None, numeric=(), table_id=None):
         cls = f' class="{row_classes[k]}"' if row_classes else ""
         cells = "".join(f'<td class="num">{escape(str(c))}</td>'
                         if j in numeric and _numeric(str(c))
-                        else f"<td>{escape(str(c))}</td>" for j, c in enumerate(row))
+                        else f"<td{_cell_class(classes, j, c)}>{escape(str(c))}</td>"
+                        for j, c in enumerate(row))
         out.append(f"<tr{cls}>{cells}</tr>")
     return "\n".join(out + ["</tbody></table>"])
+
+
+def _cell_class(classes, column, content):
+    """The column's class on a cell with content (an empty column stays narrow)."""
+    name = (classes or {}).get(column)
+    return f' class="{name}"' if name and str(content) else ""
 
 
 def _numeric(text):
@@ -177,7 +186,8 @@ def _posterior_entries(doc):
 
 
 _PARAMETER_NAMES = {**{k: (v[0], v[2]) for k, v in tb.ELEMENT_NAMES.items()},
-                    **{k: (n, s) for k, n, s in _VELOCITY_NAMES}}
+                    **{k: (n, s) for k, n, s in _VELOCITY_NAMES},
+                    "parallax": ("Parallax", "\u03d6")}
 
 
 def _interval_row(name, symbol, entry, unit):
@@ -267,19 +277,28 @@ def _parallax_table(doc):
 def _dynamical_parallax(plx):
     if plx.get("kind") != "dynamical":
         return ""
-    mags = ", ".join(fmt.fixed(m, 2) for m in plx.get("magnitudes") or [])
-    parts = [f"<p>Dynamical parallax from the magnitudes {mags} ({escape(str(plx.get('band')))}"
-             f" band; {escape(str(plx.get('relation', '')))}), "
-             f"{plx.get('iterations', '?')} iterations.</p>"]
+    errors = plx.get("magnitude_errors") or [None] * len(plx.get("magnitudes") or [])
+    mags = " and ".join(fmt.value_error(m, e) for m, e in zip(plx.get("magnitudes") or [], errors))
+    words = [f"Dynamical parallax from the magnitudes {mags} ({plx.get('band')} band; "
+             f"{plx.get('relation', '')})."]
+    scatter = plx.get("relation_scatter") or {}
+    if scatter:
+        words.append(f"The relation's scatter, {fmt.number(scatter.get('sigma_dex'))} dex in "
+                     f"{scatter.get('variable')} ({scatter.get('source')}), is carried by the "
+                     "draws.")
+    parts = [f"<p>{escape(' '.join(words))}</p>"]
     steps = plx.get("steps") or []
     if steps:
         rows = [(s["iteration"], fmt.fixed(s["parallax_mas"], 3), fmt.fixed(s["abs_mag1"], 3),
                  fmt.fixed(s["abs_mag2"], 3), fmt.fixed(s["mass1"], 3), fmt.fixed(s["mass2"], 3))
                 for s in steps]
-        parts += ["<h3>Dynamical-parallax iteration (best elements)</h3>",
+        state = "converged" if plx.get("converged", True) else "NOT converged"
+        parts += [f"<details><summary>Iteration at the best (P, a): {len(steps)} steps, "
+                  f"{state}</summary>",
                   _table(("iteration", "parallax (mas)", "absolute magnitude, primary",
                           "absolute magnitude, secondary", "mass, primary (M\u2609)",
-                          "mass, secondary (M\u2609)"), rows, numeric=tuple(range(6)))]
+                          "mass, secondary (M\u2609)"), rows, numeric=tuple(range(6))),
+                  "</details>"]
     return "\n".join(parts)
 
 
@@ -411,6 +430,7 @@ def _residual_columns(doc):
          True),
         ("(O\u2212C)/\u03c3 \u03c1",
          lambda r: _normalised(r, "d_rho_arcsec", "sigma_rho_arcsec"), True),
+        ("reason", text("reason"), False),
         ("log line", text("line"), True),
         ("\u03b8 (deg)", theta("theta_deg"), True),
         ("\u03c1 (arcsec)", rho("rho_arcsec"), True),
@@ -419,7 +439,6 @@ def _residual_columns(doc):
         ("technique", text("technique"), False),
         ("computed \u03b8 (deg)", theta("theta_pred_deg"), True),
         ("computed \u03c1 (arcsec)", rho("rho_pred_arcsec"), True),
-        ("reason", text("reason"), False),
         ("note", text("note"), False))
 
 
@@ -428,13 +447,15 @@ def _residual_section(doc, figures):
     rows = [[cell(r) for _, cell, _ in columns] for r in doc.get("residuals", [])]
     classes = [f"status-{escape(str(r.get('status', '')))}" for r in doc.get("residuals", [])]
     numeric = tuple(j for j, (_, _, is_num) in enumerate(columns) if is_num)
+    wrapped = {j: "reason" for j, (h, _, _) in enumerate(columns) if h in ("reason", "note")}
     return "\n".join([
         "<h2 id='residuals'>Measurements and residuals (O\u2212C)</h2>", *figures,
         f"<p>Position angles as used ({escape(tb.theta_equinox(doc))}), before any "
         "180\u00b0 flip; the O\u2212C of flipped rows is after the correction. (O\u2212C)/"
         "\u03c3 uses the measurement's own \u03c3. The \u03b8 and \u03c1 numbers of a row are "
         "written to the decimal place of its \u03c3. Every line of the log is listed.</p>",
-        f"<div class='scroll'>{_table([h for h, _, _ in columns], rows, classes, numeric, 'residual-table')}</div>"])
+        "<div class='scroll'>" + _table([h for h, _, _ in columns], rows, classes, numeric,
+                                        "residual-table", wrapped) + "</div>"])
 
 
 # ------------------------------------------------------------------ data, method, alts
