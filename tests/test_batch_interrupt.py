@@ -36,7 +36,13 @@ def _start(manifest, out):
     return subprocess.Popen([sys.executable, "-m", "orbweigh.cli.main", "batch", str(manifest),
                              "--out", str(out), "--workers", "2", "--pages", "none",
                              "--quiet"], stdout=subprocess.PIPE, stderr=subprocess.PIPE,
-                            text=True)
+                            text=True, preexec_fn=_interruptible)
+
+
+def _interruptible():
+    # A shell starts background jobs with SIGINT ignored, and a child inherits that; the
+    # batch under test must see Ctrl-C as a user's terminal would deliver it.
+    signal.signal(signal.SIGINT, signal.SIG_DFL)
 
 
 def _children(pid):
