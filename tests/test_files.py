@@ -56,16 +56,47 @@ def result(tmp_path):
     ["ephemeris", "{result}", "--start", "2000", "--stop", "2010", "--json", "{out}"],
     ["ephemeris", "{result}", "--start", "2000", "--stop", "2010", "--ecsv", "{out}"],
     ["plan", "{result}", "--window", "2030", "2040", "--json", "{out}"],
+    ["compare", SIRIUS, "{result}", "--json", "{out}"],
+    ["compare", SIRIUS, "{result}", "--figure", "{out}.png"],
 ], ids=["fit-json", "mass-json", "check-json", "ephemeris-json", "ephemeris-ecsv",
-        "plan-json"])
+        "plan-json", "compare-json", "compare-figure"])
 def test_full_disk_keeps_previous_file(tmp_path, result, command):
-    out = tmp_path / "out.file"
+    out = tmp_path / ("out.file.png" if "--figure" in command else "out.file")
     out.write_text(OLD)
-    argv = [str(a).format(out=out, result=result) for a in command]
+    argv = [str(a).format(out=tmp_path / "out.file", result=result) for a in command]
     proc = _run_limited(argv, tmp_path)
     _assert_refused(proc, out)
     assert out.read_text() == OLD
-    assert not list(tmp_path.glob(".out.file.*"))    # no temporary file left behind
+    assert not list(tmp_path.glob(".out.file*"))    # no temporary file left behind
+
+
+def test_full_disk_keeps_previous_result_in_out_folder(tmp_path):
+    folder = tmp_path / "fitted"
+    folder.mkdir()
+    (folder / "result.json").write_text(OLD)
+    proc = _run_limited(["fit", SAMPLE, "--out", folder], tmp_path)
+    _assert_refused(proc, folder / "result.json")
+    assert [p.name for p in folder.iterdir()] == ["result.json"]
+    assert (folder / "result.json").read_text() == OLD
+
+
+def test_full_disk_keeps_previous_batch_summary(tmp_path):
+    # A finished batch, resumed under a full disk: the systems are not refitted, the
+    # summary files are rewritten, and the first of them that does not fit is named.
+    (tmp_path / "logs").mkdir()
+    (tmp_path / "logs" / "pair.csv").write_bytes(SAMPLE.read_bytes())
+    manifest = tmp_path / "manifest.csv"
+    manifest.write_text("id,log\npair,logs/pair.csv\n")
+    out = tmp_path / "batch"
+    assert main(["batch", str(manifest), "--out", str(out), "--pages", "none", "--quiet"]) == 0
+    before = {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()}
+    proc = _run_limited(["batch", manifest, "--out", out, "--pages", "none", "--quiet",
+                         "--resume"], tmp_path, limit=256)
+    assert proc.returncode == 2 and "Traceback" not in proc.stderr, proc.stderr
+    assert "File too large" in proc.stderr and ".tmp" not in proc.stderr
+    named = [name for name in before if str(out / name) in proc.stderr]
+    assert named and named[0].startswith(("summary", "index"))
+    assert {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()} == before
 
 
 def test_full_disk_keeps_previous_draws(tmp_path):
@@ -166,3 +197,13 @@ def test_failed_folder_build_keeps_old(tmp_path):
             raise RuntimeError("drawing failed")
     assert (folder / "a.txt").read_text() == "old"
     assert [p.name for p in tmp_path.iterdir()] == ["f"]
+
+
+def test_figure_name_with_dots_is_written_as_given(tmp_path):
+    # Found by the full-disk test of compare --figure: 'out.file.png' was written as
+    # 'out.png' (the stem's last dot taken for a suffix), possibly over another file.
+    from orbweigh.report.style import new_figure, save_figure
+    fig, _ = new_figure(3.0, 2.0)
+    written = save_figure(fig, tmp_path / "orbit.v2", ["png", "svg"])
+    assert sorted(written) == ["orbit.v2.png", "orbit.v2.svg"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["orbit.v2.png", "orbit.v2.svg"]

@@ -163,7 +163,7 @@ def save_figure(fig, stem, formats):
     written = {}
     with figure_style():
         for fmt in formats:
-            path = stem.with_suffix(f".{fmt}")
+            path = stem.with_name(f"{stem.name}.{fmt}")   # 'orbit.v2' -> 'orbit.v2.png'
             buffer = io.BytesIO()
             fig.savefig(buffer, format=fmt, metadata=_metadata(fmt))
             write_atomic(path, buffer.getvalue())
