@@ -350,3 +350,19 @@ def test_sort_script_in_a_browser(batch, tmp_path):
     untested = [k for k in rows if not np.isfinite(chi2[k])]   # kept in summary order
     assert ascending.split(",")[:len(tested)] == tested
     assert descending == ",".join(tested[::-1] + untested) + " descending"
+
+
+def test_page_of_a_system_whose_refit_failed(batch):
+    """A failed refit keeps the verdict, its tests and the residuals against the
+    catalogued orbit: the page shows them, and the failure, without the new-fit parts."""
+    from orbweigh.report.review import review_page
+    _, out, rows = batch
+    record = _record(out, "contradicted")
+    record.update(document=None, comparison=None, status="failed",
+                  error="fit: the search found no orbit")
+    page = review_page(record, [("batch.json", "batch record")])
+    assert "fit: the search found no orbit" in page and "id='fig-residuals'" in page
+    assert "id='fig-sky'" not in page and "data-element=" not in page
+    assert f"<h2>{curation.VERDICT_MARKS['contradicted']} contradicted</h2>" in page
+    fig = curation.plot_residuals_old_and_new(record)
+    assert [ax.get_title() for ax in fig.axes] == ["against the catalogued orbit", ""]
