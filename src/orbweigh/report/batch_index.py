@@ -18,18 +18,19 @@ from .review import CSS, TEST_NAMES, p_text, verdict_badge
 
 __all__ = ["index_page", "COLUMNS"]
 
-#: (summary column, header, unit, decimals 'fN' / significant digits 'gN') of the numbers.
+#: (summary column, header, unit, format) of the numbers: 'fN' N decimals, 'gN' N significant
+#: digits, 'err' at the place of the column's error ``<name>_err`` (the formatter's rule).
 COLUMNS = (("n_new", "new points", "", "i"),
            ("reduced_chi2_new", "\u03c7\u00b2/dof new", "", "f2"),
            ("p_decisive", "p that decided (test)", "", "p"),
-           ("P", "P", "yr", "g4"), ("e", "e", "", "f3"), ("a", "a", "\u2033", "g4"),
+           ("P", "P", "yr", "err"), ("e", "e", "", "err"), ("a", "a", "\u2033", "err"),
            ("max_element_change_sigma", "largest element change", "\u03c3", "f1"),
            ("max_separation_arcsec", "largest separation in 10 yr", "\u2033", "g3"),
            ("max_separation_sigma", "largest separation", "\u03c3", "f1"),
            ("mass_msun", "total mass", "M\u2609", "g3"))
 
 _EXTRA_CSS = """
-body{max-width:none;margin:1rem 1.2rem} table.index{font-size:.82rem}
+body{max-width:none;margin:1rem 1.2rem} table.index{font-size:.8rem;width:100%}
 table.index th{position:sticky;top:0;z-index:1;vertical-align:bottom;white-space:normal;
  max-width:7.5rem}
 table.index th button{font:inherit;font-weight:600;color:inherit;background:none;border:0;
@@ -38,9 +39,9 @@ table.index th button{font:inherit;font-weight:600;color:inherit;background:none
 table.index th[aria-sort=ascending] button::after{content:" \\25B2"}
 table.index th[aria-sort=descending] button::after{content:" \\25BC"}
 table.index tbody tr:nth-child(even) td{background:#f7f9fb}
-table.index tbody tr:hover td{background:#eef3f7} td.warnings-cell{max-width:26rem}
+table.index tbody tr:hover td{background:#eef3f7} td.warnings-cell{min-width:9rem}
 td.warnings-cell small{color:#5a4a2a} .unit{font-weight:400;color:#5a6b7b}
-td.error-cell{max-width:22rem;color:#7a2334} .tally .badge{margin-right:.3rem}
+td.num small{display:block;white-space:normal} td.error-cell{min-width:9rem;color:#7a2334;overflow-wrap:anywhere} .tally .badge{margin-right:.3rem}
 """
 
 # Sorts the table's body by the clicked column; data-value cells numerically, the rest as
@@ -94,6 +95,9 @@ def _number_cell(row, name, spec):
         return "<td class='num' data-value=''></td>"
     if spec == "i":
         text = str(int(value))
+    elif spec == "err":
+        error = float(row[f"{name}_err"])
+        text = fm.value_error_parts(value, error if np.isfinite(error) else None)[0]
     elif spec == "p":
         test = TEST_NAMES.get(row["decided_by"], "")
         text = f"{p_text(value)}" + (f" <small>({escape(test)})</small>" if test else "")

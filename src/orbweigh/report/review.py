@@ -135,6 +135,9 @@ def _verdict_section(record):
         parts.append(f"<p>{escape(rev['reason'])}</p>")
         if rev["n_new"]:
             parts += [_new_points(record), _tests_table(rev)]
+    elif record["status"] == "failed" and not record.get("verdict"):
+        parts.append("<p>No verdict: the system failed before its measurements could be "
+                     "tested (below).</p>")
     elif record.get("verdict") == "no previous orbit":
         parts.append("<p>The manifest gives no catalogued orbit: the system is only fitted.</p>")
     if record.get("fit_note"):
@@ -213,7 +216,9 @@ def _elements_table(record):
 def _png(fig):
     buffer = io.BytesIO()
     with style.figure_style():
-        fig.savefig(buffer, format="png", metadata={"Software": "orbweigh"})
+        # tight: the legends below the axes stay whole however many entries they have
+        fig.savefig(buffer, format="png", metadata={"Software": "orbweigh"},
+                    bbox_inches="tight", pad_inches=0.04)
     return base64.b64encode(buffer.getvalue()).decode("ascii")
 
 
@@ -261,8 +266,9 @@ def review_page(record, links=()):
             + (f" \u00b7 {link_list}" if link_list else "") + "</p>",
             f"<h1>{title}</h1>",
             f"<p class='meta'>{verdict_badge(record.get('verdict'), record['status'])} "
-            f"\u00b7 system seed {record['seed']} \u00b7 epochs as in the log "
-            f"({escape(fm.epoch_label(_scale(record)))})</p>",
+            f"\u00b7 system seed {record['seed']}"
+            + (f" \u00b7 epochs as in the log ({escape(fm.epoch_label(_scale(record)))})"
+               if record.get("epoch_scale") else "") + "</p>",
             _verdict_section(record), _problems_section(record), _figures_section(record)]
     if record.get("comparison") and record.get("document") is not None:
         body.append(_elements_table(record))
