@@ -460,3 +460,31 @@ def test_unprecessed_long_log_is_labelled_and_warned():
     assert doc["precession"]["applied"] is False
     assert any("not precessed" in w for w in doc["warnings"])
     assert "equinox of date, not precessed" in tb.residuals_table(doc)["theta_deg"].description
+
+
+def test_html_dynamical_parallax_in_words(tmp_path):
+    # The invented pair weighed by a dynamical parallax (Eker et al. 2018 relation through
+    # the masses module): the page states the magnitudes with their errors, the relation's
+    # scatter, and the parallax's median and intervals; no key of the block is dumped.
+    from orbweigh.masses import mass_blocks
+    from orbweigh.report.html import render_html
+    from report_fixtures import build_document
+
+    doc, draws = build_document()
+    blocks = mass_blocks(draws[:, 0], draws[:, 3], magnitudes=(4.9, 0.03, 5.8, 0.04),
+                         band="bol", seed=3)
+    doc.update(mass=blocks["mass"], parallax=blocks["parallax"])
+    page = _Page()
+    html = render_html(doc, {}, 3, "test")
+    page.feed(html)
+    row = page.table("parallax")[1]
+    plx = doc["parallax"]
+    assert row[0] == "dynamical \u03d6" and row[-1] == "used for the masses"
+    assert _close(row[1], plx["value"])
+    for text, key in zip((*_interval(row[2]), *_interval(row[3])),
+                         ("low", "high", "low95", "high95")):
+        assert _close(text, plx[key])
+    assert "magnitudes 4.900 \u00b1 0.030 and 5.800 \u00b1 0.040 (bol band" in html
+    assert "<details><summary>Iteration at the best (P, a)" in html
+    for key in ("relation_scatter", "magnitude_errors", "last_change_mas", "at_best"):
+        assert key not in html
