@@ -207,3 +207,17 @@ def test_figure_name_with_dots_is_written_as_given(tmp_path):
     written = save_figure(fig, tmp_path / "orbit.v2", ["png", "svg"])
     assert sorted(written) == ["orbit.v2.png", "orbit.v2.svg"]
     assert sorted(p.name for p in tmp_path.iterdir()) == ["orbit.v2.png", "orbit.v2.svg"]
+
+
+def test_table_digits_do_not_follow_numpy_print_options(tmp_path):
+    # A library imported beside orbweigh may switch numpy to its legacy printing (12
+    # digits); a written table must still hold every digit of a float64 (round trip).
+    import numpy as np
+    from astropy.table import Table
+
+    from orbweigh.files import write_table
+
+    value = 1.0 / 3.0
+    with np.printoptions(legacy="1.13"):
+        write_table(tmp_path / "t.ecsv", Table({"x": [value]}))
+    assert float(Table.read(tmp_path / "t.ecsv", format="ascii.ecsv")["x"][0]) == value

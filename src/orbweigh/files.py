@@ -16,6 +16,8 @@ import shutil
 import tempfile
 from pathlib import Path
 
+import numpy as np
+
 from .errors import OutputError
 
 __all__ = ["write_atomic", "write_table", "replace_folder", "check_target", "check_folder"]
@@ -94,7 +96,10 @@ def write_atomic(path, content, inputs=()):
 def write_table(path, table, fmt="ascii.ecsv", inputs=()):
     """Write an astropy Table through ``write_atomic`` (formats that accept a text stream)."""
     buffer = io.StringIO()
-    table.write(buffer, format=fmt)
+    # Numbers are written through numpy's printing, whose options any imported library may
+    # change (a legacy mode writes 12 digits only): the file's digits must not depend on it.
+    with np.printoptions(legacy=False):
+        table.write(buffer, format=fmt)
     write_atomic(path, buffer.getvalue(), inputs)
 
 
