@@ -92,3 +92,12 @@ def test_every_known_technique_has_its_fixed_look_whatever_else_the_log_holds():
     assert alone["speckle"] == crowded["speckle"] == style.TECHNIQUE_STYLE["speckle"]
     assert crowded["aaa"]["color"] == style.OTHER_TECHNIQUE_COLORS[0]
     assert crowded["lunar occultation"]["color"] == style.OTHER_TECHNIQUE_COLORS[1]
+
+
+@pytest.mark.parametrize("deficiency", (None, *_DEFICIENCIES))
+def test_verdict_colours_stay_apart(deficiency):
+    matrix = None if deficiency is None else _machado(deficiency)
+    lab = _lab([*style.VERDICT_PALETTE.values(), "#ffffff"], matrix)
+    smallest = min(colour.delta_E(lab[i], lab[j], method="CIE 2000")
+                   for i, j in itertools.combinations(range(len(lab)), 2))
+    assert smallest >= MIN_DELTA_E00, f"{deficiency or 'normal vision'}: {smallest:.1f}"

@@ -28,12 +28,14 @@ BAND = "#7a9cc6"
 NODES = "#8c8c8c"
 PERIASTRON = "#c0392b"
 
-#: Colour of each verdict class of a batch (``report.curation.verdict_class``): Paul Tol's
-#: high-contrast scheme (blue, yellow, red; "Colour Schemes", SRON/EPS/TN/09-002, 2021, from
-#: memory), distinct to colour-blind readers and in grey scale, plus black and grey. Pages
-#: set a shape beside each colour (``curation.VERDICT_MARKS``), never the colour alone.
-VERDICT_PALETTE = {"consistent": "#004488", "drifting": "#DDAA33", "contradicted": "#BB5566",
-                   "failed": "#000000", "other": "#888888"}
+#: Colour of each verdict class of a batch (``report.curation.verdict_class``): orbweigh's
+#: own, picked within the hue a curator expects (consistent green-teal, drifting amber,
+#: contradicted red) by scripts/pick_verdict_colours.py for the largest smallest CIEDE2000
+#: difference (18.1) in normal vision and under simulated deuteranopia, protanopia and
+#: tritanopia, with near-black and grey for the neutral classes; tests/test_style.py keeps
+#: it above 15. Pages set a shape beside each colour (``curation.VERDICT_MARKS``).
+VERDICT_PALETTE = {"consistent": "#3cc3d2", "drifting": "#f0a53c", "contradicted": "#b40000",
+                   "failed": "#262630", "other": "#8a8a8a"}
 
 #: The fixed look of each technique orbweigh knows (the keys of
 #: ``measurements.TECHNIQUE_DEFAULTS``): the same colour and marker in every report and batch
