@@ -13,6 +13,7 @@ import numpy as np
 
 from ..elements import CampbellElements
 from ..ephemeris import ephemeris
+from ..reductions import from_julian_year
 from . import figures as fg
 from . import style
 
@@ -133,26 +134,40 @@ def plot_residuals_old_and_new(record):
         fig, axes = style.new_figure(style.DOUBLE_COLUMN_IN, 4.2, nrows=2, ncols=2 if doc else 1,
                                      sharex=True, squeeze=False)
         unit, scale = fg.orbit_unit(doc) if doc else ("arcsec", 1.0)
-        _draw_old_residuals(axes[:, 0], rev, _old_colour(record), unit, scale)
+        to_axis, epoch_text = _epoch_axis(record)
+        _draw_old_residuals(axes[:, 0], rev, _old_colour(record), unit, scale, to_axis)
+        axes[1, 0].set_xlabel(epoch_text)
         if doc:
             fg.plot_residuals(doc, axes=(axes[0, 1], axes[1, 1]))
             axes[0, 1].set_title("against the new fit")
         last = rev.get("last_epoch_yr")
         if last is not None:
+            newest = max(last, *[r["epoch_yr"] for r in rev["residuals"]])
             for ax in axes.ravel():
-                ax.axvspan(last, max(last, *[r["epoch_yr"] for r in rev["residuals"]]),
-                           color=_old_colour(record), alpha=0.10, lw=0, zorder=0,
-                           gid="new epochs")
-                ax.axvline(last, color=_old_colour(record), lw=0.8, ls="--", zorder=1)
+                ax.axvspan(to_axis(last), to_axis(newest), color=_old_colour(record),
+                           alpha=0.10, lw=0, zorder=0, gid="new epochs")
+                ax.axvline(to_axis(last), color=_old_colour(record), lw=0.8, ls="--", zorder=1)
     return fig
 
 
-def _draw_old_residuals(axes, rev, colour, unit, scale):
+def _epoch_axis(record):
+    """(Julian year -> axis value, axis label) in the log's own epoch scale.
+
+    The same offset and label as ``figures.plot_residuals`` gives the new fit's column
+    (both columns hold the epochs of one log), so the shared axis reads one scale.
+    """
+    scale = record.get("epoch_scale") or "julian"
+    julian = np.array([r["epoch_yr"] for r in record["revision"]["residuals"]], float)
+    offset, label = fg.epoch_axis(from_julian_year(julian, scale), scale)
+    return (lambda years: from_julian_year(np.asarray(years, float), scale) - offset), label
+
+
+def _draw_old_residuals(axes, rev, colour, unit, scale, to_axis):
     ax_t, ax_r = axes
     rows = rev["residuals"]
     new = _new_mask(rows, rev.get("last_epoch_yr"))
     voting = np.array([r["status"] == "used" for r in rows], bool)
-    t = np.array([r["epoch_yr"] for r in rows], float)
+    t = to_axis([r["epoch_yr"] for r in rows])
     for ax, key, factor in ((ax_t, "d_theta_deg", 1.0), (ax_r, "d_rho_arcsec", scale)):
         values = np.array([r[key] for r in rows], float) * factor
         ax.axhline(0.0, color=style.NODES, lw=0.7, zorder=1)
@@ -167,5 +182,4 @@ def _draw_old_residuals(axes, rev, colour, unit, scale):
     ax_t.set_title("against the catalogued orbit")
     ax_t.set_ylabel(r"O$-$C in $\theta$ [deg]")
     ax_r.set_ylabel(rf"O$-$C in $\rho$ [{unit}]")
-    ax_r.set_xlabel("Epoch [Julian year]")
     ax_t.legend(loc="best", handlelength=1.0)
