@@ -111,6 +111,8 @@ def main():
                   "mass": (mass[np.isfinite(mass) & (plx_draws > 0)], true_mass)}
         for key, (v, t) in values.items():
             hits[key] += covered(v, t)
+        if (k + 1) % 25 == 0:
+            print(f"  {k + 1} systems done, CPU {time.process_time() - cpu0:.0f} s", flush=True)
     cpu, wall = time.process_time() - cpu0, time.perf_counter() - wall0
     print(f"{n_ok} systems sampled ({unconverged} not converged), {len(failed)} failed; "
           f"CPU {cpu:.0f} s, wall {wall:.0f} s")

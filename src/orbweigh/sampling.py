@@ -43,7 +43,7 @@ _A_PRIOR_FACTOR = 100.0
 # Median, central 68.27 % (1 sigma of a normal distribution) and central 95 % (as the masses).
 _PERCENTILES = (2.5, 15.865525393145708, 50.0, 84.13447460685429, 97.5)
 _CHECK_EVERY = 100             # steps between convergence checks (stopping rule)
-_TAU_SETTLED = 0.05            # relative change of tau between checks deemed settled
+_TAU_SETTLED = 0.10            # relative change of tau between checks deemed settled
 
 
 # ------------------------------------------------------------------- generic sampler
@@ -619,7 +619,8 @@ def format_posterior(block):
     for key, s in block["summary"].items():
         unit = fmt.epoch_label(s["scale"]) if "scale" in s else s["unit"]
         if s.get("fixed"):
-            lines.append(f"  {key:<8}{fmt.number(s['median'], 8):>14}  fixed {unit}".rstrip())
+            held = f"{unit} (held fixed)" if unit else "(held fixed)"
+            lines.append(f"  {key:<8}{fmt.number(s['median'], 8):>14}  {held}")
             continue
         median, low, high = fmt.interval_parts(s["median"], s["low"], s["high"])
         lines.append(f"  {key:<8}{median:>14}  [{low}, {high}] {unit}".rstrip())
