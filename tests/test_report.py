@@ -311,7 +311,7 @@ def test_html_residual_table_equals_json(report):
             "\u03c1 (arcsec)": "rho_arcsec", "\u03c3 \u03b8 (deg)": "sigma_theta_deg",
             "\u03c3 \u03c1 (arcsec)": "sigma_rho_arcsec", "computed \u03b8 (deg)": "theta_pred_deg",
             "computed \u03c1 (arcsec)": "rho_pred_arcsec", "log line": "line",
-            "status": "status", "technique": "technique", "reason": "reason", "note": "note"}
+            "status": "status", "technique": "technique_text", "reason": "reason", "note": "note"}
     for cells, row in zip(body, doc["residuals"]):
         for title, key in keys.items():
             text, value = cells[header.index(title)], row.get(key)

@@ -18,18 +18,29 @@ def _value(entry):
         ("" if entry.get("error") is not None else " (no error)")
 
 
-def _technique_lines(stats):
+def _technique_label(cls, rows):
+    """A technique class as a reader knows it: words, and an unknown one by its written names."""
+    if cls != "unknown":
+        return cls.replace("_", " ")
+    written = sorted({str(r["technique_text"]) for r in rows
+                      if r.get("technique") == cls and r.get("technique_text")})
+    return f"{', '.join(written)} (unknown)" if written else cls
+
+
+def _technique_lines(stats, rows=()):
     """Per technique: points, rms theta [deg], rms rho [mas], reduced chi2, sigma factor."""
     techniques = stats.get("techniques")
     if not techniques:
         return []
     scales = stats.get("technique_scales")
     factors = (scales or {}).get("factors", {})
+    labels = {name: _technique_label(name, rows) for name in techniques}
+    width = max(16, *(len(label) + 2 for label in labels.values()))
     out = ["By technique (fitted points; reduced chi2 with the sigmas as fitted)",
-           f"  {'technique':<16}{'points':>6}{'rms theta [deg]':>17}{'rms rho [mas]':>15}"
+           f"  {'technique':<{width}}{'points':>6}{'rms theta [deg]':>17}{'rms rho [mas]':>15}"
            f"{'reduced chi2':>14}" + ("   sigma factor" if scales else "")]
     for name, t in techniques.items():
-        row = (f"  {name:<16}{t['n_points']:>6}{fmt.number(t['rms_theta_deg'], 3):>17}"
+        row = (f"  {labels[name]:<{width}}{t['n_points']:>6}{fmt.number(t['rms_theta_deg'], 3):>17}"
                f"{fmt.number(1e3 * t['rms_rho_arcsec'], 3):>15}"
                f"{fmt.fixed(t['reduced_chi2'], 2):>14}")
         f = factors.get(name)
@@ -70,7 +81,7 @@ def format_result(doc):
                f"{100 * s['phase_coverage']:.0f}%, periods searched "
                f"{s['period_range_yr'][0]:.3g}-{s['period_range_yr'][1]:.4g} yr "
                f"({s['n_trials']} trials), {s['fit_seconds']:.2f} s")
-    out.extend(_technique_lines(s))
+    out.extend(_technique_lines(s, doc.get("residuals", ())))
     flagged = [r for r in doc["residuals"] if r["status"] not in ("used",)]
     if flagged:
         out.append("Rows not fitted as given")

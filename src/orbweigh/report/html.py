@@ -396,6 +396,13 @@ def _row_decimals(row, sigma_key, fallback):
     return fallback
 
 
+def _written_technique(row):
+    """The technique as the log wrote it; an unknown one says so (its default sigmas apply)."""
+    cls = row.get("technique")
+    written = str(row.get("technique_text") or cls or "")
+    return f"{written} (not a known technique)" if cls == "unknown" and written != cls else written
+
+
 def _normalised(row, key, sigma_key):
     value, sigma = row.get(key), row.get(sigma_key)
     if not isinstance(value, (int, float)) or not isinstance(sigma, (int, float)) or sigma <= 0:
@@ -436,7 +443,7 @@ def _residual_columns(doc):
         ("\u03c1 (arcsec)", rho("rho_arcsec"), True),
         ("\u03c3 \u03b8 (deg)", theta("sigma_theta_deg"), True),
         ("\u03c3 \u03c1 (arcsec)", rho("sigma_rho_arcsec"), True),
-        ("technique", text("technique"), False),
+        ("technique", _written_technique, False),
         ("computed \u03b8 (deg)", theta("theta_pred_deg"), True),
         ("computed \u03c1 (arcsec)", rho("rho_pred_arcsec"), True),
         ("note", text("note"), False))
@@ -488,7 +495,7 @@ def _fit_sentences(stats, doc):
 def _summary_section(doc):
     stats = doc.get("statistics") or {}
     scale = epoch_scale_of(doc)
-    techniques = Counter(str(r.get("technique")) for r in doc.get("residuals", [])
+    techniques = Counter(_written_technique(r) for r in doc.get("residuals", [])
                          if r.get("status") != "rejected")
     counts = [(label, stats[k]) for k, label in _COUNTS if k in stats]
     parts = ["<h2 id='data'>Data and fit</h2>",

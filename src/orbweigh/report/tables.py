@@ -237,8 +237,9 @@ def elements_table_latex(docs, names=None):
 def residuals_table(doc):
     """The residual rows as an astropy Table with units (rejected rows masked).
 
-    Columns follow ``RESIDUAL_COLUMNS`` (the document's keys; plus ``epoch_text``, the
-    epoch as written in the log, when the rows carry it); ``epoch`` is in the
+    Columns follow ``RESIDUAL_COLUMNS`` (the document's keys; plus ``epoch_text`` and
+    ``technique_text``, the epoch and the technique as written in the log, when the rows
+    carry them; ``technique`` is the class whose default sigmas apply); ``epoch`` is in the
     document's epoch scale (unit yr or d), ``epoch_yr`` in Julian years. Values are the
     JSON's, unrounded.
     """
@@ -251,10 +252,12 @@ def residuals_table(doc):
     columns = list(RESIDUAL_COLUMNS)
     if any("epoch_text" in r for r in rows):  # the epoch exactly as the log wrote it
         columns.insert(2, ("epoch_text", None))
+    if any("technique_text" in r for r in rows):  # the technique as the log wrote it
+        columns.insert(columns.index(("technique", None)) + 1, ("technique_text", None))
     for key, unit in columns:
         values = [r.get(key) for r in rows]
         missing = np.array([v is None for v in values], bool)
-        if key in ("epoch_text", "technique", "status", "reason", "note"):
+        if key in ("epoch_text", "technique", "technique_text", "status", "reason", "note"):
             data = np.array(["" if v is None else str(v) for v in values], dtype=str)
         elif key == "line":
             data = np.array([0 if v is None else int(v) for v in values], dtype=int)
