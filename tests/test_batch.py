@@ -283,7 +283,7 @@ def test_command_line(catalogue, tmp_path, capsys):
     assert f'href="systems/{key}/review.html"' in (out / "index.html").read_text()
     assert Table.read(out / "summary.ecsv")["link"][0] == f"systems/{key}/review.html"
     assert main(["batch", str(tmp_path / "none.csv"), "--out", str(out)]) == 2
-    assert "cannot read the manifest" in capsys.readouterr().err
+    assert "cannot read the file" in capsys.readouterr().err
     assert main(["batch", str(catalogue), "--out", str(out), "--workers", "2",
                  "--scheduler", "tcp://127.0.0.1:1"]) == 2
     assert "either --workers" in capsys.readouterr().err

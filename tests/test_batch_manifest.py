@@ -192,7 +192,7 @@ def test_whole_manifest_errors(folder, tmp_path):
         read_manifest(_write(folder, "id,log,paralax_mas\nx,a.csv,3\n"))
     with pytest.raises(InputError, match="no 'log' column"):
         read_manifest(_write(folder, "id,path\nx,a.csv\n"))
-    with pytest.raises(InputError, match="cannot read the manifest"):
+    with pytest.raises(InputError, match="cannot read the file"):
         read_manifest(tmp_path / "nothing.csv")
     with pytest.raises(InputError, match="lists no systems"):
         read_manifest(_write(folder, "id,log\n"))
@@ -228,3 +228,12 @@ def test_batch_command_refuses_repeated_ids_before_writing(folder, tmp_path, cap
     assert err.startswith(f"orbweigh batch: error: {path}: ids must be unique")
     assert "id 'A' on line 2 and line 4" in err and "Traceback" not in err
     assert not out.exists()
+
+
+def test_device_and_fifo_manifests_are_refused_at_once(tmp_path):
+    # A manifest path naming a device or a FIFO would block or read without end.
+    fifo = tmp_path / "manifest.csv"
+    os.mkfifo(fifo)
+    for path in (fifo, type(fifo)("/dev/zero")):
+        with pytest.raises(InputError, match="not a regular file"):
+            read_manifest(path)

@@ -47,7 +47,7 @@ from .elements import ELEMENT_KEYS, CampbellElements
 from .errors import InputError
 from .masses import MassInputError, check_mass_inputs
 from .reductions import epoch_unit, parse_declination, parse_epoch, parse_right_ascension
-from .tables import split_lines
+from .tables import read_bounded_bytes, split_lines
 
 __all__ = ["SystemEntry", "MANIFEST_KEYS", "read_manifest"]
 
@@ -110,6 +110,11 @@ class SystemEntry:
     problem: str | None = None
 
 
+#: Largest manifest read (about a million systems of one short line each); a device, a
+#: pipe or a runaway file is refused at once rather than read without end.
+MAX_MANIFEST_BYTES = 256 * 2 ** 20
+
+
 def read_manifest(path):
     """Read and validate a manifest (``.toml`` as TOML, anything else as CSV).
 
@@ -130,10 +135,9 @@ def read_manifest(path):
         missing columns).
     """
     path = Path(path)
+    data = read_bounded_bytes(path, MAX_MANIFEST_BYTES, what="manifest")
     try:
-        text = path.read_bytes().decode("utf-8-sig")   # a byte-order mark is not a character
-    except OSError as exc:
-        raise InputError(f"{path}: cannot read the manifest ({exc.strerror})") from None
+        text = data.decode("utf-8-sig")   # a byte-order mark is not a character
     except UnicodeDecodeError as exc:
         raise InputError(f"{path}: the manifest is not UTF-8 text ({exc.reason} at byte "
                          f"{exc.start})") from None
