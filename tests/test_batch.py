@@ -345,3 +345,21 @@ def test_warnings_column_strict_and_pages(tmp_path):
     assert rows["bad"]["status"] == "failed" and "line 4" in rows["bad"]["error"]
     assert rows["clean"]["status"] == "done"
     assert (tmp_path / "strict" / "systems" / system_key("clean") / "report.html").is_file()
+
+
+def test_a_log_turned_into_an_outward_link_after_reading_is_refused_by_the_worker(tmp_path):
+    # The manifest is read (paths inside its folder), then the log is swapped for a link
+    # leading out of the folder before the worker opens it: the worker checks again.
+    from orbweigh.batch import process_system
+    cat = tmp_path / "cat"
+    cat.mkdir()
+    _write_log(cat / "a.csv", TRUE, seed=1)
+    _write_log(tmp_path / "outside.csv", TRUE, seed=2)
+    (cat / "manifest.csv").write_text("id,log\na,a.csv\n")
+    [entry] = read_manifest(cat / "manifest.csv")
+    assert entry.problem is None
+    (cat / "a.csv").unlink()
+    (cat / "a.csv").symlink_to(tmp_path / "outside.csv")
+    record = process_system(entry, BatchOptions(seed=7, pages="none"))
+    assert record["status"] == "failed" and record["document"] is None
+    assert record["error"].startswith("log: ") and "now leads outside" in record["error"]
