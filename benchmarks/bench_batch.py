@@ -1,13 +1,19 @@
-"""Benchmark of ``orbweigh batch``: systems per second against the number of workers.
+"""Benchmark of ``orbweigh batch``: systems per second against the workers, the CPU time of
+each step per system, a Dask LocalCluster against the local pool, and memory.
 
 A synthetic catalogue (invented orbits, seeded noise) of N systems with ~50 measurements
-each; half carry a previous orbit (some correct, some with P off by 10 %). Each run is a
-full ``run_batch`` (revision check, fit without sampling, comparison, summary) without
-HTML reports, on a fresh output folder.
+each; half carry a previous orbit (some correct, some with P off by 10 %); ``--problems``
+plants flips, outliers and short logs (see ``make_catalogue``). Each run is a full
+``run_batch`` (revision check, fit without sampling, comparison, summary; pages as
+``--pages``, default none) on a fresh output folder, in a fresh process, so its peak
+memory is its own. Printed per run: wall time, systems/s, CPU of the main process and of
+the workers, the main process's peak RSS, and the load average (the machine may be shared).
 
-    python benchmarks/bench_batch.py                 # 1000 systems, 1 and 2 workers
-    python benchmarks/bench_batch.py --systems 200 --workers 2
-    python benchmarks/bench_batch.py --profile 20    # where the time goes, inline
+    python benchmarks/bench_batch.py                     # 1000 systems, 1 and 2 workers
+    python benchmarks/bench_batch.py --systems 200 --workers 2 --pages flagged
+    python benchmarks/bench_batch.py --systems 1000 --workers 2 --dask   # + LocalCluster
+    python benchmarks/bench_batch.py --memory 200 1000   # peak RSS against catalogue size
+    python benchmarks/bench_batch.py --profile 20        # cProfile of an inline run
 """
 from __future__ import annotations
 
@@ -82,38 +88,173 @@ def _plant(rng, k, t, theta, rho, sigma_rho):
     return t, theta, rho
 
 
-def _run(manifest, out, workers):
-    started = time.perf_counter()
-    table = run_batch(manifest, out, BatchOptions(seed=1, pages="none"), workers=workers,
-                      progress=False)
-    seconds = time.perf_counter() - started
-    failed = int((table["status"] == "failed").sum())
-    return seconds, failed
+def _one_run(manifest, out, workers, pages, dask):
+    """One batch in this process; its figures as a dict (see main's table)."""
+    import resource
+    started, cpu = time.perf_counter(), time.process_time()
+    if dask:
+        from dask.distributed import LocalCluster
+        with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True,
+                          dashboard_address=None) as cluster:
+            setup = time.perf_counter() - started
+            overhead = _dask_task_overhead(cluster.scheduler_address)
+            started = time.perf_counter()
+            table = run_batch(manifest, out, BatchOptions(seed=1, pages=pages),
+                              scheduler=cluster.scheduler_address, progress=False)
+            wall = time.perf_counter() - started
+    else:
+        setup, overhead = 0.0, None
+        table = run_batch(manifest, out, BatchOptions(seed=1, pages=pages), workers=workers,
+                          progress=False)
+        wall = time.perf_counter() - started
+    children = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return {"wall": wall, "setup": setup, "cpu_main": time.process_time() - cpu,
+            "cpu_workers": children.ru_utime + children.ru_stime,
+            "rss_main_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+            "failed": int((table["status"] == "failed").sum()), "n": len(table),
+            "task_overhead_ms": overhead, "steps": _step_seconds(Path(out)),
+            "disk": _disk_per_system(Path(out))}
+
+
+def _noop(x):
+    return x
+
+
+def _dask_task_overhead(address, n=200):
+    """Milliseconds per task of a do-nothing task: one at a time (latency) and n at once
+    (throughput), on the running cluster."""
+    from dask.distributed import Client
+    with Client(address) as client:
+        client.submit(_noop, -1, pure=False).result()
+        started = time.perf_counter()
+        for k in range(20):
+            client.submit(_noop, k, pure=False).result()
+        latency = (time.perf_counter() - started) / 20
+        started = time.perf_counter()
+        client.gather([client.submit(_noop, k, pure=False) for k in range(n)])
+        throughput = (time.perf_counter() - started) / n
+    return {"one at a time": 1000 * latency, f"{n} at once": 1000 * throughput}
+
+
+def _step_seconds(out):
+    """Mean CPU seconds per system of each step, from the records' ``cpu_seconds``."""
+    import json
+    totals, n = {}, 0
+    for path in out.glob("systems/*/batch.json"):
+        n += 1
+        for step, seconds in json.loads(path.read_text()).get("cpu_seconds", {}).items():
+            totals[step] = totals.get(step, 0.0) + seconds
+    return {step: seconds / max(n, 1) for step, seconds in totals.items()}
+
+
+def _disk_per_system(out):
+    """Mean bytes per system of each output file name, and of all of them."""
+    sizes, n = {}, max(1, len(list(out.glob("systems/*"))))
+    for path in out.glob("systems/*/*"):
+        sizes[path.name] = sizes.get(path.name, 0) + path.stat().st_size
+    return {name: size / n for name, size in sorted(sizes.items())} | {
+        "all": sum(sizes.values()) / n}
+
+
+def _payload_bytes(manifest, scratch):
+    """Pickled bytes per system sent to a worker (chunk arguments) and sent back."""
+    import pickle
+
+    from orbweigh.batch import _fit_chunk, input_hash
+    from orbweigh.manifest import read_manifest
+    options = BatchOptions(seed=1, pages="none")
+    items = [(e, input_hash(e, options)) for e in read_manifest(manifest)[:8]]
+    out = Path(scratch) / "out-payload"
+    sent = len(pickle.dumps((items, options, out))) / len(items)
+    back = len(pickle.dumps(_fit_chunk(items, options, out))) / len(items)
+    return sent, back
+
+
+def _in_fresh_process(manifest, out, workers, pages, dask):
+    import json
+    import subprocess
+    import sys
+    command = [sys.executable, __file__, "--one", str(manifest), str(out), str(workers), pages]
+    result = subprocess.run(command + (["--dask"] if dask else []), capture_output=True,
+                            text=True, check=True)
+    return json.loads(result.stdout.splitlines()[-1])
+
+
+def _report(label, n, run):
+    load = os.getloadavg()[0]
+    print(f"{label:>14s}  {run['wall']:7.1f}  {n / run['wall']:9.1f}  "
+          f"{1000 * run['cpu_main'] / n:8.1f}  {1000 * run['cpu_workers'] / n:8.1f}  "
+          f"{run['rss_main_mb']:7.0f}  {run['failed']:6d}  {load:5.2f}", flush=True)
+
+
+def _print_steps(run, n):
+    steps = run["steps"]
+    print("  CPU per system by step [ms]: " + ", ".join(
+        f"{k} {1000 * v:.1f}" for k, v in sorted(steps.items(), key=lambda kv: -kv[1])))
+    accounted = sum(steps.values()) * n
+    print(f"  workers' CPU not in a step (start-up, imports, transfer): "
+          f"{1000 * (run['cpu_workers'] - accounted) / n:.1f} ms per system")
+    print("  bytes per system on disk: " + ", ".join(
+        f"{k} {v / 1024:.1f} KiB" for k, v in run["disk"].items()))
 
 
 def main(argv=None):
+    import json
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--systems", type=int, default=1000)
     parser.add_argument("--points", type=int, default=50)
     parser.add_argument("--workers", type=int, nargs="+", default=[1, 2])
+    parser.add_argument("--pages", choices=("none", "flagged", "all"), default="none")
+    parser.add_argument("--problems", action="store_true")
+    parser.add_argument("--dask", action="store_true",
+                        help="also run on a Dask LocalCluster of the largest worker count")
+    parser.add_argument("--memory", type=int, nargs="+", metavar="N",
+                        help="peak RSS of 2-worker runs of these catalogue sizes instead")
     parser.add_argument("--profile", type=int, metavar="N", default=0,
                         help="profile an inline run of N systems instead")
+    parser.add_argument("--one", nargs=4, metavar=("MANIFEST", "OUT", "WORKERS", "PAGES"),
+                        help=argparse.SUPPRESS)     # one run, in the fresh process
     args = parser.parse_args(argv)
+    if args.one:
+        manifest, out, workers, pages = args.one
+        print(json.dumps(_one_run(manifest, out, int(workers), pages, args.dask)))
+        return
     with tempfile.TemporaryDirectory(prefix="orbweigh-bench-") as scratch:
-        manifest = make_catalogue(scratch, args.profile or args.systems, args.points)
+        sizes = args.memory or [args.profile or args.systems]
+        manifests = {n: make_catalogue(Path(scratch) / f"cat-{n}", n, args.points,
+                                       problems=args.problems) for n in sizes}
         if args.profile:
             profile = cProfile.Profile()
             profile.enable()
-            _run(manifest, Path(scratch) / "out-profile", 1)
+            run_batch(manifests[args.profile], Path(scratch) / "out-profile",
+                      BatchOptions(seed=1, pages=args.pages), workers=1, progress=False)
             profile.disable()
             pstats.Stats(profile).sort_stats("cumulative").print_stats(25)
             return
-        print(f"{args.systems} systems x {args.points} points, {os.cpu_count()} CPUs")
-        print("workers  seconds  systems/s  failed")
+        print(f"{os.cpu_count()} CPUs; pages {args.pages}; "
+              f"{'with' if args.problems else 'no'} planted problems; {args.points} points")
+        print(f"{'run':>14s}  {'wall s':>7s}  {'systems/s':>9s}  {'main ms':>8s}  "
+              f"{'work ms':>8s}  {'RSS MB':>7s}  {'failed':>6s}  {'load':>5s}")
+        if args.memory:
+            for n in sizes:
+                _report(f"{n} systems", n, _in_fresh_process(
+                    manifests[n], Path(scratch) / f"out-m{n}", 2, args.pages, False))
+            return
+        n = args.systems
         for workers in args.workers:
-            seconds, failed = _run(manifest, Path(scratch) / f"out-{workers}", workers)
-            print(f"{workers:7d}  {seconds:7.1f}  {args.systems / seconds:9.2f}  {failed:6d}",
-                  flush=True)
+            run = _in_fresh_process(manifests[n], Path(scratch) / f"out-{workers}", workers,
+                                    args.pages, False)
+            _report(f"pool {workers}", n, run)
+        _print_steps(run, n)
+        if args.dask:
+            workers = max(args.workers)
+            run = _in_fresh_process(manifests[n], Path(scratch) / "out-dask", workers,
+                                    args.pages, True)
+            _report(f"dask {workers}", n, run)
+            print(f"  cluster start {run['setup']:.1f} s (not in the wall time); per task: "
+                  + ", ".join(f"{k} {v:.1f} ms" for k, v in run["task_overhead_ms"].items()))
+        sent, back = _payload_bytes(manifests[n], scratch)
+        print(f"  pickled per system: {sent:.0f} B to the worker, {back:.0f} B back")
 
 
 if __name__ == "__main__":

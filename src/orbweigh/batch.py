@@ -1,10 +1,21 @@
 """Many systems at once: revision verdicts, refits, and parallel execution.
 
-``process_system(entry, options)`` does everything for one system of the manifest and
-returns a plain, picklable record; it never raises. ``run_batch`` runs it over the
+``process_system(entry, options)`` checks, fits and compares one system of the manifest
+and returns a plain, picklable record; it never raises. ``run_batch`` runs it over the
 manifest on a local process pool (default), in this process (``workers=1``), or on a
-Dask distributed cluster (``scheduler=ADDRESS``) - the same function in every case - and
-writes the outputs as records arrive.
+Dask distributed cluster (``scheduler=ADDRESS``) - the same functions in every case - in
+two phases:
+
+1. fits: the systems go to the workers in chunks (a worker imports once and serves many
+   systems; only manifest rows travel out); the worker writes each system's files and
+   sends back a short record (status, summary row, file hashes), never the documents;
+2. pages: the systems ``pages`` asks for get their review page and report, made by the
+   workers from the saved files, in parallel, after every fit is done.
+
+The main process alone appends each short record's summary row to
+``summary.running.jsonl`` as it arrives and holds nothing else per system, so its memory
+does not grow with the catalogue; the summary files are made from that stream at the end
+(each written whole), and the stream is removed.
 
 Determinism: each system gets its own seed, derived from the batch seed and the system
 id by SHA-256 (never Python's salted ``hash``), so the results do not depend on the
@@ -26,11 +37,13 @@ interrupted batch leaves no half-written file)::
 (SHA-256 of the manifest row, the bytes of its log (and RV log), the batch options and
 the orbweigh version), whose files still have the SHA-256 it recorded, and whose
 result.json passes ``result.load_result``; a finished system that fails these checks is
-fitted again, with a note on stderr. Workers read the logs by path: on a remote Dask cluster the
-manifest folder must be visible to the workers at the same path.
+fitted again, with a note on stderr. Workers read the logs and write the outputs by path:
+on a remote Dask cluster the manifest folder and the output folder must be visible to the
+workers at the same paths.
 """
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import math
@@ -45,8 +58,8 @@ from pathlib import Path
 
 import numpy as np
 
-from .errors import InputError, OrbweighError
-from .files import write_atomic
+from .errors import InputError, OrbweighError, OutputError
+from .files import LineLog, discard_temporaries, write_atomic
 from .manifest import read_manifest
 
 __all__ = ["BatchOptions", "system_seed", "system_key", "input_hash", "process_system",
@@ -106,7 +119,9 @@ def input_hash(entry, options):
 
 
 def _stage(record, name, func, *args, **kwargs):
-    """Run one step; on failure record '<step>: <reason>' and return None."""
+    """Run one step; on failure record '<step>: <reason>' and return None. Its CPU time
+    adds to ``record['cpu_seconds'][name]``."""
+    started = time.process_time()
     try:
         return func(*args, **kwargs)
     except OrbweighError as exc:
@@ -115,11 +130,14 @@ def _stage(record, name, func, *args, **kwargs):
         where = traceback.extract_tb(exc.__traceback__)[-1]
         record["error"] = (f"{name}: internal error {type(exc).__name__}: {exc} (at "
                            f"{Path(where.filename).name}, line {where.lineno})")
+    finally:
+        cpu = record["cpu_seconds"]
+        cpu[name] = cpu.get(name, 0.0) + time.process_time() - started
     return None
 
 
 def process_system(entry, options):
-    """Check, fit and compare one system; never raises.
+    """Check, fit and compare one system (no pages: see ``_add_pages``); never raises.
 
     Parameters
     ----------
@@ -134,18 +152,17 @@ def process_system(entry, options):
         written), ``seed``, ``status`` ('done' or 'failed'),
         ``error``, ``verdict`` (one of ``revision.VERDICTS``, 'no previous orbit' or
         None), ``revision`` (numbers behind the verdict), ``fitted``, ``fit_note``,
-        ``document`` (result document or None), ``comparison``, ``report``
-        ({file name: bytes} or None), ``seconds``, ``previous`` ({"elements", "errors"}
+        ``document`` (result document or None), ``comparison``, ``wants_page`` (whether
+        ``pages`` asks for its pages, made later from the saved files: ``run_batch``),
+        ``report`` (None here), ``seconds``, ``cpu_seconds`` ({step: CPU s}), ``previous`` ({"elements", "errors"}
         of the catalogued orbit, internal units, or None), ``epoch_scale`` (the log's).
     """
     started = time.perf_counter()
     record = _failed_record(entry, options)
     if entry.problem is None:
         _process(entry, options, record["seed"], record)
-        record["status"] = "failed" if record["error"] else "done"
-        if _wants_page(options.pages, record):
-            record["report"] = _pages(record)
-    record["status"] = "failed" if record["error"] else "done"     # a page may have failed
+        record["wants_page"] = _wants_page(options.pages, record)
+    record["status"] = "failed" if record["error"] else "done"
     record["seconds"] = time.perf_counter() - started
     return record
 
@@ -335,21 +352,37 @@ def _json_default(value):
     raise TypeError(f"cannot write {type(value).__name__} to JSON")
 
 
-def _save_record(out, record):
-    """Write a system's files; the record goes last, so it vouches for the others."""
+def _save_record(out, record, written=None):
+    """Write a system's files; the record goes last, so it vouches for the others.
+
+    ``written``: {file name: SHA-256} of the system's files already written (the pages
+    phase adds its pages to the fit's files)."""
     folder = out / "systems" / record["key"]
+    files = dict(written or {})
     contents = dict(record["report"] or {})
-    if record["document"] is not None:
+    if record["document"] is not None and "result.json" not in files:
         contents["result.json"] = _json_text(record["document"]).encode()
-    files = {}
     for name, content in sorted(contents.items()):
         write_atomic(folder / name, content)
         files[name] = hashlib.sha256(content).hexdigest()
     kept = {k: v for k, v in record.items() if k not in ("document", "report")}
-    kept["files"] = files
+    kept["files"] = dict(sorted(files.items()))
     kept["summary"] = _summary_row(record)
     write_atomic(folder / "batch.json", _json_text(kept))
     return kept
+
+
+def _load_record(out, key):
+    """A saved record with its result document, and the files it lists."""
+    folder = out / "systems" / key
+    record = json.loads((folder / "batch.json").read_text(encoding="utf-8"))
+    written = record.pop("files")
+    record.pop("summary", None)
+    record["document"] = (json.loads((folder / "result.json").read_text(encoding="utf-8"))
+                          if "result.json" in written else None)
+    record["report"] = None
+    record.setdefault("cpu_seconds", {})          # a record from before the step times
+    return record, written
 
 
 def _load_done(out, key, digest):
@@ -507,9 +540,15 @@ def _summary_latex(out, table):
     each system's result.json, so no document is held in memory)."""
     from .report.tables import elements_table_latex
     fitted = [row["id"] for row in table if row["fitted"]] if len(table) else []
-    docs = [json.loads((out / "systems" / system_key(i) / "result.json").read_text("utf-8"))
-            for i in fitted]
+    docs = [_table_part(json.loads((out / "systems" / system_key(i) / "result.json")
+                                   .read_text("utf-8"))) for i in fitted]
     return elements_table_latex(docs, names=fitted)
+
+
+def _table_part(doc):
+    """What the LaTeX table reads of a result: a catalogue's documents whole would not fit
+    in memory (residuals, covariance draws)."""
+    return {k: doc[k] for k in ("elements", "mass", "version") if k in doc}
 
 
 # ----------------------------------------------------------------------------- execution
@@ -521,25 +560,63 @@ def _failed_record(entry, options, error=None):
             "status": "failed", "error": error or entry.problem, "verdict": None, "revision": None,
             "fitted": False, "fit_note": None, "document": None, "comparison": None,
             "report": None, "warnings": [], "seconds": 0.0, "epoch_scale": None,
+            "wants_page": False, "cpu_seconds": {},
             "previous": None if entry.previous is None else {
                 "elements": entry.previous.to_keys(), "errors": dict(entry.previous_errors)}}
 
 
-def _chunks(n, workers):
-    """Index chunks: a few per worker and at most 16 systems each, so a worker's start-up
-    and each transfer serve many systems while an interrupt loses little work."""
-    size = max(1, min(16, n // (4 * workers)))
+#: What a worker sends back of a saved record: enough for the progress line, the summary
+#: row and the pages phase; the rest stays in the system's batch.json.
+_SHORT_KEYS = ("id", "key", "status", "verdict", "fitted", "fit_note", "error", "seconds",
+               "wants_page", "cpu_seconds", "files", "summary")
+
+
+def _short(saved):
+    return {k: saved.get(k) for k in _SHORT_KEYS}
+
+
+def _chunks(n, workers, most=16):
+    """Index chunks: a few per worker and at most ``most`` systems each, so a worker's
+    start-up and each transfer serve many systems while an interrupt loses little work."""
+    size = max(1, min(most, n // (4 * workers)))
     return [list(range(k, min(n, k + size))) for k in range(0, n, size)]
 
 
-def _process_chunk(entries, options):
-    return [process_system(entry, options) for entry in entries]
+def _fit_chunk(items, options, out):
+    """Worker: each (entry, input hash) processed and its files written; short records."""
+    return [_store(out, process_system(entry, options), digest) for entry, digest in items]
+
+
+def _store(out, record, digest):
+    record["input_hash"] = digest
+    started = time.process_time()
+    short = _short(_save_record(out, record))
+    short["cpu_seconds"] = dict(short["cpu_seconds"], save=time.process_time() - started)
+    return short
+
+
+def _page_chunk(keys, out):
+    """Worker: the pages of each system, made from its saved files (see _add_pages)."""
+    return [_add_pages(out, key) for key in keys]
+
+
+def _add_pages(out, key):
+    """The review page (and the fit's report) of a saved system; its record is written
+    again, last, listing the pages. A page that fails fails its system, with the reason."""
+    record, written = _load_record(out, key)
+    record["report"] = _pages(record)
+    record["status"] = "failed" if record["error"] else "done"
+    return _short(_save_record(out, record, written))
 
 
 def _collect_chunk(future, entries, options):
-    """Records of a finished chunk; a lost worker fails only its systems."""
+    """Records of a finished chunk; a lost worker fails only its systems.
+
+    A failed write (full disk, refused target) is fatal: it stops the batch."""
     try:
         return future.result()
+    except OutputError:
+        raise
     except Exception as exc:  # worker killed, out of memory, cluster gone: record why
         return [_failed_record(e, options, f"worker: {type(exc).__name__}: {exc}")
                 for e in entries]
@@ -570,54 +647,93 @@ def _stop_pool(pool):
         process.join(5.0)
 
 
-def _run_local(entries, options, workers):
-    """Yield (index, record) as systems finish on a local process pool (or inline)."""
+@contextlib.contextmanager
+def _executor(workers, scheduler):
+    """Where the work runs: None (this process), a local process pool or a Dask client;
+    a pool is stopped at once on any error or Ctrl-C in the body."""
+    if scheduler:
+        with _dask_client(scheduler) as client:
+            yield client
+        return
     if workers == 1:
-        for k, entry in enumerate(entries):
-            yield k, process_system(entry, options)
+        yield None
         return
     import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor, as_completed
+    from concurrent.futures import ProcessPoolExecutor
     # 'spawn': a forked child would inherit the progress bar's thread and any lock it holds
     pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("spawn"),
                                initializer=_worker_start, initargs=(os.getpid(),))
     try:
-        futures = {pool.submit(_process_chunk, [entries[k] for k in chunk], options): chunk
-                   for chunk in _chunks(len(entries), workers)}
-        for future in as_completed(futures):
-            chunk = futures[future]
-            yield from zip(chunk, _collect_chunk(future, [entries[k] for k in chunk], options))
+        yield pool
     except BaseException:  # Ctrl-C, a fatal write error, the consumer gone: stop now
         _stop_pool(pool)
         raise
     pool.shutdown()
 
 
-def _run_dask(entries, options, address):
-    """Yield (index, record) as systems finish on a Dask distributed cluster."""
+def _dask_client(address):
     try:
-        from dask.distributed import Client, as_completed
+        from dask.distributed import Client
     except ImportError:
         raise InputError("--scheduler needs dask.distributed, which is not installed: "
                          "pip install 'orbweigh[dask]' (or drop --scheduler to use local "
                          "worker processes)") from None
     try:
-        client = Client(address, timeout="20s")
+        return Client(address, timeout="20s")
     except (OSError, TimeoutError, ValueError) as exc:
         raise InputError(f"cannot reach the Dask scheduler at {address!r} ({exc}); start one "
                          "with 'dask scheduler' and workers with 'dask worker ADDRESS'") from None
-    n_workers = max(1, len(client.scheduler_info().get("workers", {})))
-    with client:
-        futures = {client.submit(_process_chunk, [entries[k] for k in chunk], options,
-                                 pure=False): chunk
-                   for chunk in _chunks(len(entries), n_workers)}
-        try:
-            for future in as_completed(futures):
-                chunk = futures[future]
-                yield from zip(chunk, _collect_chunk(future, [entries[k] for k in chunk],
-                                                     options))
-        finally:
-            client.cancel(list(futures))
+
+
+def _n_workers(executor, workers):
+    if executor is None or not hasattr(executor, "scheduler_info"):
+        return workers
+    return max(1, len(executor.scheduler_info().get("workers", {})))
+
+
+def _completed(executor, n_workers, func, chunks, *args):
+    """Yield (chunk, future) as ``func(chunk, *args)`` finishes for each chunk.
+
+    A few chunks per worker are in flight at a time (``_IN_FLIGHT``): the queue of a pool
+    or a Dask scheduler then holds a bounded number of tasks, however long the catalogue.
+    """
+    if executor is None:
+        from concurrent.futures import Future
+        for chunk in chunks:
+            future = Future()
+            try:
+                future.set_result(func(chunk, *args))
+            except Exception as exc:
+                future.set_exception(exc)
+            yield chunk, future
+        return
+    if hasattr(executor, "scheduler_info"):            # Dask
+        from dask.distributed import wait
+
+        def submit(chunk):
+            return executor.submit(func, chunk, *args, pure=False)
+    else:
+        from concurrent.futures import wait
+
+        def submit(chunk):
+            return executor.submit(func, chunk, *args)
+    waiting, running = iter(chunks), {}
+    try:
+        while True:
+            for chunk in waiting:
+                running[submit(chunk)] = chunk
+                if len(running) >= _IN_FLIGHT * n_workers:
+                    break
+            if not running:
+                return
+            for future in wait(list(running), return_when="FIRST_COMPLETED").done:
+                yield running.pop(future), future
+    finally:
+        if hasattr(executor, "cancel"):
+            executor.cancel(list(running))
+
+
+_IN_FLIGHT = 4    # chunks per worker submitted ahead
 
 
 def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=False,
@@ -660,42 +776,143 @@ def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=
 
 def _run_locked(manifest, out, entries, options, workers, scheduler, resume, progress):
     from tqdm import tqdm
-    records, todo, hashes = [None] * len(entries), [], {}
     bar = tqdm(total=len(entries), disable=not progress, file=sys.stderr, unit="system")
-    for k, entry in enumerate(entries):
+    stream = out / STREAM_NAME
+    pending = {}          # key -> input hash: handed to a worker, not heard back from yet
+    try:
+        with LineLog(stream) as rows, _executor(workers, scheduler) as executor:
+            todo, paged = _prepare(out, entries, options, resume, rows, bar)
+            paged += _fit_phase(out, todo, options, executor, workers, rows, bar, pending)
+            bar.close()
+            _page_phase(out, paged, executor, workers, rows, pending, progress)
+    except KeyboardInterrupt:
+        bar.close()
+        _write_summary(out, _streamed_rows(stream) + _rows_on_disk(out, pending), manifest,
+                       options, interrupted=True)
+        stream.unlink(missing_ok=True)
+        raise
+    table = _write_summary(out, _streamed_rows(stream), manifest, options)
+    stream.unlink()
+    return table
+
+
+#: Summary rows as systems finish (JSON lines), while the batch runs; read back for the
+#: summary, then removed. Only the main process writes it.
+STREAM_NAME = "summary.running.jsonl"
+
+
+def _stream_row(record):
+    return json.dumps({k: record[k] for k in ("key", "files", "summary")}, allow_nan=True,
+                      default=_json_default)
+
+
+def _streamed_rows(path):
+    """The latest row of each system in the stream (a system's pages update its row)."""
+    rows = {}
+    for line in LineLog.read_lines(path):
+        row = json.loads(line)
+        rows[row["key"]] = row
+    return list(rows.values())
+
+
+def _rows_on_disk(out, pending):
+    """Rows of the systems whose worker wrote their record but was stopped before it
+    reported back (after Ctrl-C); the temporary files of a cut write are removed."""
+    rows = []
+    for key, digest in pending.items():
+        folder = out / "systems" / key
+        discard_temporaries(folder)
+        try:
+            saved = json.loads((folder / "batch.json").read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        if saved.get("input_hash") == digest and "summary" in saved:
+            rows.append(saved)
+    return rows
+
+
+def _prepare(out, entries, options, resume, rows, bar):
+    """Systems to fit as [(entry, input hash)] and those owed pages as [(key, input hash)];
+    the systems done before (``resume``) and those that cannot start are accounted now."""
+    todo, paged = [], []
+    for entry in entries:
+        digest = None
         if entry.problem is None:
             try:
-                hashes[k] = input_hash(entry, options)
+                digest = input_hash(entry, options)
             except OSError as exc:
                 entry.problem = f"log: cannot read {exc.filename} ({exc.strerror})"
-        saved, note = (_load_done(out, system_key(entry.id), hashes[k])
-                       if resume and k in hashes else (None, None))
+        saved, note = (_load_done(out, system_key(entry.id), digest)
+                       if resume and digest else (None, None))
         if note is not None:
             bar.write(f"orbweigh batch: note: {entry.id}: {note}; fitting it again",
                       file=sys.stderr)
         if saved is not None:
-            records[k] = saved
             _announce(bar, saved, resumed=True)
+            rows.add(_stream_row(saved))
+            if saved.get("wants_page") and "review.html" not in saved["files"]:
+                paged.append((saved["key"], digest))
         elif entry.problem is not None:
-            records[k] = _finish(out, _failed_record(entry, options), None, bar)
+            record = _store(out, _failed_record(entry, options), None)
+            _announce(bar, record)
+            rows.add(_stream_row(record))
         else:
-            todo.append(k)
-    pending = [entries[k] for k in todo]
-    run = (_run_dask(pending, options, scheduler) if scheduler
-           else _run_local(pending, options, workers))
+            todo.append((entry, digest))
+    return todo, paged
+
+
+def _fit_phase(out, todo, options, executor, workers, rows, bar, pending):
+    """Check, fit and save every system in chunks; returns the keys that want pages."""
+    n_workers = _n_workers(executor, workers)
+    chunks = [[todo[k] for k in c] for c in _chunks(len(todo), n_workers)]
+    pending.update((system_key(entry.id), digest) for entry, digest in todo)
+    paged = []
+    for chunk, future in _completed(executor, n_workers, _fit_chunk, chunks, options, out):
+        records = _collect_chunk(future, [entry for entry, _ in chunk], options)
+        for (_, digest), record in zip(chunk, records):
+            if "summary" not in record:          # its worker was lost: saved here
+                record = _store(out, record, digest)
+            rows.add(_stream_row(record))
+            pending.pop(record["key"], None)
+            _announce(bar, record)
+            if record["wants_page"]:
+                paged.append((record["key"], digest))
+    return paged
+
+
+def _page_phase(out, paged, executor, workers, rows, pending, progress):
+    """The pages of the systems that want them ([(key, input hash)]), after the fits, in
+    parallel."""
+    if not paged:
+        return
+    from tqdm import tqdm
+    pending.update(paged)
+    keys = [key for key, _ in paged]
+    n_workers = _n_workers(executor, workers)
+    chunks = [[keys[k] for k in c] for c in _chunks(len(keys), n_workers, most=4)]
+    with tqdm(total=len(keys), disable=not progress, file=sys.stderr, unit="page",
+              desc="pages") as bar:
+        for chunk, future in _completed(executor, n_workers, _page_chunk, chunks, out):
+            for record in _collect_pages(future, chunk, out):
+                rows.add(_stream_row(record))
+                pending.pop(record["key"], None)
+                bar.update(1)
+
+
+def _collect_pages(future, keys, out):
+    """Records of a finished chunk of pages; a lost worker fails only its systems."""
     try:
-        for j, record in run:
-            records[todo[j]] = _finish(out, record, hashes[todo[j]], bar)
-    except KeyboardInterrupt:
-        run.close()             # stops the workers now
-        bar.close()
-        _write_summary(out, [r for r in records if r is not None], manifest, options,
-                       interrupted=True)
+        return future.result()
+    except OutputError:
         raise
-    finally:
-        run.close()             # a fatal write error stops the pool at once too
-    bar.close()
-    return _write_summary(out, records, manifest, options)
+    except Exception as exc:
+        records = []
+        for key in keys:
+            record, written = _load_record(out, key)
+            record["error"] = f"pages: worker: {type(exc).__name__}: {exc}"
+            record["status"] = "failed"
+            records.append(_short(_save_record(out, record, written)))
+        return records
 
 
 class _folder_lock:
@@ -749,13 +966,6 @@ def _alive(pid):
     except PermissionError:   # someone else's process: alive
         return True
     return True
-
-
-def _finish(out, record, digest, bar):
-    record["input_hash"] = digest
-    saved = _save_record(out, record)
-    _announce(bar, saved)
-    return saved
 
 
 def _value_error(value, error):

@@ -20,7 +20,8 @@ import numpy as np
 
 from .errors import OutputError
 
-__all__ = ["write_atomic", "write_table", "replace_folder", "check_target", "check_folder"]
+__all__ = ["write_atomic", "write_table", "replace_folder", "check_target", "check_folder",
+           "LineLog", "discard_temporaries"]
 
 
 def _umask():
@@ -91,6 +92,63 @@ def write_atomic(path, content, inputs=()):
     finally:
         if tmp is not None and os.path.exists(tmp):
             os.unlink(tmp)
+
+
+def discard_temporaries(folder):
+    """Remove the temporary files ``write_atomic`` left in ``folder`` when its process was
+    ended between writing and renaming (a stopped batch worker); their targets are intact."""
+    for leftover in Path(folder).glob(".*.tmp"):
+        leftover.unlink(missing_ok=True)
+
+
+class LineLog:
+    """A file written line by line while the work goes on, read back when it is done.
+
+    Unlike ``write_atomic`` the file grows in place: each line is flushed as it is added
+    (a reader, or the writer after a crash, sees every line added so far) and the file is
+    synced when closed. A last line without its newline was cut by a crash: readers skip
+    it (``read_lines``). Use as a context manager; one writer per file.
+    """
+
+    def __init__(self, path, inputs=()):
+        self.path = Path(path)
+        self._target = check_target(path, inputs)
+        self._fh = None
+
+    def __enter__(self):
+        try:
+            self._target.parent.mkdir(parents=True, exist_ok=True)
+            self._fh = open(self._target, "w", encoding="utf-8")
+        except OSError as exc:
+            raise OutputError(self.path, f"cannot be written: {exc.strerror or exc}") from None
+        return self
+
+    def add(self, line):
+        """Append one line (without its newline) and flush it."""
+        try:
+            self._fh.write(line + "\n")
+            self._fh.flush()
+        except OSError as exc:
+            raise OutputError(self.path, f"cannot be written: {exc.strerror or exc}") from None
+
+    def __exit__(self, *exc):
+        try:
+            self._fh.flush()
+            os.fsync(self._fh.fileno())
+        except OSError as err:
+            if exc[0] is None:
+                raise OutputError(self.path, f"cannot be written: {err.strerror or err}") \
+                    from None
+        finally:
+            self._fh.close()
+
+    @staticmethod
+    def read_lines(path):
+        """The complete lines of such a file (a cut last line left out)."""
+        with open(path, encoding="utf-8") as fh:
+            for line in fh:
+                if line.endswith("\n"):
+                    yield line[:-1]
 
 
 def write_table(path, table, fmt="ascii.ecsv", inputs=()):
