@@ -776,6 +776,12 @@ def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=
 
 def _run_locked(manifest, out, entries, options, workers, scheduler, resume, progress):
     from tqdm import tqdm
+
+    # What the summary needs, imported now: after a Ctrl-C the summary must not wait
+    # seconds for imports (astropy, the report package) on a busy machine.
+    import astropy.table  # noqa: F401
+
+    from .report import tables  # noqa: F401
     bar = tqdm(total=len(entries), disable=not progress, file=sys.stderr, unit="system")
     stream = out / STREAM_NAME
     pending = {}          # key -> input hash: handed to a worker, not heard back from yet
