@@ -797,6 +797,9 @@ def _run_locked(manifest, out, entries, options, workers, scheduler, resume, pro
                        options, interrupted=True)
         stream.unlink(missing_ok=True)
         raise
+    except BaseException:         # a failed write: the previous summary stays as it was
+        stream.unlink(missing_ok=True)
+        raise
     table = _write_summary(out, _streamed_rows(stream), manifest, options)
     stream.unlink()
     return table

@@ -132,15 +132,17 @@ class LineLog:
             raise OutputError(self.path, f"cannot be written: {exc.strerror or exc}") from None
 
     def __exit__(self, *exc):
+        error = None
         try:
             self._fh.flush()
             os.fsync(self._fh.fileno())
         except OSError as err:
-            if exc[0] is None:
-                raise OutputError(self.path, f"cannot be written: {err.strerror or err}") \
-                    from None
+            error = err
         finally:
-            self._fh.close()
+            with contextlib.suppress(OSError):    # a failed flush is reported once, below
+                self._fh.close()
+        if error is not None and exc[0] is None:
+            raise OutputError(self.path, f"cannot be written: {error.strerror or error}")
 
     @staticmethod
     def read_lines(path):
