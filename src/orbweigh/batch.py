@@ -59,7 +59,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError, OrbweighError, OutputError
-from .files import LineLog, discard_temporaries, write_atomic
+from .files import LineLog, discard_temporaries, write_atomic, write_table
 from .manifest import read_manifest
 
 __all__ = ["BatchOptions", "system_seed", "system_key", "input_hash", "process_system",
@@ -516,7 +516,6 @@ def _summary_table(records):
 
 
 def _write_summary(out, records, manifest, options, interrupted=False):
-    import io
     table = _summary_table(records)
     if interrupted:
         table.meta["interrupted"] = ("the batch was interrupted; this summary holds the "
@@ -525,9 +524,7 @@ def _write_summary(out, records, manifest, options, interrupted=False):
                        "only_contradicted": options.only_contradicted,
                        "pages": options.pages, "strict": options.strict})
     for fmt, name in (("ascii.ecsv", "summary.ecsv"), ("ascii.csv", "summary.csv")):
-        buffer = io.StringIO()
-        table.write(buffer, format=fmt)
-        write_atomic(out / name, buffer.getvalue())
+        write_table(out / name, table, fmt)
     from .report.batch_index import index_page
     write_atomic(out / "index.html", index_page(table, manifest, options.seed, URGENCY,
                                                 [urgency_class(row) for row in table]))
