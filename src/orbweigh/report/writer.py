@@ -27,7 +27,8 @@ _CAPTIONS = {
     "corner_elements": "Posterior of the seven elements (contours at 1 and 2 sigma; "
                        "dashed: 16th, 50th, 84th percentiles; red: best fit).",
     "corner_masses": "Posterior of the total mass with the parallax, semi-major axis and "
-                     "period it follows from (parallax drawn from its measurement).",
+                     "period it follows from (the parallax sampled with the elements from its "
+                     "Gaussian prior, or drawn from its measurement for a posterior without it).",
     "mass_histogram": "Total mass of the posterior draws: median, 68 % and 95 % intervals "
                       "of the plotted draws.",
     "radial_velocity": "Radial velocities of each component against the orbital phase (left, "
