@@ -363,3 +363,20 @@ def test_a_log_turned_into_an_outward_link_after_reading_is_refused_by_the_worke
     record = process_system(entry, BatchOptions(seed=7, pages="none"))
     assert record["status"] == "failed" and record["document"] is None
     assert record["error"].startswith("log: ") and "now leads outside" in record["error"]
+
+
+def test_progress_bar_only_on_a_terminal(tmp_path):
+    # With stderr a pipe or a file (a log), the per-system lines go to stdout and no
+    # carriage-return progress redraws fill the log.
+    import subprocess
+    import sys
+    cat = tmp_path / "cat"
+    cat.mkdir()
+    _write_log(cat / "a.csv", TRUE, seed=1)
+    (cat / "manifest.csv").write_text("id,log\na,a.csv\n")
+    done = subprocess.run([sys.executable, "-m", "orbweigh.cli.main", "batch",
+                           str(cat / "manifest.csv"), "--out", str(tmp_path / "out"),
+                           "--pages", "none"], capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr
+    assert "[1/1] a: no previous orbit" in done.stdout
+    assert "\r" not in done.stderr and "system/s" not in done.stderr

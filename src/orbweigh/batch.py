@@ -44,6 +44,7 @@ workers at the same paths.
 from __future__ import annotations
 
 import contextlib
+import functools
 import hashlib
 import json
 import math
@@ -779,7 +780,7 @@ def _run_locked(manifest, out, entries, options, workers, scheduler, resume, pro
     import astropy.table  # noqa: F401
 
     from .report import tables  # noqa: F401
-    bar = tqdm(total=len(entries), disable=not progress, file=sys.stderr, unit="system")
+    bar = tqdm(total=len(entries), disable=not progress, file=_bar_stream(), unit="system")
     stream = out / STREAM_NAME
     pending = {}          # key -> input hash: handed to a worker, not heard back from yet
     try:
@@ -896,7 +897,7 @@ def _page_phase(out, paged, executor, workers, rows, pending, progress):
     keys = [key for key, _ in paged]
     n_workers = _n_workers(executor, workers)
     chunks = [[keys[k] for k in c] for c in _chunks(len(keys), n_workers, most=4)]
-    with tqdm(total=len(keys), disable=not progress, file=sys.stderr, unit="page",
+    with tqdm(total=len(keys), disable=not progress, file=_bar_stream(), unit="page",
               desc="pages") as bar:
         for chunk, future in _completed(executor, n_workers, _page_chunk, chunks, out):
             for record in _collect_pages(future, chunk, out):
@@ -977,6 +978,18 @@ def _alive(pid):
 def _value_error(value, error):
     from .formatting import value_error
     return value_error(value, None if math.isnan(error) else error)
+
+
+def _bar_stream():
+    """Where the progress bar is drawn: the terminal, or nowhere when stderr is a file or a
+    pipe (a log would fill with carriage-return redraws); the per-system lines still go
+    to stdout either way."""
+    return sys.stderr if sys.stderr.isatty() else _null_stream()
+
+
+@functools.lru_cache(maxsize=1)
+def _null_stream():
+    return open(os.devnull, "w")
 
 
 def _announce(bar, record, resumed=False):
