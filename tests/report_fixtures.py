@@ -8,6 +8,7 @@ which is all the report needs.
 from __future__ import annotations
 
 import json
+from html.parser import HTMLParser
 
 import numpy as np
 
@@ -205,3 +206,26 @@ def write_document(tmp_path, with_draws=True, **kwargs):
     path = tmp_path / "result.json"
     path.write_text(json.dumps(doc, indent=1))
     return path
+
+
+class TableCells(HTMLParser):
+    """The text of every table cell of a page, row by row (``rows``: list of lists)."""
+
+    def __init__(self):
+        super().__init__()
+        self.rows, self.cell = [], None
+
+    def handle_starttag(self, tag, attrs):
+        if tag == "tr":
+            self.rows.append([])
+        elif tag in ("td", "th"):
+            self.cell = ""
+
+    def handle_endtag(self, tag):
+        if tag in ("td", "th"):
+            self.rows[-1].append(self.cell)
+            self.cell = None
+
+    def handle_data(self, data):
+        if self.cell is not None:
+            self.cell += data

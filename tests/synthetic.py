@@ -156,3 +156,13 @@ def make_log(elements, epochs, sigma_theta_deg, sigma_rho_arcsec, seed, flips=()
     theta[list(flips)] += 180.0
     return MeasurementSet.from_arrays(t, np.mod(theta, 360.0), rho, sig_t, sig_r,
                                       technique="synthetic", source=f"<synthetic seed={seed}>")
+
+
+def write_log_csv(path, log):
+    """Write a ``make_log`` log as a CSV measurement log (Julian-year epochs); returns path."""
+    lines = ["epoch,theta,rho,sigma_theta,sigma_rho"]
+    lines += [f"J{t:.6f},{th:.4f},{r:.5f},{st},{sr}" for t, th, r, st, sr in zip(
+        log.epoch_yr, log.theta_deg, log.rho_arcsec, log.sigma_theta_deg,
+        log.sigma_rho_arcsec)]
+    path.write_text("\n".join(lines) + "\n")
+    return path

@@ -280,27 +280,7 @@ def test_joint_posterior_matches_least_squares(synthetic):
 
 
 def test_report_shows_the_combined_solution_as_tables(synthetic, capsys, tmp_path):
-    from html.parser import HTMLParser
-
-    class Cells(HTMLParser):
-        def __init__(self):
-            super().__init__()
-            self.rows, self.cell = [], None
-
-        def handle_starttag(self, tag, attrs):
-            if tag == "tr":
-                self.rows.append([])
-            elif tag in ("td", "th"):
-                self.cell = ""
-
-        def handle_endtag(self, tag):
-            if tag in ("td", "th"):
-                self.rows[-1].append(self.cell)
-                self.cell = None
-
-        def handle_data(self, data):
-            if self.cell is not None:
-                self.cell += data
+    from report_fixtures import TableCells
 
     _, folder = synthetic
     rv = _write_velocities(folder / "rv_page.csv", 19, 300.0, 40.0)
@@ -311,7 +291,7 @@ def test_report_shows_the_combined_solution_as_tables(synthetic, capsys, tmp_pat
     doc = json.loads((tmp_path / "fit" / "result.json").read_text())
     html = (tmp_path / "page" / "report.html").read_text(encoding="utf-8")
     assert "<title>Orbit of Synthetic AB</title>" in html and doc["name"] == "Synthetic AB"
-    page = Cells()
+    page = TableCells()
     page.feed(html)
     rows = {r[0]: r for r in page.rows if r}
     for label, key in (("Systemic velocity", "gamma"), ("Velocity amplitude, primary", "K1"),

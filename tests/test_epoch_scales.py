@@ -20,6 +20,7 @@ import pytest
 from orbweigh.cli.main import main
 from orbweigh.reductions import from_julian_year
 
+from report_fixtures import TableCells
 from synthetic import make_log
 
 TRUTH = {"P": 14.0, "T": 2008.3, "e": 0.45, "a": 0.65, "i": 58.0, "Omega": 40.0,
@@ -130,30 +131,9 @@ def test_printed_values_stop_at_their_errors_place(outputs):
     assert checked > 20
 
 
-class _Cells(HTMLParser):
-    def __init__(self):
-        super().__init__()
-        self.rows, self.cell = [], None
-
-    def handle_starttag(self, tag, attrs):
-        if tag == "tr":
-            self.rows.append([])
-        elif tag in ("td", "th"):
-            self.cell = ""
-
-    def handle_endtag(self, tag):
-        if tag in ("td", "th"):
-            self.rows[-1].append(self.cell)
-            self.cell = None
-
-    def handle_data(self, data):
-        if self.cell is not None:
-            self.cell += data
-
-
 def test_report_tables_at_their_errors_place(outputs):
     _, _, page = outputs
-    cells = _Cells()
+    cells = TableCells()
     cells.feed(page.read_text(encoding="utf-8"))
     # Median and intervals ('a to b') of the posterior and mass tables: one decimal place.
     heads = [i for i, r in enumerate(cells.rows) if "68 % interval" in r]

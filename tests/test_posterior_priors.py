@@ -10,7 +10,7 @@ import math
 import numpy as np
 import pytest
 from scipy import stats
-from synthetic import make_log
+from synthetic import make_log, write_log_csv
 
 from orbweigh.cli.main import main
 from orbweigh.elements import ELEMENT_KEYS
@@ -116,13 +116,7 @@ def test_parallax_posterior_is_its_prior(tmp_path):
 
 
 def _write_log(path, seed=11):
-    log = make_log(TRUTH, EPOCHS, SIGMA_THETA, SIGMA_RHO, seed=seed)
-    lines = ["epoch,theta,rho,sigma_theta,sigma_rho"]
-    lines += [f"J{t:.6f},{th:.4f},{r:.5f},{st},{sr}" for t, th, r, st, sr in zip(
-        log.epoch_yr, log.theta_deg, log.rho_arcsec, log.sigma_theta_deg,
-        log.sigma_rho_arcsec)]
-    path.write_text("\n".join(lines) + "\n")
-    return path
+    return write_log_csv(path, make_log(TRUTH, EPOCHS, SIGMA_THETA, SIGMA_RHO, seed=seed))
 
 
 def test_fit_prints_and_records_the_priors_and_masses_use_the_sampled_parallax(

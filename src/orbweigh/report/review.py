@@ -11,7 +11,6 @@ Every number that decides something carries its full value in a ``data-value`` a
 from __future__ import annotations
 
 import base64
-import io
 from html import escape
 
 from .. import formatting as fm
@@ -214,12 +213,9 @@ def _elements_table(record):
 
 
 def _png(fig):
-    buffer = io.BytesIO()
-    with style.figure_style():
-        # tight: the legends below the axes stay whole however many entries they have
-        fig.savefig(buffer, format="png", metadata={"Software": "orbweigh"},
-                    bbox_inches="tight", pad_inches=0.04)
-    return base64.b64encode(buffer.getvalue()).decode("ascii")
+    # tight: the legends below the axes stay whole however many entries they have
+    png = style.figure_bytes(fig, "png", bbox_inches="tight", pad_inches=0.04)
+    return base64.b64encode(png).decode("ascii")
 
 
 def _figure(name, fig, caption):

@@ -16,7 +16,7 @@ __all__ = ["SINGLE_COLUMN_IN", "DOUBLE_COLUMN_IN", "INK", "ORBIT", "BAND", "NODE
            "PERIASTRON", "STATUS_STYLE", "VERDICT_PALETTE", "TECHNIQUE_STYLE",
            "OTHER_TECHNIQUE_COLORS", "OTHER_TECHNIQUE_MARKERS", "COMPONENT_STYLE", "KEY_ROW_PT",
            "KEY_FONT_PT", "technique_styles", "figure_style", "new_figure", "new_mosaic",
-           "save_figure", "angular_unit"]
+           "save_figure", "figure_bytes", "angular_unit"]
 
 SINGLE_COLUMN_IN = 3.4
 DOUBLE_COLUMN_IN = 7.0
@@ -159,17 +159,23 @@ def new_mosaic(width_in, height_in, layout, **mosaic):
     return fig, fig.subplot_mosaic(layout, **mosaic)
 
 
+def figure_bytes(fig, fmt="png", **savefig):
+    """``fig`` rendered as ``fmt`` in the house style with fixed metadata (``savefig``:
+    further ``Figure.savefig`` options, e.g. ``bbox_inches``)."""
+    buffer = io.BytesIO()
+    with figure_style():
+        fig.savefig(buffer, format=fmt, metadata=_metadata(fmt), **savefig)
+    return buffer.getvalue()
+
+
 def save_figure(fig, stem, formats):
     """Write ``fig`` as ``<stem>.<fmt>`` for each format; returns {filename: Path}."""
     stem = Path(stem)
     written = {}
-    with figure_style():
-        for fmt in formats:
-            path = stem.with_name(f"{stem.name}.{fmt}")   # 'orbit.v2' -> 'orbit.v2.png'
-            buffer = io.BytesIO()
-            fig.savefig(buffer, format=fmt, metadata=_metadata(fmt))
-            write_atomic(path, buffer.getvalue())
-            written[path.name] = path
+    for fmt in formats:
+        path = stem.with_name(f"{stem.name}.{fmt}")   # 'orbit.v2' -> 'orbit.v2.png'
+        write_atomic(path, figure_bytes(fig, fmt))
+        written[path.name] = path
     return written
 
 

@@ -1,7 +1,6 @@
 """Write a whole report of a result document: figures, HTML, LaTeX and ECSV tables."""
 from __future__ import annotations
 
-import io
 from pathlib import Path
 
 from ..errors import InputError
@@ -80,10 +79,7 @@ def _draws_file(doc):
 def _png_bytes(fig, written, name):
     if f"{name}.png" in written:
         return written[f"{name}.png"].read_bytes()
-    buffer = io.BytesIO()
-    with style.figure_style():
-        fig.savefig(buffer, format="png")
-    return buffer.getvalue()
+    return style.figure_bytes(fig, "png")
 
 
 def write_report(doc, out_dir, formats=FIGURE_FORMATS, seed=None, keep=(), name=None):
