@@ -6,7 +6,7 @@ their sign, pick the node, so Omega runs over [0, 360). The velocity convention 
 one of ``spectroscopic`` (ascending node: the secondary recedes there; omega1 = omega +
 180 deg).
 
-Fit (``fit_combined``): Levenberg-Marquardt (lmfit) on the concatenation of
+Fit (``fit_combined``): Levenberg-Marquardt (``bounded_least_squares``) on the concatenation of
 
 * the astrometric normalised tangential and radial residuals of the visual fit's final
   point set (quadrant-flipped rows corrected; outliers and excluded rows left out), and
@@ -35,6 +35,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from . import formatting as fmt
+from .bounded_least_squares import fit_bounded
 from .elements import ELEMENT_KEYS, CampbellElements, centre_angles, thiele_innes_from_campbell
 from .errors import InputError
 from .masses import format_mass_blocks, summarise, total_mass_msun
@@ -232,25 +233,16 @@ def _start(elements, data, shift_node):
 
 def _least_squares(v0, data, keys):
     """Levenberg-Marquardt on the joint residuals; (values, chi2, unscaled covariance)."""
-    import lmfit
+    lower = [_BOUNDS.get(k, (-np.inf, np.inf))[0] for k in keys]
+    upper = [_BOUNDS.get(k, (-np.inf, np.inf))[1] for k in keys]
+    start = [v0[k] if k != "e" else min(max(v0[k], 1e-4), _E_MAX - 1e-3) for k in keys]
 
-    pars = lmfit.Parameters()
-    for k in keys:
-        lo, hi = _BOUNDS.get(k, (-np.inf, np.inf))
-        value = v0[k] if k != "e" else min(max(v0[k], 1e-4), _E_MAX - 1e-3)
-        pars.add(k, value=value, min=lo, max=hi)
+    def resid(x):
+        return joint_residuals(dict(zip(keys, x)), data)
 
-    def resid(p):
-        return joint_residuals({k: p[k].value for k in keys}, data)
-
-    out = lmfit.minimize(resid, pars, method="leastsq", scale_covar=False)
-    values = {k: float(out.params[k].value) for k in keys}
-    chi2 = float(np.sum(resid(out.params) ** 2))
-    covar = getattr(out, "covar", None)
-    if covar is not None and list(out.var_names) != list(keys):
-        order = [list(out.var_names).index(k) for k in keys]
-        covar = covar[np.ix_(order, order)]
-    return values, chi2, covar
+    out = fit_bounded(resid, start, lower, upper, np.ones(len(keys), bool))
+    values = {k: float(v) for k, v in zip(keys, out.x)}
+    return values, float(np.sum(resid(out.x) ** 2)), out.covariance
 
 
 def fit_combined(solution, velocities):

@@ -2,8 +2,8 @@
 
 Two stages: ``refine_nonlinear`` polishes a grid cell in (P, e, T) with the Thiele-Innes
 constants still solved linearly (variable projection, exact Kepler solutions);
-``refine_full`` then fits all seven parameters with lmfit's Levenberg-Marquardt on the
-proper tangential and radial residuals. Both honour ``Constraints``: elements held at
+``refine_full`` then fits all seven parameters with Levenberg-Marquardt on the proper
+tangential and radial residuals (``bounded_least_squares``). Both honour ``Constraints``: elements held at
 given values and a period bound. When a Campbell element (a, i, Omega, omega) is held,
 the full refinement runs in Campbell elements instead (``refine_campbell``), since a
 fixed a or angle is a non-linear constraint on A, B, F, G.
@@ -16,6 +16,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .bounded_least_squares import fit_bounded
 from .elements import campbell_from_thiele_innes, thiele_innes_from_campbell
 from .kepler import eccentric_anomaly, mean_anomaly
 from .model import FIT_KEYS, normalised_residuals, residual_jacobian
@@ -134,41 +135,31 @@ def _period_limits(p0, constraints):
     return 1e-3 * p0, 1e3 * p0
 
 
-def _add_parameters(pars, values, constraints):
-    """P, T, e with their limits; held elements do not vary."""
+def _orbit_limits(values, constraints):
+    """Start, limits and varied flags of P, T, e: the period within its bound, e in
+    [0, 0.995) kept off its edges at the start; held elements do not vary."""
     lo, hi = _period_limits(values[0], constraints)
     fixed = constraints.fixed
-    pars.add("P", value=fixed.get("P", min(max(values[0], lo), hi)), min=lo, max=hi,
-             vary="P" not in fixed)
-    pars.add("T", value=fixed.get("T", values[1]), vary="T" not in fixed)
     e = fixed.get("e", min(max(values[2], 1e-4), _E_MAX - 1e-3))
-    pars.add("e", value=e, min=0.0, max=max(_E_MAX, e), vary="e" not in fixed)
+    start = [fixed.get("P", values[0]), fixed.get("T", values[1]), e]
+    return start, [lo, -np.inf, 0.0], [hi, np.inf, max(_E_MAX, e)], \
+        [k not in fixed for k in ("P", "T", "e")]
 
 
-def _minimize(resid, jacobian, pars, loss, max_nfev):
-    import lmfit
-
-    if loss == "linear":
-        return lmfit.minimize(resid, pars, method="leastsq", scale_covar=False, Dfun=jacobian,
-                              col_deriv=0, max_nfev=max_nfev)
-    return lmfit.minimize(resid, pars, method="least_squares", loss=loss,
-                          scale_covar=False, Dfun=jacobian, max_nfev=max_nfev)
-
-
-def _full_covariance(out, keys):
-    """lmfit's covariance of the varied parameters embedded in a 7x7 (zeros when held)."""
-    covar = getattr(out, "covar", None)
-    if covar is None:
-        return None
-    index = [keys.index(k) for k in out.var_names]
-    full = np.zeros((len(keys), len(keys)))
-    full[np.ix_(index, index)] = covar
-    return full
+def _solve(resid, jacobian, start, lower, upper, vary, loss, max_nfev):
+    """``fit_bounded`` with the covariance embedded in a full square (zeros when held)."""
+    out = fit_bounded(resid, start, lower, upper, vary, jacobian, loss, max_nfev)
+    full = None
+    if out.covariance is not None:
+        index = np.flatnonzero(vary)
+        full = np.zeros((len(start), len(start)))
+        full[np.ix_(index, index)] = out.covariance
+    return out.x, full, out.success
 
 
 def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear", max_nfev=None,
                 constraints=Constraints()):
-    """Least-squares fit of the seven parameters with lmfit.
+    """Least-squares fit of the seven parameters.
 
     Parameters
     ----------
@@ -178,7 +169,7 @@ def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear", m
         Epochs [Julian yr], position angles [deg], separations [arcsec] and sigmas.
     loss : {'linear', 'soft_l1', 'huber'}
         'linear' uses Levenberg-Marquardt; robust losses use scipy's trust-region
-        least squares through lmfit.
+        least squares (``bounded_least_squares``).
     max_nfev : int, optional
         Budget of model evaluations; ``success`` is False when it ran out.
     constraints : Constraints
@@ -194,30 +185,19 @@ def refine_full(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear", m
     if constraints.campbell:
         return refine_campbell(params0, t, theta, rho, sigma_theta, sigma_rho, loss,
                                max_nfev, constraints)
-    import lmfit
-
-    pars = lmfit.Parameters()
-    _add_parameters(pars, params0, constraints)
-    for key, value in zip("ABFG", params0[3:]):
-        pars.add(key, value=value)
-    free = [k for k in FIT_KEYS if pars[k].vary]
-
-    def values(p):
-        return np.array([p[k].value for k in FIT_KEYS])
+    start, lower, upper, vary = _orbit_limits(params0, constraints)
+    start, lower, upper = start + list(params0[3:]), lower + [-np.inf] * 4, upper + [np.inf] * 4
+    vary = vary + [True] * 4
 
     def resid(p):
-        r_theta, r_rho, _, _ = normalised_residuals(values(p), t, theta, rho,
-                                                    sigma_theta, sigma_rho)
+        r_theta, r_rho, _, _ = normalised_residuals(p, t, theta, rho, sigma_theta, sigma_rho)
         return np.concatenate([r_theta, r_rho])
 
     def jacobian(p):
-        jac = residual_jacobian(values(p), t, sigma_theta, sigma_rho)
-        return jac[:, [FIT_KEYS.index(k) for k in free]]
+        return residual_jacobian(p, t, sigma_theta, sigma_rho)
 
-    out = _minimize(resid, jacobian, pars, loss, max_nfev)
-    chi2 = float(np.sum(resid(out.params) ** 2))
-    return Refined(values(out.params), chi2, _full_covariance(out, list(FIT_KEYS)),
-                   bool(out.success))
+    x, cov, success = _solve(resid, jacobian, start, lower, upper, vary, loss, max_nfev)
+    return Refined(x, float(np.sum(resid(x) ** 2)), cov, success)
 
 
 def thiele_innes_jacobian(a, i_deg, node_deg, omega_deg):
@@ -259,25 +239,18 @@ def refine_campbell(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear
     Returns the solution in (P, T, e, A, B, F, G) with the covariance carried over
     exactly through the Thiele-Innes Jacobian (singular where held).
     """
-    import lmfit
-
-    pars = lmfit.Parameters()
-    _add_parameters(pars, params0, constraints)
-    start, fixed = _campbell_start(params0, constraints.fixed), constraints.fixed
-    pars.add("a", value=start["a"], min=0.0, vary="a" not in fixed)
-    pars.add("i", value=start["i"], min=0.0, max=180.0, vary="i" not in fixed)
-    pars.add("Omega", value=start["Omega"], vary="Omega" not in fixed)
-    pars.add("omega", value=start["omega"], vary="omega" not in fixed)
-    free = [k for k in CAMPBELL_KEYS if pars[k].vary]
-
-    def campbell(p):
-        return np.array([p[k].value for k in CAMPBELL_KEYS])
+    fixed = constraints.fixed
+    start, lower, upper, vary = _orbit_limits(params0, constraints)
+    campbell0 = _campbell_start(params0, fixed)
+    start += [campbell0[k] for k in CAMPBELL_KEYS[3:]]
+    lower, upper = lower + [0.0, 0.0, -np.inf, -np.inf], upper + [np.inf, 180.0, np.inf, np.inf]
+    vary = vary + [k not in fixed for k in CAMPBELL_KEYS[3:]]
 
     def to_fit(c):
         return np.concatenate([c[:3], thiele_innes_from_campbell(c[3], *np.radians(c[4:]))])
 
-    def resid(p):
-        r_theta, r_rho, _, _ = normalised_residuals(to_fit(campbell(p)), t, theta, rho,
+    def resid(c):
+        r_theta, r_rho, _, _ = normalised_residuals(to_fit(c), t, theta, rho,
                                                     sigma_theta, sigma_rho)
         return np.concatenate([r_theta, r_rho])
 
@@ -286,14 +259,10 @@ def refine_campbell(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear
         jac[3:, 3:] = thiele_innes_jacobian(*c[3:])
         return jac
 
-    def jacobian(p):
-        c = campbell(p)
-        jac = residual_jacobian(to_fit(c), t, sigma_theta, sigma_rho) @ chain(c)
-        return jac[:, [CAMPBELL_KEYS.index(k) for k in free]]
+    def jacobian(c):
+        return residual_jacobian(to_fit(c), t, sigma_theta, sigma_rho) @ chain(c)
 
-    out = _minimize(resid, jacobian, pars, loss, max_nfev)
-    c = campbell(out.params)
-    cov = _full_covariance(out, list(CAMPBELL_KEYS))
-    chi2 = float(np.sum(resid(out.params) ** 2))
+    c, cov, success = _solve(resid, jacobian, start, lower, upper, vary, loss, max_nfev)
+    chi2 = float(np.sum(resid(c) ** 2))
     return Refined(to_fit(c), chi2, None if cov is None else chain(c) @ cov @ chain(c).T,
-                   bool(out.success))
+                   success)

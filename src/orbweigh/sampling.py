@@ -168,8 +168,7 @@ def sample_posterior(log_prob, start_points, scales, names, walkers=DEFAULT_WALK
     -------
     PosteriorSample
     """
-    import emcee
-
+    emcee = _emcee()
     ndim = len(names)
     if walkers < 2 * ndim:
         raise InputError(f"--walkers: need at least {2 * ndim} walkers for {ndim} sampled "
@@ -194,6 +193,27 @@ def sample_posterior(log_prob, start_points, scales, names, walkers=DEFAULT_WALK
                              converged, int(seed))
     sample.warnings.extend(_diagnostics(sample, done, len(np.atleast_2d(start_points))))
     return sample
+
+
+def _emcee():
+    """emcee, imported without scipy.stats when nothing has loaded it yet.
+
+    emcee loads scipy.stats (0.7-0.9 s, a quarter of a sampled fit from the command line;
+    benchmarks/bench_likelihood.py) only for its KDE move, which it makes optional and
+    this module never uses; a None entry in sys.modules turns that import into the
+    ImportError emcee expects.
+    """
+    import sys
+
+    if "emcee" in sys.modules or "scipy.stats" in sys.modules:
+        import emcee
+        return emcee
+    sys.modules["scipy.stats"] = None
+    try:
+        import emcee
+    finally:
+        del sys.modules["scipy.stats"]
+    return emcee
 
 
 def _run_until_converged(sampler, p0, steps, progress):

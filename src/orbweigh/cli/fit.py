@@ -239,7 +239,7 @@ def _add_sampling_arguments(parser):
                              f"{', '.join(PRIOR_NAMES)}; units as --fix, parallax in mas), "
                              "e.g. --prior e=0.3,0.05; replaces that element's default "
                              "prior within the same support")
-    parser.add_argument("--quiet", action="store_true", help="no progress bar")
+    parser.add_argument("--quiet", action="store_true", help="no progress bar (it is drawn only on a terminal)")
 
 
 def _check_sampling_arguments(args):
@@ -318,7 +318,8 @@ def _add_posterior(doc, args):
         draws = where.with_name(where.stem + ".draws.ecsv")
     try:
         result = sample_document(doc, walkers=args.walkers, steps=args.steps, seed=args.seed,
-                                 priors=args.priors, progress=not args.quiet,
+                                 priors=args.priors,
+                                 progress=not args.quiet and sys.stderr.isatty(),
                                  parallax=None if args.parallax is None else
                                  tuple(args.parallax))
     except ValueError as exc:

@@ -1,0 +1,98 @@
+"""The bounded least-squares solver against closed-form and scipy answers."""
+import numpy as np
+import pytest
+from scipy.optimize import least_squares
+
+from orbweigh.bounded_least_squares import _Transform, fit_bounded
+
+RNG = np.random.default_rng(7)
+DESIGN = np.column_stack([np.ones(40), np.linspace(-1, 1, 40), np.linspace(-1, 1, 40) ** 2])
+TRUTH = np.array([1.5, -0.7, 0.3])
+DATA = DESIGN @ TRUTH + 0.05 * RNG.standard_normal(40)
+
+
+def residuals(x):
+    return (DESIGN @ x - DATA) / 0.05
+
+
+def jacobian(x):
+    return DESIGN / 0.05
+
+
+@pytest.mark.parametrize("with_jacobian", [True, False])
+def test_interior_solution_and_covariance_are_those_of_linear_least_squares(with_jacobian):
+    # A linear model: the solution is numpy's lstsq and the covariance inv(J^T J)
+    # (weighted least squares, any textbook), whatever the (inactive) bounds.
+    expected = np.linalg.lstsq(DESIGN / 0.05, DATA / 0.05, rcond=None)[0]
+    out = fit_bounded(residuals, [1.0, 0.0, 0.0], [0.0, -5.0, -np.inf], [10.0, np.inf, np.inf],
+                      [True, True, True], jacobian if with_jacobian else None)
+    assert out.success
+    np.testing.assert_allclose(out.x, expected, rtol=1e-6)
+    J = DESIGN / 0.05
+    np.testing.assert_allclose(out.covariance, np.linalg.inv(J.T @ J), rtol=1e-4, atol=1e-10)
+
+
+def test_active_bound_and_held_parameter_match_scipy_trust_region():
+    # Slope held at -0.7, intercept bounded above by 1.2 (the data want about 1.5):
+    # scipy's bounded trust-region solver on the two free parameters is the reference.
+    def reduced(v):
+        return residuals(np.array([v[0], -0.7, v[1]]))
+
+    ref = least_squares(reduced, [1.0, 0.0], bounds=([0.0, -np.inf], [1.2, np.inf]),
+                        xtol=1e-12, ftol=1e-12).x
+    out = fit_bounded(residuals, [1.0, -0.7, 0.0], [0.0, -np.inf, -np.inf],
+                      [1.2, np.inf, np.inf], [True, False, True], jacobian)
+    assert out.x[1] == -0.7
+    np.testing.assert_allclose(out.x[[0, 2]], ref, atol=1e-5)
+
+
+def test_robust_loss_matches_scipy_directly():
+    out = fit_bounded(residuals, [1.0, 0.0, 0.0], [-np.inf] * 3, [np.inf] * 3, [True] * 3,
+                      jacobian, loss="soft_l1")
+    ref = least_squares(residuals, [1.0, 0.0, 0.0], jac=jacobian, loss="soft_l1",
+                        method="trf", ftol=1e-8, xtol=1e-8, gtol=1e-8)
+    np.testing.assert_allclose(out.x, ref.x, rtol=1e-10)
+    np.testing.assert_allclose(out.covariance, np.linalg.inv(ref.jac.T @ ref.jac), rtol=1e-8)
+
+
+def test_spent_budget_returns_the_last_point_unconverged():
+    calls = []
+
+    def counted(x):
+        calls.append(np.array(x))
+        return residuals(x)
+
+    out = fit_bounded(counted, [9.0, 3.0, -2.0], [-np.inf] * 3, [np.inf] * 3, [True] * 3,
+                      max_nfev=2)
+    assert not out.success and out.covariance is None
+    np.testing.assert_array_equal(out.x, calls[-1])
+
+
+@pytest.mark.parametrize("lower, upper", [(0.0, 1.0), (0.0, np.inf), (-np.inf, 2.0),
+                                          (-np.inf, np.inf)])
+def test_internal_variable_round_trip_and_derivative(lower, upper):
+    transform = _Transform(np.array([lower]), np.array([upper]))
+    x = np.array([0.3])
+    u = transform.to_internal(x)
+    np.testing.assert_allclose(transform.to_external(u), x, rtol=1e-12)
+    h = 1e-6       # central difference of the external value
+    numeric = (transform.to_external(u + h) - transform.to_external(u - h)) / (2 * h)
+    np.testing.assert_allclose(transform.gradient(u), numeric, rtol=1e-6)
+
+
+def test_the_fit_and_sampling_path_does_not_load_scipy_stats():
+    # scipy.stats takes most of a second to import: a sampled fit from the command line
+    # (and each batch worker) should not pay it. Run in a clean interpreter.
+    import subprocess
+    import sys
+
+    code = ("import sys\n"
+            "from orbweigh import fitting, combined, sampling\n"
+            "from orbweigh.bounded_least_squares import fit_bounded\n"
+            "fit_bounded(lambda x: x - 1.0, [0.0], [-1.0], [2.0], [True], lambda x: [[1.0]])\n"
+            "emcee = sampling._emcee()\n"
+            "emcee.EnsembleSampler(4, 1, lambda q: -q @ q)\n"
+            "print('scipy.stats' in sys.modules)\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout
+    assert out.strip() == "False"
