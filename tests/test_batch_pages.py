@@ -24,6 +24,7 @@ from orbweigh.ephemeris import ephemeris
 from orbweigh.published import parse_elements_option
 from orbweigh.report import curation
 from orbweigh.result import elements_from_document
+from test_batch import summary_rows
 
 TRUE = CampbellElements(12.0, 2005.3, 0.4, 0.5, 50.0, 120.0, 60.0)
 # Catalogued orbits: one off by a little (Omega 2 deg), one off in every element.
@@ -83,9 +84,8 @@ def batch(tmp_path_factory):
         "planted,logs/planted.csv,,,,,,,,,,\n"
         "clean,logs/clean.csv,,,,,,,,,,\n")
     out = root / "out"
-    table = run_batch(cat / "manifest.csv", out, BatchOptions(seed=4), workers=1,
-                      progress=False)
-    return root, out, {row["id"]: row for row in table}
+    run_batch(cat / "manifest.csv", out, BatchOptions(seed=4), workers=1, progress=False)
+    return root, out, summary_rows(out)
 
 
 def _page(out, name):

@@ -14,8 +14,8 @@ two phases:
 
 The main process alone appends each short record's summary row to
 ``summary.running.jsonl`` as it arrives and holds nothing else per system, so its memory
-does not grow with the catalogue; the summary files are made from that stream at the end
-(each written whole), and the stream is removed.
+does not grow with the catalogue; at the end ``batch_summary`` makes the summary files
+from that stream in chunks (each file put in place whole), and the stream is removed.
 
 Determinism: each system gets its own seed, derived from the batch seed and the system
 id by SHA-256 (never Python's salted ``hash``), so the results do not depend on the
@@ -60,7 +60,7 @@ from pathlib import Path
 import numpy as np
 
 from .errors import InputError, OrbweighError, OutputError
-from .files import LineLog, discard_temporaries, write_atomic, write_table
+from .files import LineLog, discard_temporaries, write_atomic
 from .manifest import read_manifest
 
 __all__ = ["BatchOptions", "system_seed", "system_key", "input_hash", "process_system",
@@ -494,61 +494,6 @@ def _urgency(summary):
             summary["id"])
 
 
-def _summary_table(records):
-    from astropy.table import Table
-    rows = []
-    for rank, rec in enumerate(sorted(records, key=lambda r: _urgency(r["summary"])), 1):
-        row = dict(rec["summary"], rank=rank)
-        rows.append(row)
-        link = next((f for f in ("review.html", "report.html", "result.json")
-                     if f in rec["files"]),
-                    "batch.json")
-        row["link"] = f"systems/{rec['key']}/{link}"
-    blank = {float: float("nan"), int: 0, str: "", bool: False}  # a column a record predates
-    table = Table(rows=[[row.get(name, blank[t]) for name, t, _ in _SUMMARY_COLUMNS]
-                        for row in rows],
-                  names=[n for n, _, _ in _SUMMARY_COLUMNS],
-                  dtype=[t for _, t, _ in _SUMMARY_COLUMNS]) if rows else Table()
-    for name, _, unit in _SUMMARY_COLUMNS:
-        if unit and name in table.colnames:
-            table[name].unit = unit
-    table.meta["description"] = "orbweigh batch summary, most urgent first"
-    return table
-
-
-def _write_summary(out, records, manifest, options, interrupted=False):
-    table = _summary_table(records)
-    if interrupted:
-        table.meta["interrupted"] = ("the batch was interrupted; this summary holds the "
-                                     "systems finished so far (--resume continues)")
-    table.meta.update({"manifest": str(manifest), "seed": options.seed,
-                       "only_contradicted": options.only_contradicted,
-                       "pages": options.pages, "strict": options.strict})
-    for fmt, name in (("ascii.ecsv", "summary.ecsv"), ("ascii.csv", "summary.csv")):
-        write_table(out / name, table, fmt)
-    from .report.batch_index import index_page
-    write_atomic(out / "index.html", index_page(table, manifest, options.seed, URGENCY,
-                                                [urgency_class(row) for row in table]))
-    write_atomic(out / "summary.tex", _summary_latex(out, table))
-    return table
-
-
-def _summary_latex(out, table):
-    """The refitted orbits and masses, one LaTeX table in summary order (read back from
-    each system's result.json, so no document is held in memory)."""
-    from .report.tables import elements_table_latex
-    fitted = [row["id"] for row in table if row["fitted"]] if len(table) else []
-    docs = [_table_part(json.loads((out / "systems" / system_key(i) / "result.json")
-                                   .read_text("utf-8"))) for i in fitted]
-    return elements_table_latex(docs, names=fitted)
-
-
-def _table_part(doc):
-    """What the LaTeX table reads of a result: a catalogue's documents whole would not fit
-    in memory (residuals, covariance draws)."""
-    return {k: doc[k] for k in ("elements", "mass", "version") if k in doc}
-
-
 # ----------------------------------------------------------------------------- execution
 
 def _failed_record(entry, options, error=None):
@@ -756,8 +701,9 @@ def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=
 
     Returns
     -------
-    astropy.table.Table
-        The summary, most urgent first.
+    batch_summary.SummaryCounts
+        Systems, failures, warnings and verdicts, counted; the summary itself, most urgent
+        first, is in ``out``/summary.ecsv (a catalogue's rows are not held in memory).
     """
     options = options or BatchOptions()
     if options.pages not in ("flagged", "all", "none"):
@@ -779,6 +725,7 @@ def _run_locked(manifest, out, entries, options, workers, scheduler, resume, pro
     # seconds for imports (astropy, the report package) on a busy machine.
     import astropy.table  # noqa: F401
 
+    from .batch_summary import write_summary
     from .report import tables  # noqa: F401
     bar = tqdm(total=len(entries), disable=not progress, file=_bar_stream(), unit="system")
     stream = out / STREAM_NAME
@@ -791,35 +738,28 @@ def _run_locked(manifest, out, entries, options, workers, scheduler, resume, pro
             _page_phase(out, paged, executor, workers, rows, pending, progress)
     except KeyboardInterrupt:
         bar.close()
-        _write_summary(out, _streamed_rows(stream) + _rows_on_disk(out, pending), manifest,
-                       options, interrupted=True)
+        with LineLog(stream, append=True) as rows:
+            for saved in _rows_on_disk(out, pending):
+                rows.add(_stream_row(saved))
+        write_summary(out, stream, manifest, options, interrupted=True)
         stream.unlink(missing_ok=True)
         raise
     except BaseException:         # a failed write: the previous summary stays as it was
         stream.unlink(missing_ok=True)
         raise
-    table = _write_summary(out, _streamed_rows(stream), manifest, options)
+    counts = write_summary(out, stream, manifest, options)
     stream.unlink()
-    return table
+    return counts
 
 
 #: Summary rows as systems finish (JSON lines), while the batch runs; read back for the
-#: summary, then removed. Only the main process writes it.
+#: summary (``batch_summary``), then removed. Only the main process writes it.
 STREAM_NAME = "summary.running.jsonl"
 
 
 def _stream_row(record):
     return json.dumps({k: record[k] for k in ("key", "files", "summary")}, allow_nan=True,
                       default=_json_default)
-
-
-def _streamed_rows(path):
-    """The latest row of each system in the stream (a system's pages update its row)."""
-    rows = {}
-    for line in LineLog.read_lines(path):
-        row = json.loads(line)
-        rows[row["key"]] = row
-    return list(rows.values())
 
 
 def _rows_on_disk(out, pending):

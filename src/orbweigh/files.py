@@ -1,7 +1,9 @@
 """Every file orbweigh writes goes through here: whole or not at all.
 
 A file is written to a temporary file in its target folder, flushed, synced and renamed
-over the target, so a full disk or an interrupted run leaves the previous file intact.
+over the target, so a full disk or an interrupted run leaves the previous file intact;
+a file too large to hold at once is written piece by piece the same way (``AtomicFile``;
+a long table chunk by chunk: ``TableChunks``).
 The file gets the mode the user's umask gives a new file (``mkstemp`` alone gives 0600).
 A failure is reported naming the target, never the temporary file. A folder of several
 files (a report) is built in a temporary sibling and swapped in as a whole
@@ -20,8 +22,8 @@ import numpy as np
 
 from .errors import OutputError
 
-__all__ = ["write_atomic", "write_table", "replace_folder", "check_target", "check_folder",
-           "LineLog", "discard_temporaries"]
+__all__ = ["write_atomic", "AtomicFile", "write_table", "table_text", "TableChunks",
+           "replace_folder", "check_target", "check_folder", "LineLog", "discard_temporaries"]
 
 
 def _umask():
@@ -75,23 +77,65 @@ def write_atomic(path, content, inputs=()):
         The target is refused, or the write failed (full disk, no permission...); the
         previous file, if any, is left as it was.
     """
-    target = check_target(path, inputs)
-    data = content.encode("utf-8") if isinstance(content, str) else content
-    tmp = None
-    try:
-        target.parent.mkdir(parents=True, exist_ok=True)
-        fd, tmp = tempfile.mkstemp(dir=target.parent, prefix=f".{target.name}.", suffix=".tmp")
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.chmod(tmp, 0o666 & ~_umask())
-        os.replace(tmp, target)
-    except OSError as exc:
-        raise OutputError(path, f"cannot be written: {exc.strerror or exc}") from None
-    finally:
-        if tmp is not None and os.path.exists(tmp):
-            os.unlink(tmp)
+    with AtomicFile(path, inputs) as fh:
+        fh.write(content)
+
+
+class AtomicFile:
+    """A file written piece by piece and put in place whole: ``write_atomic`` for content
+    too large to hold at once.
+
+    Use as a context manager; ``write`` text (UTF-8) or bytes as often as needed. When the
+    block ends without an error the file is synced and renamed over the target; on any
+    error the temporary file is removed and the previous file, if any, stays as it was.
+    A failure of the file itself raises ``OutputError`` naming the target.
+    """
+
+    def __init__(self, path, inputs=()):
+        self.path = Path(path)
+        self._target = check_target(path, inputs)
+        self._fh = self._tmp = None
+
+    def _error(self, exc):
+        return OutputError(self.path, f"cannot be written: {exc.strerror or exc}")
+
+    def __enter__(self):
+        try:
+            self._target.parent.mkdir(parents=True, exist_ok=True)
+            fd, self._tmp = tempfile.mkstemp(dir=self._target.parent,
+                                             prefix=f".{self._target.name}.", suffix=".tmp")
+            self._fh = os.fdopen(fd, "wb")
+        except OSError as exc:
+            self._discard()
+            raise self._error(exc) from None
+        return self
+
+    def write(self, content):
+        """Append text or bytes."""
+        try:
+            self._fh.write(content.encode("utf-8") if isinstance(content, str) else content)
+        except OSError as exc:
+            raise self._error(exc) from None
+
+    def __exit__(self, exc_type, *exc):
+        try:
+            if exc_type is None:
+                self._fh.flush()
+                os.fsync(self._fh.fileno())
+                self._fh.close()
+                os.chmod(self._tmp, 0o666 & ~_umask())
+                os.replace(self._tmp, self._target)
+        except OSError as exc:
+            raise self._error(exc) from None
+        finally:
+            self._discard()
+
+    def _discard(self):
+        if self._fh is not None:
+            with contextlib.suppress(OSError):    # a failed write is reported already
+                self._fh.close()
+        if self._tmp is not None and os.path.exists(self._tmp):
+            os.unlink(self._tmp)
 
 
 def discard_temporaries(folder):
@@ -107,18 +151,20 @@ class LineLog:
     Unlike ``write_atomic`` the file grows in place: each line is flushed as it is added
     (a reader, or the writer after a crash, sees every line added so far) and the file is
     synced when closed. A last line without its newline was cut by a crash: readers skip
-    it (``read_lines``). Use as a context manager; one writer per file.
+    it (``read_lines``). Use as a context manager; one writer per file. ``append`` adds to
+    an existing file instead of starting it anew.
     """
 
-    def __init__(self, path, inputs=()):
+    def __init__(self, path, inputs=(), append=False):
         self.path = Path(path)
         self._target = check_target(path, inputs)
         self._fh = None
+        self._mode = "a" if append else "w"
 
     def __enter__(self):
         try:
             self._target.parent.mkdir(parents=True, exist_ok=True)
-            self._fh = open(self._target, "w", encoding="utf-8")
+            self._fh = open(self._target, self._mode, encoding="utf-8")
         except OSError as exc:
             raise OutputError(self.path, f"cannot be written: {exc.strerror or exc}") from None
         return self
@@ -152,15 +198,82 @@ class LineLog:
                 if line.endswith("\n"):
                     yield line[:-1]
 
+    @staticmethod
+    def read_offsets(path):
+        """(byte offset, line) of the complete lines of such a file, the line as bytes
+        without its newline: an offset reads its line again (``line_at``)."""
+        offset = 0
+        with open(path, "rb") as fh:
+            for line in fh:
+                if line.endswith(b"\n"):
+                    yield offset, line[:-1]
+                offset += len(line)
+
+    @staticmethod
+    def line_at(fh, offset):
+        """The line (bytes, without its newline) at ``offset`` of such a file open in binary
+        mode (``read_offsets``)."""
+        fh.seek(offset)
+        return fh.readline()[:-1]
+
 
 def write_table(path, table, fmt="ascii.ecsv", inputs=()):
     """Write an astropy Table through ``write_atomic`` (formats that accept a text stream)."""
+    write_atomic(path, table_text(table, fmt), inputs)
+
+
+def table_text(table, fmt="ascii.ecsv", **kwargs):
+    """An astropy Table as the text ``write_table`` writes (``kwargs`` to its writer)."""
     buffer = io.StringIO()
     # Numbers are written through numpy's printing, whose options any imported library may
     # change (a legacy mode writes 12 digits only): the file's digits must not depend on it.
     with np.printoptions(legacy=False):
-        table.write(buffer, format=fmt)
-    write_atomic(path, buffer.getvalue(), inputs)
+        table.write(buffer, format=fmt, **kwargs)
+    return buffer.getvalue()
+
+
+class TableChunks:
+    """A table too long to hold, written into an ``AtomicFile`` as consecutive chunks: the
+    same text as the chunks stacked into one table and rendered at once.
+
+    ``render(chunk)`` gives a chunk's text in full; ``empty`` is the text of the table
+    without rows. A render is the empty one with the chunk's lines inserted at one place
+    (after the header, before any footer): that holds for writers that put one row a line
+    and align nothing across rows (astropy's csv, ecsv and latex); a writer that pads
+    columns to their widest value is refused (ValueError), never written wrongly.
+    """
+
+    def __init__(self, file, render, empty):
+        self._file, self._render = file, render
+        self._empty = empty.splitlines(keepends=True)
+        self._head = self._foot = None
+
+    def add(self, chunk):
+        """Write the rows of one chunk (the header before the first one)."""
+        if not len(chunk):
+            return
+        lines = self._render(chunk).splitlines(keepends=True)
+        if self._head is None:
+            self._split(lines)
+            self._file.write("".join(self._head))
+        body = lines[len(self._head):len(lines) - len(self._foot)]
+        if lines[:len(self._head)] != self._head or lines[len(lines) - len(self._foot):] \
+                != self._foot or len(lines) < len(self._empty):
+            raise ValueError("this table format aligns its rows: it cannot be written in "
+                             "chunks")
+        self._file.write("".join(body))
+
+    def _split(self, lines):
+        """Header and footer: the longest run of leading lines the render shares with the
+        empty one, the rest of the empty one the footer."""
+        n = 0
+        while n < len(self._empty) and n < len(lines) and lines[n] == self._empty[n]:
+            n += 1
+        self._head, self._foot = self._empty[:n], self._empty[n:]
+
+    def close(self):
+        """The footer, or the empty table when no chunk had rows."""
+        self._file.write("".join(self._empty if self._head is None else self._foot))
 
 
 @contextlib.contextmanager

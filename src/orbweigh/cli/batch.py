@@ -45,13 +45,12 @@ def run(args):
                          "not both")
     options = BatchOptions(seed=args.seed, only_contradicted=args.only_contradicted,
                            pages=args.pages, strict=args.strict)
-    table = run_batch(args.manifest, args.out, options, workers=args.workers,
-                      scheduler=args.scheduler, resume=args.resume, progress=not args.quiet)
-    failed = int((table["status"] == "failed").sum()) if len(table) else 0
-    counts = {v: int((table["verdict"] == v).sum()) for v in set(table["verdict"]) if v}
+    counts = run_batch(args.manifest, args.out, options, workers=args.workers,
+                       scheduler=args.scheduler, resume=args.resume, progress=not args.quiet)
+    failed = counts.n_failed
     if not args.quiet:
-        tally = ", ".join(f"{n} {v}" for v, n in sorted(counts.items()))
-        systems = f"{len(table)} system" + ("" if len(table) == 1 else "s")
+        tally = ", ".join(f"{n} {v}" for v, n in sorted(counts.verdicts.items()))
+        systems = f"{counts.n_systems} system" + ("" if counts.n_systems == 1 else "s")
         print(f"{systems}{f' ({tally})' if tally else ''}; {failed} failed. Summary: "
               f"{args.out}/summary.ecsv, index: {args.out}/index.html")
     if failed:

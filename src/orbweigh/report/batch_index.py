@@ -1,5 +1,9 @@
 """The batch's ``index.html``: one row a system, most urgent first, sortable offline.
 
+Written in three parts (``index_head``, ``index_rows`` of each chunk of the summary,
+``index_foot``), so a long catalogue's index is made without holding its summary; above
+``INDEX_ROWS`` systems it lists the flagged ones only and counts the others.
+
 Self-contained: inline style (the review pages' verdict classes) and a small inline script
 that sorts the table by any column without a server - numbers by their ``data-value``
 (the full value; empty cells last whichever the direction), text alphabetically, the
@@ -16,7 +20,14 @@ import numpy as np
 from .. import formatting as fm
 from .review import CSS, TEST_NAMES, p_text, verdict_badge
 
-__all__ = ["index_page", "COLUMNS"]
+__all__ = ["index_head", "index_rows", "index_foot", "INDEX_ROWS", "COLUMNS"]
+
+#: Most systems an index lists: a longer one lists only those a curator looks at (up to
+#: this many) and counts the rest; summary.csv has them all. A row is ~0.9 kB of HTML
+#: (benchmarks/bench_summary.py): 2000 rows are ~2 MB, 100,000 would be ~90 MB, more than
+#: a browser opens and sorts comfortably (a page to act on, not an archive; common
+#: practice, no source).
+INDEX_ROWS = 2000
 
 #: (summary column, header, unit, format) of the numbers: 'fN' N decimals, 'gN' N significant
 #: digits, 'err' at the place of the column's error ``<name>_err`` (the formatter's rule).
@@ -128,47 +139,71 @@ def _row(row, order):
     return "<tr>" + "".join(cells) + "</tr>"
 
 
-def index_page(table, manifest, seed, urgency, classes):
-    """The index as one HTML string.
+def _tally(counts):
+    return " ".join(
+        f"{n} {verdict_badge('' if v == 'failed' else v, 'failed' if v == 'failed' else 'done')}"
+        for v, n in counts.items() if n)
+
+
+def _omitted_note(omitted, n_systems):
+    """Which systems a long index leaves out, counted by class, and where they are."""
+    n_listed = n_systems - sum(omitted.values())
+    return (f"<p class='meta omitted'>This index lists {n_listed} of the {n_systems} "
+            "systems: the first, in summary order, of those a curator looks at "
+            "(contradicted, drifting, failed or with warnings). Not listed: "
+            f"{_tally(omitted)}. Every system is in <a href='summary.csv'>summary.csv</a> "
+            "(and summary.ecsv), in the same order; the # column is the rank there.</p>\n")
+
+
+def index_head(manifest, seed, counts, n_warned, omitted=None):
+    """The index up to its first row.
 
     Parameters
     ----------
-    table : astropy.table.Table
-        The batch summary, most urgent first (``batch`` summary columns).
     manifest : str or Path
         The manifest; only its file name is shown.
     seed : int
         The batch seed.
-    urgency : sequence of str
-        Verdict classes, most urgent first (``batch.URGENCY``): the verdict column's order.
-    classes : sequence of str
-        The class in ``urgency`` of each row of ``table`` (``batch.urgency_class``).
+    counts : dict
+        {class: number of systems}, every class of ``batch.URGENCY`` in its order (most
+        urgent first), zeros included.
+    n_warned : int
+        Systems with warnings.
+    omitted : dict, optional
+        {class: number of systems not listed} when the index lists only some systems
+        (``INDEX_ROWS``).
     """
     from ..revision import ALPHA, ERROR_INFLATION
     head = ("<tr>" + _header("#", "", True) + _header("system", "", False)
             + "<th scope='col' data-type='num'><button type='button'>verdict</button></th>"
             + "".join(_header(label, unit, True) for _, label, unit, _ in COLUMNS)
             + _header("warnings", "", True) + _header("error", "", False) + "</tr>")
-    rows = [_row(row, urgency.index(c)) for row, c in zip(table, classes)]
-    tally = [f"{classes.count(v)} "
-             f"{verdict_badge('' if v == 'failed' else v, 'failed' if v == 'failed' else 'done')}"
-             for v in urgency if v in classes]
-    warned = int(np.sum(table["n_warnings"] > 0)) if len(table) else 0
     name = escape(Path(manifest).name)
-    count = f"{len(table)} {'system' if len(table) == 1 else 'systems'}"
+    n_systems = sum(counts.values())
+    count = f"{n_systems} {'system' if n_systems == 1 else 'systems'}"
     return ("<!DOCTYPE html>\n<html lang='en'><head><meta charset='utf-8'>"
             "<meta name='viewport' content='width=device-width, initial-scale=1'>"
             f"<title>orbweigh batch: {name}</title><style>{CSS}{_EXTRA_CSS}</style></head>"
             f"<body>\n<h1>Batch of {name}</h1>\n"
-            f"<p class='tally'>{count}, most urgent first: {' '.join(tally) or 'none'}"
-            + (f" \u00b7 <span class='warn'>&#9888; {warned} with warnings</span>" if warned
-               else "") + "</p>\n"
-            f"<p class='meta'>Batch seed {seed}. The verdict tests the new points against "
+            f"<p class='tally'>{count}, most urgent first: {_tally(counts) or 'none'}"
+            + (f" \u00b7 <span class='warn'>&#9888; {n_warned} with warnings</span>"
+               if n_warned else "") + "</p>\n"
+            + (_omitted_note(omitted, n_systems) if omitted else "")
+            + f"<p class='meta'>Batch seed {seed}. The verdict tests the new points against "
             f"the catalogued orbit at the {fm.number(ALPHA)} level: contradicted = rejected "
             f"even with every \u03c3 \u00d7 {ERROR_INFLATION:g}; drifting = rejected as "
             "stated or by an offset and trend; the p-value shown is the one that decided "
             "(for consistent: the test closest to rejecting). Click a column header (or "
             "Tab to it and press Enter) to sort; again to reverse.</p>\n"
-            f"<table class='index' id='systems'>\n<thead>{head}</thead>\n<tbody>\n"
-            + "\n".join(rows) + f"\n</tbody></table>\n<script>{_SCRIPT}</script>\n"
-            "</body></html>\n")
+            f"<table class='index' id='systems'>\n<thead>{head}</thead>\n<tbody>\n")
+
+
+def index_rows(rows, orders):
+    """The index rows of summary rows (``batch`` summary columns), one a line; ``orders``:
+    each row's class as its place in ``batch.URGENCY`` (the verdict column's sort order)."""
+    return "".join(_row(row, order) + "\n" for row, order in zip(rows, orders))
+
+
+def index_foot():
+    """The index after its last row."""
+    return f"</tbody></table>\n<script>{_SCRIPT}</script>\n</body></html>\n"

@@ -199,7 +199,7 @@ def elements_latex(doc, name=None):
     return _write_latex(table, caption, "tab:orbit", "llrl", "elements", doc.get("version"))
 
 
-def elements_table_latex(docs, names=None):
+def elements_table_latex(docs, names=None, version=None):
     """One LaTeX table of many systems (``summary.tex``): a row per system with P, T, e, a,
     i, Omega, omega and the total mass, written as ``elements_latex`` writes them.
 
@@ -209,6 +209,9 @@ def elements_table_latex(docs, names=None):
         Result documents (each with its own epoch scale: T says it per row).
     names : sequence of str, optional
         System names (default: each log's stem).
+    version : str, optional
+        The orbweigh version named in the header (default: the first document's), so a
+        table written in parts (``files.TableChunks``) has one header.
     """
     from astropy.table import Table
     names = list(names) if names is not None else [None] * len(docs)
@@ -230,7 +233,8 @@ def elements_table_latex(docs, names=None):
     caption = ("Orbital elements and total masses (1$\\sigma$ uncertainties or 16th--84th "
                "percentile intervals; $T$ in each log's epoch scale: B Besselian, J Julian "
                "year).")
-    version = docs[0].get("version") if docs else ""
+    if version is None:
+        version = docs[0].get("version") if docs else ""
     return _write_latex(table, caption, "tab:systems", "l" + "r" * 8, "summary", version)
 
 
