@@ -99,19 +99,19 @@ def _one_run(manifest, out, workers, pages, dask):
             setup = time.perf_counter() - started
             overhead = _dask_task_overhead(cluster.scheduler_address)
             started = time.perf_counter()
-            table = run_batch(manifest, out, BatchOptions(seed=1, pages=pages),
-                              scheduler=cluster.scheduler_address, progress=False)
+            counts = run_batch(manifest, out, BatchOptions(seed=1, pages=pages),
+                               scheduler=cluster.scheduler_address, progress=False)
             wall = time.perf_counter() - started
     else:
         setup, overhead = 0.0, None
-        table = run_batch(manifest, out, BatchOptions(seed=1, pages=pages), workers=workers,
-                          progress=False)
+        counts = run_batch(manifest, out, BatchOptions(seed=1, pages=pages), workers=workers,
+                           progress=False)
         wall = time.perf_counter() - started
     children = resource.getrusage(resource.RUSAGE_CHILDREN)
     return {"wall": wall, "setup": setup, "cpu_main": time.process_time() - cpu,
             "cpu_workers": children.ru_utime + children.ru_stime,
             "rss_main_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
-            "failed": int((table["status"] == "failed").sum()), "n": len(table),
+            "failed": counts.n_failed, "n": counts.n_systems,
             "task_overhead_ms": overhead, "steps": _step_seconds(Path(out)),
             "disk": _disk_per_system(Path(out))}
 
