@@ -3,6 +3,7 @@ brentq on the defining equation (relations written here from the published coeff
 and its Monte Carlo interval against first-order propagation through that fixed point."""
 import json
 import math
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -163,3 +164,28 @@ def test_cli_prints_one_iteration_line_and_an_honest_interval(tmp_path, capsys):
     assert main(["mass", str(path), "--magnitudes", "3.8", "0.05", "4.4", "--band",
                  "bol"]) == 2
     assert "M1 M2 or M1 ERR1 M2 ERR2" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("band, says", [("bol", "assumed 0.1 dex"), ("K", "from memory")])
+def test_an_unpublished_scatter_is_called_so_in_output_help_and_docs(tmp_path, capsys, band,
+                                                                     says):
+    # The Eker et al. 2018 scatter is assumed, not read from the paper; the Mann et al.
+    # 2019 one is quoted from memory. The printed caveat, the JSON block, --help and the
+    # document reference must all say so plainly.
+    path = _elements_doc(tmp_path)
+    mags = ["3.8", "0.05", "4.4", "0.08"] if band == "bol" else ["6.0", "0.05", "7.0", "0.05"]
+    assert main(["mass", str(path), "--magnitudes", *mags, "--band", band,
+                 "--json", str(tmp_path / "m.json")]) == 0
+    out = capsys.readouterr().out
+    assert out.count(says) >= 2          # the warning and the relation-scatter line
+    doc = json.loads((tmp_path / "m.json").read_text())
+    assert says in doc["parallax"]["relation_scatter"]["source"]
+    with pytest.raises(SystemExit):
+        main(["fit", "--help"])
+    helped = " ".join(capsys.readouterr().out.split())
+    assert ("scatter assumed, not the paper's" if band == "bol"
+            else "scatter quoted from memory of the paper") in helped
+    reference = " ".join((Path(__file__).parent.parent / "docs" / "result-document.md")
+                         .read_text().split())
+    assert ("is assumed, not a value of Eker et al. 2018" if band == "bol"
+            else "quoted from memory of Mann et al. 2019") in reference

@@ -66,6 +66,41 @@ def test_strong_prior_pulls_as_the_product_of_gaussians(well_covered, key):
     assert result.priors[key].startswith("Gaussian N(")
 
 
+def test_effective_draws_by_hand():
+    # Kish's effective sample size (sum w)^2 / sum w^2 (Kish, Survey Sampling, 1965,
+    # from memory), by hand: equal weights count fully; weights 1, 1, 0, 0 count as 2;
+    # weights 1, 0.5, 0.5 as 4 / 1.5 = 2.6667.
+    from orbweigh.sampling import _resample
+    rng = np.random.default_rng(0)
+    draws = np.arange(12.0).reshape(4, 3)
+    assert _resample(draws, np.zeros(4), rng)[1] == pytest.approx(4.0)
+    assert _resample(draws, np.array([0.0, 0.0, -np.inf, -np.inf]), rng)[1] == pytest.approx(2.0)
+    assert _resample(draws[:3], np.log([1.0, 0.5, 0.5]), rng)[1] == pytest.approx(8 / 3)
+
+
+def test_a_narrow_prior_leaves_few_effective_draws_and_says_so(well_covered):
+    # A prior on a ten times narrower than the data's error: the Thiele-Innes draws are
+    # weighted to it, so few of them count. For a Gaussian spread of a with sigma s_d
+    # weighted by a Gaussian of sigma s the effective share is s sqrt(s^2 + 2 s_d^2) /
+    # (s^2 + s_d^2) (the Kish formula integrated by hand), 0.14 at s = s_d / 10: below
+    # the warning's threshold of a quarter either way.
+    doc = well_covered
+    value, error = doc["elements"]["a"]["value"], doc["elements"]["a"]["error"]
+    narrow = sample_document(doc, seed=5, priors={"a": (value, error / 10)})
+    assert narrow.effective < 0.25 * narrow.weighted
+    block = posterior_block(doc, narrow, None)
+    warned = [w for w in block["warnings"] if w.startswith("uneven importance weights")]
+    assert len(warned) == 1
+    assert f"count as {round(narrow.effective)} independent ones" in warned[0]
+    from orbweigh.sampling import format_posterior
+    assert (f"effective draws {round(narrow.effective)} of {narrow.weighted}"
+            in format_posterior(block))
+    # the same orbit without the prior: weights nearly even, no warning
+    free = sample_document(doc, seed=5)
+    assert free.effective > 0.9 * free.weighted
+    assert not any("uneven" in w for w in free.warnings)
+
+
 def test_held_elements_stay_exactly_fixed():
     # a, i held: the direct sampler over the other five; e held in the marginal one
     direct = sample_document(_doc(fixed={"a": 0.85, "i": 48.0}), steps=400, seed=2)

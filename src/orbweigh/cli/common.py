@@ -76,9 +76,10 @@ def add_mass_arguments(parser):
                              "V), from a table of your choice: m_bol = m + BC; the Eker et al. "
                              "2018 relation is then used")
     parser.add_argument("--band", default=None,
-                        help="band of --magnitudes: 'bol' (bolometric; Eker et al. 2018), "
-                             "'K' (2MASS Ks; Mann et al. 2019), or e.g. 'V' with "
-                             "--bolometric-corrections")
+                        help="band of --magnitudes: 'bol' (bolometric; coefficients of "
+                             "Eker et al. 2018, scatter assumed, not the paper's), 'K' (2MASS "
+                             "Ks; Mann et al. 2019, scatter quoted from memory of the paper), "
+                             "or e.g. 'V' with --bolometric-corrections")
 
 
 def check_mass_arguments(args):
