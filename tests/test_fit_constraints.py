@@ -196,3 +196,87 @@ def test_undetermined_orbit_prints_no_mass_nor_plan(tmp_path, capsys):
     assert "What would fix it" in capsys.readouterr().err
     assert main(["plan", str(result), "--window", "2026", "2030"]) == 2
     assert "no plan" in capsys.readouterr().err
+
+
+# ------------------------------------------------- a held node on either branch (--fix)
+#: A true orbit with its node on the far branch: (Omega, omega) = (200, 70) deg is the
+#: apparent orbit (20, 250) deg (positions alone cannot tell them apart).
+FAR = dict(TRUTH, Omega=200.0, omega=70.0)
+
+
+def _fit_cli(tmp_path, name, *fix):
+    from orbweigh.cli.main import main
+    from synthetic import write_log_csv
+
+    log = tmp_path / "far.csv"
+    if not log.exists():
+        write_log_csv(log, _log(FAR))
+    out = tmp_path / f"{name}.json"
+    args = [a for item in fix for a in ("--fix", item)]
+    assert main(["fit", str(log), *args, "--json", str(out)]) == 0
+    return json.loads(out.read_text())
+
+
+def _values(doc):
+    return np.array([doc["elements"][k]["value"] for k in ("P", "T", "e", "a", "i",
+                                                           "Omega", "omega")])
+
+
+def test_a_node_held_on_the_far_branch_is_the_same_orbit_and_said_so(tmp_path, capsys):
+    far = _fit_cli(tmp_path, "far", "Omega=200")
+    near = _fit_cli(tmp_path, "near", "Omega=20")
+    printed = capsys.readouterr().out
+    # the same fit: identical elements and chi2 (the refinement holds 200 or 20, and
+    # the reported orbit has Omega in [0, 180) either way)
+    np.testing.assert_allclose(_values(far), _values(near), rtol=0, atol=1e-6)
+    assert far["statistics"]["chi2"] == pytest.approx(near["statistics"]["chi2"], rel=1e-9)
+    # and it is the truth on the reported branch: Omega 20, omega 70 + 180 = 250
+    assert far["elements"]["Omega"]["value"] == pytest.approx(20.0, abs=1e-9)
+    omega = far["elements"]["omega"]
+    assert abs(omega["value"] - 250.0) < 4 * omega["error"]
+    # nothing the user gave is lost, and the shift is said, not done silently
+    assert far["fit"]["fixed"] == {"Omega": 200.0}
+    said = [w for w in far["warnings"] if w.startswith("Held Omega = 200 deg is reported as "
+                                                       "Omega = 20,")]
+    assert len(said) == 1 and "(Omega + 180, omega + 180) cannot be told apart" in said[0]
+    assert "Held Omega = 200 deg is reported as Omega = 20," in printed
+    assert not any(w.startswith("Held Omega") for w in near["warnings"])
+
+
+def test_both_angles_held_on_the_far_branch(tmp_path):
+    far = _fit_cli(tmp_path, "far2", "Omega=200", "omega=70")
+    near = _fit_cli(tmp_path, "near2", "Omega=20", "omega=250")
+    np.testing.assert_allclose(_values(far), _values(near), rtol=0, atol=1e-6)
+    assert far["elements"]["omega"]["value"] == pytest.approx(250.0, abs=1e-9)
+    assert any(w.startswith("Held Omega = 200, omega = 70 deg is reported as") for w in
+               far["warnings"])
+    # the held pair is the truth: the other elements within 4 sigma (common practice)
+    for key in ("P", "e", "a", "i"):
+        entry = far["elements"][key]
+        assert abs(entry["value"] - FAR[key]) < 4 * entry["error"], key
+
+
+def test_held_omega_alone_is_reported_on_the_fits_branch(tmp_path):
+    # omega = 70 held, Omega free: the fit finds Omega = 200 and reports (20, 250)
+    doc = _fit_cli(tmp_path, "omega", "omega=70")
+    assert doc["elements"]["omega"]["value"] == pytest.approx(250.0, abs=1e-9)
+    node = doc["elements"]["Omega"]
+    assert abs(node["value"] - 20.0) < 4 * node["error"]
+    assert any(w.startswith("Held omega = 70 deg is reported as") for w in doc["warnings"])
+
+
+def test_posterior_holds_the_angle_on_the_reported_branch(tmp_path):
+    # The draws must show the orbit of the reported elements: Omega exactly 20 (not the
+    # 200 given), omega near 250. Before, the given value was written into every draw
+    # beside angles of the other branch (a different orbit).
+    from orbweigh.sampling import sample_document
+
+    doc = _fit_cli(tmp_path, "far3", "Omega=200")
+    result = sample_document(doc, steps=600, seed=4)
+    assert np.all(result.elements[:, 5] == 20.0)
+    omega = result.elements[:, 6]
+    assert abs(np.median(omega) - 250.0) < 4 * doc["elements"]["omega"]["error"]
+    alone = _fit_cli(tmp_path, "omega2", "omega=70")
+    result = sample_document(alone, steps=600, seed=4)
+    assert np.all(result.elements[:, 6] == pytest.approx(250.0, abs=1e-9))
+    assert np.all(result.elements[:, 5] < 180.0)

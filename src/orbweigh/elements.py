@@ -28,6 +28,7 @@ __all__ = [
     "normalise_node",
     "wrap_degrees",
     "centre_angles",
+    "held_angles_as_reported",
 ]
 
 #: Keys of the elements in result documents, in the order used everywhere.
@@ -170,3 +171,18 @@ def centre_angles(node_deg, omega_deg, best_node_deg, best_omega_deg, node_perio
     shift = node_period_deg * np.round((node - best_node_deg) / node_period_deg)
     omega = best_omega_deg + wrap_degrees(np.asarray(omega_deg, float) - shift - best_omega_deg)
     return node - shift, omega
+
+
+def held_angles_as_reported(fixed, node_deg, omega_deg):
+    """Held elements with a held Omega or omega [deg] on the branch of the reported orbit.
+
+    Without radial velocities (Omega, omega) and (Omega + 180, omega + 180) are one
+    apparent orbit, and the orbit is reported with Omega in [0, 180): a held angle on the
+    other branch (e.g. Omega = 200, or omega = 70 where the fit's omega is 250) is shifted
+    by 180 deg. Other held elements are returned as given.
+    """
+    out = dict(fixed)
+    for name, shown in (("Omega", node_deg), ("omega", omega_deg)):
+        if name in out and abs(float(wrap_degrees(out[name] - shown))) > 90.0:
+            out[name] = float(np.mod(out[name] + 180.0, 360.0))
+    return out

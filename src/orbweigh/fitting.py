@@ -113,10 +113,15 @@ class FitOptions:
         _check_fixed(self.fixed, self.period_bounds)
 
 
-_FIXED_LIMITS = {"P": (0.0, np.inf, "a positive period in years"),
-                 "e": (0.0, 0.995, "an eccentricity in [0, 0.995]"),
-                 "a": (0.0, np.inf, "a positive semi-major axis in arcsec"),
-                 "i": (0.0, 180.0, "an inclination in [0, 180] deg")}
+#: Ranges of held values: (low, high, high included, in words); P and a exclude 0.
+#: Omega may be given on either node branch, [0, 360): the orbit is reported with Omega in
+#: [0, 180) and a warning names the shift (``solution``); the ranges are those of --prior.
+_FIXED_LIMITS = {"P": (0.0, np.inf, False, "a positive period in years"),
+                 "e": (0.0, 0.995, True, "an eccentricity in [0, 0.995]"),
+                 "a": (0.0, np.inf, False, "a positive semi-major axis in arcsec"),
+                 "i": (0.0, 180.0, True, "an inclination in [0, 180] deg"),
+                 "Omega": (0.0, 360.0, False, "a node in [0, 360) deg"),
+                 "omega": (0.0, 360.0, False, "an angle in [0, 360) deg")}
 
 
 def _check_fixed(fixed, period_bounds):
@@ -126,10 +131,12 @@ def _check_fixed(fixed, period_bounds):
             raise InputError(f"cannot fix {name!r}: the elements are {', '.join(ELEMENT_KEYS)}")
         if not np.isfinite(value):
             raise InputError(f"the fixed value of {name} must be a finite number, got {value}")
-        lo, hi, what = _FIXED_LIMITS.get(name, (-np.inf, np.inf, ""))
-        strict_lo = name in ("P", "a")
-        if value > hi or value < lo or (strict_lo and value == lo):
-            raise InputError(f"the fixed value of {name} must be {what}; got {value:g}")
+        lo, hi, hi_in, what = _FIXED_LIMITS.get(name, (-np.inf, np.inf, True, ""))
+        if value < lo or value > hi or (value == hi and not hi_in) or (
+                value == lo and name in ("P", "a")):
+            hint = (f" (the same angle: {value % 360.0:g})"
+                    if name in ("Omega", "omega") else "")
+            raise InputError(f"the fixed value of {name} must be {what}; got {value:g}{hint}")
     if "P" in fixed and period_bounds is not None and not (
             period_bounds[0] <= fixed["P"] <= period_bounds[1]):
         raise InputError(f"the fixed period {fixed['P']:g} yr lies outside the period range "

@@ -336,12 +336,21 @@ def _start_scales(doc, best, names):
                      else fallback.get(n, 1e-3) for n in names])
 
 
-def _internal_fixed(doc, direct):
+def _held(doc, best):
+    """Held elements in the document's units, a held Omega or omega on the branch of the
+    reported orbit (``elements.held_angles_as_reported``)."""
+    from .elements import held_angles_as_reported
+
+    fixed = {k: float(v) for k, v in ((doc.get("fit") or {}).get("fixed") or {}).items()}
+    return held_angles_as_reported(fixed, best.node_deg, best.omega_deg)
+
+
+def _internal_fixed(fixed_doc, doc, direct):
     """Held elements in the posterior's internal units (T Julian yr, angles rad)."""
     from .reductions import to_julian_year
     from .result import epoch_scale_of
 
-    fixed = {k: float(v) for k, v in ((doc.get("fit") or {}).get("fixed") or {}).items()}
+    fixed = dict(fixed_doc)
     if "T" in fixed:
         fixed["T"] = float(to_julian_year(fixed["T"], epoch_scale_of(doc)))
     if not direct:
@@ -357,7 +366,7 @@ def _element_priors(doc, best, gaussian):
     from .result import epoch_scale_of
 
     fit = doc.get("fit") or {}
-    fixed = dict(fit.get("fixed") or {})
+    fixed = _held(doc, best)
     bounds = fit.get("period_bounds")
     if "P" in fixed:
         period_range, source = (fixed["P"], fixed["P"]), "held"
@@ -421,7 +430,7 @@ def sample_document(doc, walkers=None, steps=DEFAULT_STEPS, seed=0, priors=None,
     best = elements_from_document(doc)
     element_priors, fixed_doc = _element_priors(doc, best, gaussian)
     direct = any(k in fixed_names for k in _LINEAR_ELEMENTS)
-    fixed = _internal_fixed(doc, direct)
+    fixed = _internal_fixed(fixed_doc, doc, direct)
     if direct:
         model = DirectPosterior(positions, element_priors, fixed, best.periastron_yr,
                                 (math.radians(best.node_deg), math.radians(best.omega_deg)))

@@ -5,7 +5,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .elements import ELEMENT_KEYS, ELEMENT_UNITS, CampbellElements, campbell_from_thiele_innes
+from .elements import (
+    ELEMENT_KEYS, ELEMENT_UNITS, CampbellElements, campbell_from_thiele_innes,
+    held_angles_as_reported,
+)
 from .model import predict_theta_rho, wrap_degrees
 from .reductions import epoch_unit, from_julian_year, interval_in_scale
 from .result import SCHEMA
@@ -337,6 +340,21 @@ def _lines(data, idx, most=12):
 _UNPRECESSED_SPAN_YR = 30.0
 
 
+def _held_branch_note(fixed, el):
+    """Say so when a held Omega or omega is reported on the other node branch."""
+    shown = held_angles_as_reported(fixed, el.node_deg, el.omega_deg)
+    moved = [k for k in ("Omega", "omega") if k in fixed and shown[k] != fixed[k]]
+    if not moved:
+        return []
+    from .formatting import number
+
+    given = ", ".join(f"{k} = {number(float(fixed[k]), 6)}" for k in moved)
+    return [f"Held {given} deg is reported as Omega = {number(float(el.node_deg), 6)}, "
+            f"omega = {number(float(el.omega_deg), 6)} deg, the same apparent orbit: "
+            "without radial velocities (Omega, omega) and (Omega + 180, omega + 180) "
+            "cannot be told apart, and Omega is reported in [0, 180)."]
+
+
 def _warnings(sol, data, rows, flipped, outlier, best):
     el, stats = sol.elements, sol.statistics
     out = []
@@ -377,6 +395,7 @@ def _warnings(sol, data, rows, flipped, outlier, best):
     if sol.options.fixed:
         out.append("Held fixed (no error, not counted in the degrees of freedom): "
                    + ", ".join(f"{k} = {v:g}" for k, v in sol.options.fixed.items()) + ".")
+        out.extend(_held_branch_note(sol.options.fixed, el))
     if best.covariance is None:
         out.append("The covariance could not be estimated (degenerate solution): "
                    "no uncertainties are given.")
