@@ -39,7 +39,7 @@ __all__ = ["main"]
 
 #: Functions whose cumulative time is a stage of the fit (module file, function name).
 STAGES = (("global search: grid", "search.py", "grid_search"),
-          ("global search: polish (P, e, T)", "refine.py", "refine_nonlinear"),
+          ("global search: polish (P, e, T)", "refine.py", "polish_cells"),
           ("full refinement of candidates", "fitting.py", "refine_candidates"),
           ("flip correction", "fitting.py", "_correct_flips"),
           ("outliers", "fitting.py", "_set_aside_outliers"),

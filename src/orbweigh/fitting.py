@@ -31,7 +31,7 @@ import numpy as np
 from .elements import ELEMENT_KEYS
 from .errors import FitError, InputError
 from .model import normalised_residuals
-from .refine import Constraints, refine_full, refine_nonlinear
+from .refine import Constraints, polish_cells, refine_full
 from .search import default_period_range, grid_search, isotropic_weights
 from .solution import OrbitSolution, build_solution
 from .technique_weights import MIN_POINTS, scale_factors, technique_statistics
@@ -383,9 +383,8 @@ def _global_candidates(points, period_range):
     fixed = points.constraints.fixed
     trials, grid = grid_search(points.t, x, y, w, period_range, n_best=_N_CANDIDATES,
                                e=fixed.get("e"), t_peri=fixed.get("T"))
-    polished = sorted((refine_nonlinear(tr, points.t, x, y, w, period_range,
-                                        points.constraints) for tr in trials),
-                      key=lambda r: r.chi2)
+    polished = sorted(polish_cells(trials, points.t, x, y, w, period_range,
+                                   points.constraints), key=lambda r: r.chi2)
     starts = []
     for r in polished:
         if all(not _same_orbit(r.params, s) for s in starts):

@@ -1,17 +1,15 @@
 """Local refinement of orbit solutions.
 
-Two stages: ``refine_nonlinear`` polishes a grid cell in (P, e, T) with the Thiele-Innes
-constants still solved linearly (variable projection, exact Kepler solutions);
-``refine_full`` then fits all seven parameters with Levenberg-Marquardt on the proper
-tangential and radial residuals (``bounded_least_squares``). Both honour ``Constraints``: elements held at
-given values and a period bound. When a Campbell element (a, i, Omega, omega) is held,
+Two stages: ``polish_cells`` polishes the search's cells in (P, e, T) together, with the
+Thiele-Innes constants still solved linearly (variable projection, exact Kepler
+solutions); ``refine_full`` then fits all seven parameters with Levenberg-Marquardt on the
+proper tangential and radial residuals (``bounded_least_squares``). Both honour
+``Constraints``: elements held at given values and a period bound. When a Campbell element (a, i, Omega, omega) is held,
 the full refinement runs in Campbell elements instead (``refine_campbell``), since a
 fixed a or angle is a non-linear constraint on A, B, F, G.
 """
 from __future__ import annotations
 
-import functools
-import inspect
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -21,7 +19,7 @@ from .elements import campbell_from_thiele_innes, thiele_innes_from_campbell
 from .kepler import eccentric_anomaly, mean_anomaly
 from .model import FIT_KEYS, normalised_residuals, residual_jacobian
 
-__all__ = ["Constraints", "Refined", "refine_nonlinear", "refine_full", "refine_campbell",
+__all__ = ["Constraints", "Refined", "polish_cells", "refine_full", "refine_campbell",
            "thiele_innes_jacobian"]
 
 _E_MAX = 0.995
@@ -63,70 +61,103 @@ def _basis(t, period, t_peri, e):
     return np.cos(E) - e, np.sqrt(1.0 - e**2) * np.sin(E)
 
 
-def refine_nonlinear(trial, t, x, y, w, period_range, constraints=Constraints()):
-    """Polish a search cell in (ln P, e, T), solving A, B, F, G linearly each step.
+def polish_cells(trials, t, x, y, w, period_range, constraints=Constraints()):
+    """Polish search cells in (ln P, e, T) together, solving A, B, F, G linearly each step.
 
-    Elements P, e, T held by ``constraints`` stay at their values.
+    Variable projection: for each (P, e, T) the Thiele-Innes constants are the linear
+    least-squares solution, so only three parameters are iterated. All cells advance in
+    one numpy pass per step (``_box_levenberg_marquardt``): a polish of six cells costs
+    about what one cell did through a general solver. Elements P, e, T held by
+    ``constraints`` stay at their values. Returns one ``Refined`` per trial, in order.
     """
-    from scipy.optimize import least_squares
-
     from .search import linear_thiele_innes
 
     sw = np.sqrt(w)
     fixed = constraints.fixed
-    q_all = np.array([np.log(fixed.get("P", trial.period)), fixed.get("e", trial.e),
-                      fixed.get("T", trial.t_peri)], float)
     free = np.array([k not in fixed for k in ("P", "e", "T")])
+    base = np.array([[np.log(fixed.get("P", tr.period)), fixed.get("e", tr.e),
+                      fixed.get("T", tr.t_peri)] for tr in trials], float)
 
-    def full(q):
-        v = q_all.copy()
-        v[free] = q
-        return np.exp(v[0]), v[1], v[2]
+    def at(q):
+        v = np.repeat(base[:1], len(q), axis=0)
+        v[:, free] = q
+        return np.exp(v[:, :1]), v[:, 1:2], v[:, 2:3]
 
-    def resid(q):
-        period, e, t_peri = full(q)
-        X, Y = _basis(t, period, t_peri, e)
-        A, B, F, G, _ = linear_thiele_innes(X, Y, x, y, w)
-        return np.concatenate([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)])
-
-    def resid_at_points(_, points):
-        """The finite-difference points of one Jacobian in one vectorised pass.
-
-        scipy hands a map-like ``workers`` the residual and the points it would evaluate
-        one by one; the points suffice. The residuals are resid's, to rounding."""
-        points = np.array(list(points))
-        v = np.tile(q_all, (len(points), 1))
-        v[:, free] = points
-        period, e, t_peri = np.exp(v[:, :1]), v[:, 1:2], v[:, 2:3]
+    def residuals(q):
+        """Weighted residuals (m, 2n) at points q (m, free)."""
+        period, e, t_peri = at(q)
         X, Y = _basis(t, period, t_peri, e)
         A, B, F, G, _ = (c[:, None] for c in linear_thiele_innes(X, Y, x, y, w))
-        return list(np.hstack([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)]))
+        return np.hstack([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)])
 
     if free.any():
-        lo = np.array([np.log(period_range[0]), 0.0, trial.t_peri - trial.period])[free]
-        hi = np.array([np.log(period_range[1]), _E_MAX, trial.t_peri + trial.period])[free]
-        q0 = np.clip(q_all[free], lo, hi)
+        span = np.array([tr.period for tr in trials])
+        lo = np.column_stack([np.full(len(trials), np.log(period_range[0])),
+                              np.zeros(len(trials)), base[:, 2] - span])[:, free]
+        hi = np.column_stack([np.full(len(trials), np.log(period_range[1])),
+                              np.full(len(trials), _E_MAX), base[:, 2] + span])[:, free]
+        q0 = np.clip(base[:, free], lo, hi)
         if free[1]:
-            q0[np.flatnonzero(free).tolist().index(1)] = min(q_all[1], _E_MAX - 1e-3)
-        # A polish only (the full refinement follows), so loose tolerances suffice.
-        q = least_squares(resid, q0, bounds=(lo, hi), x_scale="jac", max_nfev=40,
-                          ftol=1e-4, xtol=1e-4, **_batched_differences(resid_at_points)).x
-    else:
-        q = q_all[free]
-    period, e, t_peri = full(q)
-    A, B, F, G, chi2 = linear_thiele_innes(*_basis(t, period, t_peri, e), x, y, w)
-    return Refined(np.array([period, t_peri, e, A, B, F, G]), float(chi2))
+            k = np.flatnonzero(free).tolist().index(1)
+            q0[:, k] = np.minimum(base[:, 1], _E_MAX - 1e-3)
+        base[:, free] = _box_levenberg_marquardt(residuals, q0, lo, hi)
+    period, e, t_peri = np.exp(base[:, 0]), base[:, 1], base[:, 2]
+    A, B, F, G, chi2 = linear_thiele_innes(
+        *_basis(t, period[:, None], t_peri[:, None], e[:, None]), x, y, w)
+    return [Refined(np.array([period[k], t_peri[k], e[k], A[k], B[k], F[k], G[k]]),
+                    float(chi2[k])) for k in range(len(trials))]
 
 
-@functools.cache
-def _least_squares_takes_workers():
-    from scipy.optimize import least_squares
-    return "workers" in inspect.signature(least_squares).parameters
+#: Polish steps at most, and the relative change in cost or parameters that ends one;
+#: loose, since the full refinement follows.
+_POLISH_STEPS = 12
+_POLISH_TOLERANCE = 1e-4
 
 
-def _batched_differences(evaluate):
-    """``workers=evaluate`` where scipy has it (1.16 on); older ones evaluate one by one."""
-    return {"workers": evaluate} if _least_squares_takes_workers() else {}
+def _box_levenberg_marquardt(residuals, q, lo, hi):
+    """Levenberg-Marquardt for many small problems at once, steps clipped to a box.
+
+    ``residuals(points)`` evaluates one residual vector per row of ``points``. Marquardt's scaling (the diagonal of J^T J) damps each
+    step; the Jacobian is by forward differences (step sqrt(eps) max(1, |q|), turned
+    inward at an upper limit). Numerical Recipes, 3rd ed., section 15.5.2 (memory).
+    """
+    n_cells, n_free = q.shape
+    q = q.copy()
+    r = residuals(q)
+    cost = np.einsum("ij,ij->i", r, r)
+    damping = np.full(n_cells, 1e-3)
+    active = np.ones(n_cells, bool)
+    eye = np.eye(n_free)
+    for _ in range(_POLISH_STEPS):
+        rows = np.flatnonzero(active)
+        if rows.size == 0:
+            break
+        qa = q[rows]
+        h = np.sqrt(np.finfo(float).eps) * np.maximum(1.0, np.abs(qa))
+        h = np.where(qa + h > hi[rows], -h, h)
+        shifted = (qa[:, None, :] + eye[None] * h[:, None, :]).reshape(-1, n_free)
+        r_shift = residuals(shifted).reshape(rows.size, n_free, -1)
+        jac_t = (r_shift - r[rows][:, None, :]) / h[:, :, None]          # (k, free, 2n)
+        jtj = jac_t @ np.swapaxes(jac_t, 1, 2)
+        grad = jac_t @ r[rows][:, :, None]
+        scale = np.maximum(np.diagonal(jtj, axis1=1, axis2=2), 1e-300)
+        lhs = jtj + damping[rows, None, None] * (eye[None] * scale[:, None, :])
+        try:
+            step = -np.linalg.solve(lhs, grad)[:, :, 0]
+        except np.linalg.LinAlgError:
+            step = -grad[:, :, 0] / (damping[rows, None] * scale)
+        trial = np.clip(qa + step, lo[rows], hi[rows])
+        r_trial = residuals(trial)
+        cost_trial = np.einsum("ij,ij->i", r_trial, r_trial)
+        better = cost_trial < cost[rows]
+        small = ((cost[rows] - cost_trial <= _POLISH_TOLERANCE * cost[rows])
+                 | np.all(np.abs(trial - qa) <= _POLISH_TOLERANCE * (1e-8 + np.abs(qa)),
+                          axis=1))
+        took = rows[better]
+        q[took], r[took], cost[took] = trial[better], r_trial[better], cost_trial[better]
+        damping[rows] = np.where(better, damping[rows] / 10.0, damping[rows] * 10.0)
+        active[rows[(better & small) | (damping[rows] > 1e10)]] = False
+    return q
 
 
 def _period_limits(p0, constraints):
