@@ -142,10 +142,17 @@ def _box_levenberg_marquardt(residuals, q, lo, hi):
         grad = jac_t @ r[rows][:, :, None]
         scale = np.maximum(np.diagonal(jtj, axis1=1, axis2=2), 1e-300)
         lhs = jtj + damping[rows, None, None] * (eye[None] * scale[:, None, :])
-        try:
-            step = -np.linalg.solve(lhs, grad)[:, :, 0]
-        except np.linalg.LinAlgError:
-            step = -grad[:, :, 0] / (damping[rows, None] * scale)
+        step = _damped_step(lhs, grad, damping[rows, None] * scale)
+        # A parameter on a limit that the step pushes outward is held there and the step
+        # solved again for the others: clipping alone would leave them off their optimum
+        # (e at 0 for a circular orbit is the common case).
+        blocked = (((qa <= lo[rows]) & (step < 0)) | ((qa >= hi[rows]) & (step > 0)))
+        if blocked.any():
+            keep = ~blocked
+            lhs = np.where(keep[:, :, None] & keep[:, None, :], lhs, 0.0) \
+                + eye[None] * blocked[:, None, :]
+            step = _damped_step(lhs, np.where(keep[:, :, None], grad, 0.0),
+                                damping[rows, None] * scale)
         trial = np.clip(qa + step, lo[rows], hi[rows])
         r_trial = residuals(trial)
         cost_trial = np.einsum("ij,ij->i", r_trial, r_trial)
@@ -158,6 +165,14 @@ def _box_levenberg_marquardt(residuals, q, lo, hi):
         damping[rows] = np.where(better, damping[rows] / 10.0, damping[rows] * 10.0)
         active[rows[(better & small) | (damping[rows] > 1e10)]] = False
     return q
+
+
+def _damped_step(lhs, grad, diagonal):
+    """Solve lhs step = -grad for each problem; a steepest-descent step where singular."""
+    try:
+        return -np.linalg.solve(lhs, grad)[:, :, 0]
+    except np.linalg.LinAlgError:
+        return -grad[:, :, 0] / diagonal
 
 
 def _period_limits(p0, constraints):
