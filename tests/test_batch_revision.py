@@ -76,6 +76,19 @@ def test_verdict_rule_on_exact_offsets(z_theta, verdict):
     assert f"chi2 = {chi2:.1f} for 20 dof" in check.reason and len(check.residuals) == 18
 
 
+def test_reason_never_prints_an_underflowed_p_as_zero():
+    """Offsets of 100 sigma: chi2 = 1e5 for 20 dof, whose tail (exactly Q(10, 5e4), about
+    1e-21700 by mpmath) underflows to 0 in floating point, with sigma x3 too; the reason
+    gives the bound."""
+    import mpmath
+    t_new = np.linspace(2001.0, 2010.0, 10)
+    check = check_revision(OLD, _data(t_new, z_theta=np.full(10, 100.0)), last_epoch_yr=2000.5)
+    assert check.verdict == "contradicted" and check.p_value == check.p_value_inflated == 0.0
+    assert mpmath.gammainc(10, check.chi2_new / 2, mpmath.inf, regularized=True) < 1e-300
+    assert "(p < 1e-300; sigmas x3: p < 1e-300)" in check.reason
+    assert "p = 0" not in check.reason
+
+
 def test_small_coherent_offset_is_drifting_through_the_systematic_test():
     t = np.linspace(2001.0, 2010.0, 30)
     check = check_revision(OLD, _data(t, z_theta=0.8), last_epoch_yr=None)

@@ -41,3 +41,37 @@ def test_epoch_in_the_logs_scale_with_its_label():
     # 2012.000 again, not the internal 2011.998.
     assert fmt.epoch(fmt.epoch_in_scale(2011.99863, "besselian"), "besselian",
                      label=False) == "2012.000"
+
+
+def test_p_value_two_digits_and_never_zero():
+    """A chi2 of 2000 for 20 dof: scipy's tail underflows to exactly 0, while the exact
+    tail (mpmath's regularised upper incomplete gamma, Q(10, 1000)) is about 1e-400; the
+    text is the bound, never 'p = 0'."""
+    import mpmath
+    from scipy.stats import chi2
+    assert chi2.sf(2000.0, 20) == 0.0
+    exact = mpmath.gammainc(10, 1000, mpmath.inf, regularized=True)
+    assert 0 < exact < fmt.P_FLOOR
+    assert fmt.p_value(chi2.sf(2000.0, 20)) == "< 1e-300"
+    assert fmt.p_value(0.0, "p") == "p < 1e-300"
+    # chi2 of 40 for 20 dof: Q(10, 20) = 0.004995 (mpmath; A&S 1964 eq. 26.4.21 by hand
+    # gives the same sum), two significant digits.
+    assert float(mpmath.gammainc(10, 20, mpmath.inf, regularized=True)) == \
+        pytest.approx(chi2.sf(40.0, 20), rel=1e-12)
+    assert fmt.p_value(chi2.sf(40.0, 20), "p") == "p = 0.005"
+    assert fmt.p_value(0.028) == "0.028" and fmt.p_value(1.0) == "1"
+
+
+def test_p_value_floor_is_a_true_bound_where_scipy_underflows():
+    """Wherever the chi2 tail (scipy.special.gammaincc, as the revision test computes it)
+    first reads 0, the exact tail from mpmath is already below the floor, for few and many
+    degrees of freedom."""
+    import mpmath
+    from scipy.special import gammaincc
+    for dof in (2, 20, 2000):
+        lo, hi = 1.0, 1e5
+        for _ in range(80):                 # bisect for the first chi2 whose tail reads 0
+            mid = 0.5 * (lo + hi)
+            lo, hi = (lo, mid) if gammaincc(dof / 2, mid / 2) == 0 else (mid, hi)
+        assert gammaincc(dof / 2, hi / 2) == 0.0
+        assert mpmath.gammainc(dof / 2, hi / 2, mpmath.inf, regularized=True) < fmt.P_FLOOR

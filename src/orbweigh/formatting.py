@@ -3,14 +3,17 @@
 Rule (``ROUNDING_RULE``): an uncertainty is rounded to two significant digits, never
 beyond the units place; the value is written to the same decimal place. A median with an
 interval takes the place of the narrower half of the interval, and so do the interval's
-ends. Shares are percentages. Epochs are written in the log's own scale with its name.
+ends. Shares are percentages. A p-value has two significant digits and is never written
+as 0: below ``P_FLOOR`` (where a tail probability has underflowed, or lost its digits
+among the subnormal numbers) it is written as that bound, '< 1e-300'. Epochs are written
+in the log's own scale with its name.
 """
 from __future__ import annotations
 
 import math
 
 __all__ = ["ROUNDING_RULE", "decimals_for", "value_error_parts", "value_error",
-           "interval_parts", "interval", "fixed", "number", "percent",
+           "interval_parts", "interval", "fixed", "number", "percent", "P_FLOOR", "p_value",
            "EPOCH_LABELS", "epoch_label", "epoch_in_scale", "epoch"]
 
 ROUNDING_RULE = (
@@ -110,6 +113,23 @@ def interval(median, low, high, unit="", latex=False):
 def percent(share, decimals=1):
     """A share (fraction) as a percentage: 0.9975 -> '99.8 %'."""
     return "" if share is None else f"{100.0 * share:.{decimals}f} %"
+
+
+#: Smallest p-value written as a number; below it only the bound is shown. A tail
+#: probability from scipy's ``gammaincc`` (the chi2 tail) reads 0 once the true value is
+#: below about 1e-311, so a 0 always means "< 1e-300"; tested against mpmath.
+P_FLOOR = 1e-300
+
+
+def p_value(p, name=""):
+    """A p-value to two significant digits, an underflowed one as a bound: '0.028',
+    '< 1e-300'; with ``name`` the statement: 'p = 0.028', 'p < 1e-300'."""
+    p = float(p)
+    if p < P_FLOOR:
+        text = f"< {P_FLOOR:.0e}"
+        return f"{name} {text}" if name else text
+    text = number(p, 2)
+    return f"{name} = {text}" if name else text
 
 
 # ---------------------------------------------------------------------------- epochs

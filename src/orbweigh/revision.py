@@ -253,7 +253,7 @@ def _decisive(verdict, n):
 def _decide(n, scale):
     """Apply the rule of the module notes; returns (verdict, reason), epochs in ``scale``
     (the log's)."""
-    from .formatting import epoch
+    from .formatting import epoch, p_value
     last = None if n["last_epoch_yr"] is None else epoch(n["last_epoch_yr"], scale,
                                                          internal=True)
     if n["n_new"] == 0:
@@ -263,10 +263,10 @@ def _decide(n, scale):
                                f"({last})")
     which = "all" if last is None else f"newer than {last}"
     numbers = (f"{n['n_new']} points {which}: chi2 = {n['chi2_new']:.1f} for {n['dof_new']} "
-               f"dof (p = {n['p_value']:.2g}; sigmas x{ERROR_INFLATION:g}: "
-               f"p = {n['p_value_inflated']:.2g}); offset and trend chi2 = "
+               f"dof ({p_value(n['p_value'], 'p')}; sigmas x{ERROR_INFLATION:g}: "
+               f"{p_value(n['p_value_inflated'], 'p')}); offset and trend chi2 = "
                f"{n['chi2_systematic']:.1f} for {n['dof_systematic']} dof "
-               f"(p = {n['p_systematic']:.2g})")
+               f"({p_value(n['p_systematic'], 'p')})")
     if n["p_value_inflated"] < ALPHA:
         return "contradicted", (f"the new data reject the old orbit even with sigmas "
                                 f"x{ERROR_INFLATION:g} at the {ALPHA:g} level; {numbers}")

@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 from .. import formatting as fm
-from .review import CSS, TEST_NAMES, p_text, verdict_badge
+from .review import CSS, TEST_NAMES, verdict_badge
 
 __all__ = ["index_head", "index_rows", "index_foot", "INDEX_ROWS", "COLUMNS"]
 
@@ -111,7 +111,7 @@ def _number_cell(row, name, spec):
         text = fm.value_error_parts(value, error if np.isfinite(error) else None)[0]
     elif spec == "p":
         test = TEST_NAMES.get(row["decided_by"], "")
-        text = f"{p_text(value)}" + (f" <small>({escape(test)})</small>" if test else "")
+        text = fm.p_value(value) + (f" <small>({escape(test)})</small>" if test else "")
         return f"<td class='num' data-value='{value!r}'>{text}</td>"
     else:
         text = fm.fixed(value, int(spec[1:])) if spec[0] == "f" else fm.number(value,

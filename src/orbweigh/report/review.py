@@ -20,7 +20,7 @@ from ..revision import ALPHA, ERROR_INFLATION
 from . import curation, style
 from .tables import ELEMENT_NAMES
 
-__all__ = ["CSS", "TEST_NAMES", "p_text", "review_page", "verdict_badge"]
+__all__ = ["CSS", "TEST_NAMES", "review_page", "verdict_badge"]
 
 #: Style sheet shared with the batch index (verdict classes ``v-<class>``).
 CSS = """
@@ -64,11 +64,6 @@ TEST_NAMES = {"p_value": "\u03c7\u00b2 of the new points",
               "p_systematic": "offset and trend"}
 
 
-def p_text(p):
-    """A p-value to two significant digits; one that underflowed is written as a bound."""
-    return "< 1e-300" if p == 0 else fm.number(float(p), 2)
-
-
 def verdict_badge(verdict, status):
     """The verdict as a coloured badge with its shape and its word (text, not colour only)."""
     cls = curation.verdict_class(verdict, status)
@@ -100,7 +95,7 @@ def _tests_table(rev):
         rows.append(f'<tr class="{"decisive" if name == decided else ""}" data-test="{name}">'
                     f"<td>{escape(TEST_NAMES[name])}</td>"
                     + _num(statistic, fm.fixed(statistic, 1)) + _num(dof, str(dof))
-                    + _num(p, p_text(p)) + _num(ALPHA, fm.number(ALPHA))
+                    + _num(p, fm.p_value(p)) + _num(ALPHA, fm.number(ALPHA))
                     + f"<td>{outcome}{mark}</td></tr>")
     head = ("<tr><th>test</th><th class='num'>\u03c7\u00b2</th><th class='num'>dof</th>"
             "<th class='num'>p</th><th class='num'>threshold \u03b1</th><th>outcome</th></tr>")
