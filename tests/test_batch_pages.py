@@ -366,3 +366,32 @@ def test_page_of_a_system_whose_refit_failed(batch):
     assert f"<h2>{curation.VERDICT_MARKS['contradicted']} contradicted</h2>" in page
     fig = curation.plot_residuals_old_and_new(record)
     assert [ax.get_title() for ax in fig.axes] == ["against the catalogued orbit", ""]
+
+
+def test_failed_systems_name_their_log_as_the_manifest_wrote_it(tmp_path):
+    """A log the reader refuses (no 'rho' column) and one too short to fit: the error on
+    the review page, in index.html, summary.csv and batch.json names 'logs/...' as the
+    manifest wrote it, with line, column, what was expected and the fix, and the
+    catalogue's absolute folder appears in none of them."""
+    cat = tmp_path / "catalogue"
+    (cat / "logs").mkdir(parents=True)
+    (cat / "logs" / "no_rho.csv").write_text("epoch,theta,sep\n2000.0,10.0,0.5\n")
+    (cat / "logs" / "short.csv").write_text(
+        "epoch,theta,rho,sigma_theta,sigma_rho\n2000.0,10.0,0.5,1,0.01\n2001.0,12.0,0.5,1,0.01\n")
+    (cat / "manifest.csv").write_text("id,log\nno rho,logs/no_rho.csv\nshort,./logs/short.csv\n")
+    out = tmp_path / "out"
+    rows = {r["id"]: r for r in run_batch(cat / "manifest.csv", out, BatchOptions(seed=1),
+                                          workers=1, progress=False)}
+    reader = ("log: logs/no_rho.csv, line 1: required column(s) rho not found; the header "
+              "has: epoch, theta, sep. Rename the header or map your names with --columns")
+    assert rows["no rho"]["error"].startswith(reader)
+    assert rows["short"]["error"].startswith("fit: ./logs/short.csv: ")
+    texts = {"index": (out / "index.html").read_text(encoding="utf-8"),
+             "summary": (out / "summary.csv").read_text(encoding="utf-8")}
+    for name in ("no rho", "short"):
+        folder = out / "systems" / system_key(name)
+        texts[name] = (folder / "review.html").read_text(encoding="utf-8")
+        texts[name + " record"] = (folder / "batch.json").read_text(encoding="utf-8")
+    assert reader in texts["no rho"] and reader in texts["index"]
+    for where, text in texts.items():
+        assert str(cat) not in text and str(tmp_path) not in text, where

@@ -173,7 +173,8 @@ def _process(entry, options, seed, record):
     if _stage(record, "log", _check_paths, entry) is None:
         return
     data = _stage(record, "log", read_measurements, entry.log,
-                  target_ra_deg=entry.ra_deg, target_dec_deg=entry.dec_deg)
+                  shown_as=_as_written(entry, entry.log), target_ra_deg=entry.ra_deg,
+                  target_dec_deg=entry.dec_deg)
     if data is None:
         return
     record["warnings"], record["epoch_scale"] = _log_warnings(data), data.epoch_scale
@@ -274,14 +275,21 @@ def _fit_warnings(doc):
     return out
 
 
+def _as_written(entry, path):
+    """A log's path as the manifest wrote it (relative to the manifest), for every message
+    and page: the absolute path the worker opens is the machine's, not the curator's."""
+    written = {entry.log: entry.fields.get("log"), entry.rv_log: entry.fields.get("rv_log")}
+    return written.get(path) or str(path)
+
+
 def _check_paths(entry):
     """The logs again, as the worker opens them: still inside the manifest's folder (a
     link made after the manifest was read must not lead out of it)."""
     folder = Path(entry.manifest).resolve().parent
     for path in (entry.log, entry.rv_log):
         if path is not None and not Path(path).resolve().is_relative_to(folder):
-            raise InputError(f"{path} now leads outside the manifest's folder {folder} "
-                             f"(to {Path(path).resolve()}); logs must stay inside it")
+            raise InputError(f"{_as_written(entry, path)} now leads outside the manifest's "
+                             f"folder (to {Path(path).resolve()}); logs must stay inside it")
     return True
 
 
@@ -303,7 +311,8 @@ def _add_combined(doc, solution, entry, seed):
     """Combined visual-spectroscopic solution with the RV log (as ``fit --rv``)."""
     from .combined import add_to_document, combined_blocks, fit_combined
     from .spectroscopic import read_velocities
-    combined = fit_combined(solution, read_velocities(entry.rv_log))
+    combined = fit_combined(solution, read_velocities(entry.rv_log,
+                                                      shown_as=_as_written(entry, entry.rv_log)))
     add_to_document(doc, combined, combined_blocks(combined, parallax=entry.parallax_mas,
                                                    seed=seed))
 
@@ -788,7 +797,8 @@ def _prepare(out, entries, options, resume, rows, bar):
             try:
                 digest = input_hash(entry, options)
             except OSError as exc:
-                entry.problem = f"log: cannot read {exc.filename} ({exc.strerror})"
+                entry.problem = (f"log: cannot read {_as_written(entry, exc.filename)} "
+                                 f"({exc.strerror})")
         saved, note = (_load_done(out, system_key(entry.id), digest)
                        if resume and digest else (None, None))
         if note is not None:

@@ -380,7 +380,7 @@ def _precess(records, target):
 
 
 def read_measurements(path, columns=None, target_ra_deg=None, target_dec_deg=None,
-                      strict=False):
+                      strict=False, shown_as=None):
     """Read and validate a measurement log (see the module notes for the format).
 
     Parameters
@@ -394,6 +394,8 @@ def read_measurements(path, columns=None, target_ra_deg=None, target_dec_deg=Non
         to equinox J2000. Without them the ECSV meta is searched.
     strict : bool
         Raise ``LogFormatError`` on the first unusable row instead of rejecting it.
+    shown_as : str, optional
+        The log's name in messages and as ``source`` (``tables.read_table``).
 
     Returns
     -------
@@ -404,7 +406,7 @@ def read_measurements(path, columns=None, target_ra_deg=None, target_dec_deg=Non
     LogFormatError
         For problems of the whole file, and for any bad row when ``strict``.
     """
-    table = read_table(path, REQUIRED_COLUMNS, OPTIONAL_COLUMNS, columns)
+    table = read_table(path, REQUIRED_COLUMNS, OPTIONAL_COLUMNS, columns, shown_as=shown_as)
     factors = _unit_factors(table)
     day_unit = epochs_in_days(table)
     records, problems = collect_rows(

@@ -304,7 +304,7 @@ def _velocity_row(cells, header, factors, day_unit):
             "flag": cells.get("flag", ""), "note": cells.get("note", "")}
 
 
-def read_velocities(path, columns=None, strict=False):
+def read_velocities(path, columns=None, strict=False, shown_as=None):
     """Read and validate a radial-velocity log.
 
     Parameters
@@ -319,6 +319,8 @@ def read_velocities(path, columns=None, strict=False):
         Canonical name -> your header name, e.g. ``{'rv': 'vrad'}``.
     strict : bool
         Raise ``LogFormatError`` on the first unusable row instead of rejecting it.
+    shown_as : str, optional
+        The log's name in messages and as ``source`` (``tables.read_table``).
 
     Returns
     -------
@@ -330,7 +332,7 @@ def read_velocities(path, columns=None, strict=False):
         For problems of the whole file, and for any bad row when ``strict``.
     """
     table = read_table(path, RV_REQUIRED_COLUMNS, RV_OPTIONAL_COLUMNS, columns,
-                       option="--rv-columns")
+                       option="--rv-columns", shown_as=shown_as)
     factors = _velocity_factors(table)
     day_unit = epochs_in_days(table)
     records, problems = collect_rows(

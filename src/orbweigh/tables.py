@@ -191,14 +191,15 @@ def split_lines(text):
     return lines[:-1] if lines[-1] == "" else lines
 
 
-def _read_lines(path):
+def _read_lines(path, shown):
+    """The file's lines; its errors name it ``shown``."""
     try:
         text = read_bounded_bytes(path, MAX_LOG_BYTES, what="log").decode("utf-8-sig")
     except UnicodeDecodeError as exc:
-        raise LogFormatError(path, f"not a UTF-8 text file (byte {exc.start} cannot be "
+        raise LogFormatError(shown, f"not a UTF-8 text file (byte {exc.start} cannot be "
                              "decoded); save the log as plain text") from None
     except InputError as exc:
-        raise LogFormatError(path, str(exc).removeprefix(f"{path}: ")) from None
+        raise LogFormatError(shown, str(exc).removeprefix(f"{path}: ")) from None
     return split_lines(text)
 
 
@@ -331,7 +332,7 @@ def _shape_problem(cells, names, index, required, text, used, header_line):
                   f"{n} columns; quote values that contain the delimiter.{hint}")
 
 
-def read_table(path, required, optional=(), columns=None, option="--columns"):
+def read_table(path, required, optional=(), columns=None, option="--columns", shown_as=None):
     """Read a CSV, whitespace-separated or ECSV table, keeping file line numbers.
 
     Parameters
@@ -345,6 +346,9 @@ def read_table(path, required, optional=(), columns=None, option="--columns"):
     option : str
         The command-line option that maps columns for this kind of log, named in the
         messages ('--columns' for measurement logs, '--rv-columns' for velocity logs).
+    shown_as : str, optional
+        The file's name in every message and as ``LogTable.path`` (default ``path``): a
+        batch gives the path as its manifest wrote it, not the absolute one it opens.
 
     Returns
     -------
@@ -358,9 +362,9 @@ def read_table(path, required, optional=(), columns=None, option="--columns"):
     InputError
         When ``columns`` names a column the caller does not use.
     """
-    path = str(path)
+    opened, path = str(path), str(shown_as or path)
     required, optional = tuple(required), tuple(optional)
-    lines = _read_lines(path)
+    lines = _read_lines(opened, path)
     body = [(k + 1, t) for k, t in enumerate(lines) if t.strip() and not t.lstrip().startswith("#")]
     if not body:
         raise LogFormatError(path, "the file is empty (no header and no data lines); a log "
