@@ -110,6 +110,23 @@ def test_mass_refuses_ratio_with_magnitudes_and_writes_nothing(tmp_path, capsys)
       "--draws", "5000"], ["250,005,000 predictions for the bands, more than 100,000,000"]),
     (["plan", SIRIUS, "--window", "2030", "2400", "--step", "1e-4"],
      ["more than 100,000"]),
+    # plan's physical values: finite and in range, refused before the document is read
+    (["plan", "never-read.json", "--window", "2030", "2040", "--aperture-mm", "inf"],
+     ["--aperture-mm inf is outside 1..100,000", "give a value in that range"]),
+    (["plan", "never-read.json", "--window", "2030", "2040", "--aperture-mm", "nan"],
+     ["--aperture-mm nan is outside 1..100,000"]),
+    (["plan", "never-read.json", "--window", "2030", "2040", "--aperture-mm", "-300"],
+     ["--aperture-mm -300.0 is outside 1..100,000"]),
+    (["plan", "never-read.json", "--window", "2030", "2040", "--aperture-mm", "0"],
+     ["--aperture-mm 0.0 is outside"]),
+    (["plan", "never-read.json", "--window", "2030", "2040", "--sigma-mas", "inf"],
+     ["--sigma-mas inf is outside 0.001..100,000"]),
+    (["plan", "never-read.json", "--window", "2030", "2040", "--sigma-mas", "-1"],
+     ["--sigma-mas -1.0 is outside"]),
+    (["plan", "never-read.json", "--window", "2030", "2040", "--min-separation", "inf"],
+     ["--min-separation inf is outside 0..1,000"]),
+    (["plan", "never-read.json", "--window", "2030", "2040", "--min-separation", "nan"],
+     ["--min-separation nan is outside 0..1,000"]),
     (["batch", "never-read.csv", "--out", "b", "--workers", "0"],
      ["--workers 0 is outside 1..64"]),
     (["batch", "never-read.csv", "--out", "b", "--workers", "100000"],
@@ -125,6 +142,8 @@ def test_counts_are_bounded_with_the_limit_in_the_message(tmp_path, capsys, monk
 @pytest.mark.parametrize("command, text", [
     ("mass", "2 to 200,000"), ("ephemeris", "2 to 10,000"), ("plan", "2 to 10,000"),
     ("compare", "2 to 10,000"), ("fit", "14 to 1,000"), ("batch", "1 to 64"),
+    ("plan", "[mm], 1 to 100,000"), ("plan", "[mas], 0.001 to 100,000"),
+    ("plan", "[yr], 0 to 1,000"),
 ])
 def test_limits_are_documented_in_help(command, text):
     help_text = build_parser(command)._subparsers._group_actions[0].choices[command]

@@ -5,8 +5,9 @@ __all__ = ["add_log_arguments", "load_log", "add_mass_arguments", "check_mass_ar
            "add_elements_arguments", "load_elements_document", "check_options", "LIMITS",
            "MAX_SAMPLER_EVALUATIONS", "MAX_SEED"]
 
-#: Bounds of the whole-number options that memory or time follow: (command or None for
-#: every other, option) -> (lowest, highest, why). At the limits (24-row log, CPU time and
+#: Bounds of the numeric options: (command or None for every other, option) -> (lowest,
+#: highest, why). Whole numbers that memory or time follow, and the physical values of
+#: ``plan`` (an infinite or NaN value is outside every range). At the limits (24-row log, CPU time and
 #: peak memory, benchmarks/bench_option_limits.py): mass 2 x 10^5 draws 0.5 s, 90 MB;
 #: compare 10^4 draws 2 s, 480 MB; ephemeris 10^4 draws x 10^4 epochs 28 s, 350 MB;
 #: sampling at the default 32 x 5000 steps 7 s, 160 MB. Beyond them (same machine,
@@ -20,6 +21,11 @@ LIMITS = {
     (None, "steps"): (2, 1_000_000, "the chain is held in memory"),
     (None, "workers"): (1, 64, "every worker is a process with its own memory, about "
                         "150 MB"),
+    ("plan", "aperture_mm"): (1, 100_000, "a telescope's diameter in mm, for Dawes' limit "
+                              "116\"/D; the largest telescopes are under 40 m"),
+    ("plan", "sigma_mas"): (0.001, 100_000, "the new measurement's precision in mas, from "
+                            "a microarcsecond to 100\""),
+    ("plan", "min_separation"): (0, 1_000, "the gap between recommended epochs in years"),
 }
 #: Largest walkers x steps of one sampling (about 12 times the default 32 x 5000, a few
 #: minutes and about 100 MB of chain).
@@ -127,10 +133,10 @@ def load_elements_document(args, name="result"):
 
 
 def check_options(args):
-    """Refuse, before any reading, fitting or sampling, a count or seed out of its range.
+    """Refuse, before any reading, fitting or sampling, an option out of its range.
 
     ``main`` calls it for every command: the bounds of ``LIMITS`` (memory and time follow
-    those options) and the seed. Rules that join several options live beside them
+    the counts; physical values must be finite and make sense) and the seed. Rules that join several options live beside them
     (``check_mass_arguments``, the sampling and velocity checks of ``fit``); the range of
     a single physical value is checked where it is used, before the slow work.
     """

@@ -26,14 +26,17 @@ def add_arguments(parser):
                              "(2027.0 is a Besselian year; J2027.0, JD…, MJD…, ISO dates)")
     parser.add_argument("--step", type=float, help="spacing of the candidate epochs "
                         "[0.05 yr; days when START is a JD or MJD]; at most 100,000 epochs")
-    parser.add_argument("--aperture-mm", type=float, help="telescope aperture D [mm]; epochs "
-                        "with rho below Dawes' limit 116\"/D are not recommended")
+    parser.add_argument("--aperture-mm", type=float, help="telescope aperture D [mm], 1 to "
+                        "100,000; epochs with rho below Dawes' limit 116\"/D are not "
+                        "recommended")
     parser.add_argument("--sigma-mas", type=float, default=5.0,
                         help="expected precision of the new measurement in each coordinate "
-                             "[mas] (5 mas: speckle on a 4 m class telescope) [5]")
+                             "[mas], 0.001 to 100,000 (5 mas: speckle on a 4 m class "
+                             "telescope) [5]")
     parser.add_argument("--top", type=int, default=3, help="number of epochs to recommend [3]")
     parser.add_argument("--min-separation", type=float, default=0.5,
-                        help="smallest gap between recommended epochs [yr] [0.5]")
+                        help="smallest gap between recommended epochs [yr], 0 to 1,000 "
+                             "[0.5]")
     parser.add_argument("--json", metavar="PATH|-", help="write the advice as JSON ('-' for "
                         "standard output, which then replaces the printed text)")
     parser.add_argument("--draws", type=int, default=1000,
