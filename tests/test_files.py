@@ -12,6 +12,7 @@ from pathlib import Path
 
 import pytest
 
+from orbweigh.batch import system_key
 from orbweigh.cli.main import main
 from orbweigh.errors import OutputError
 from orbweigh.files import replace_folder, write_atomic
@@ -99,6 +100,36 @@ def test_full_disk_keeps_previous_batch_summary(tmp_path):
              if str(out / name) in proc.stderr]
     assert named and named[0].startswith(("summary", "index"))
     assert {p.name: p.read_bytes() for p in out.iterdir() if p.is_file()} == before
+
+
+def test_full_disk_stops_the_batch_at_the_first_failed_write(tmp_path):
+    # A finished batch of three systems, run again (no --resume) with a disk that takes
+    # no file of a result's size: the first system's result.json cannot be written, and
+    # the batch stops there - the other two are not fitted, nothing is announced, the
+    # message names the file, and every file of the previous run is as it was.
+    (tmp_path / "logs").mkdir()
+    ids = ("first", "second", "third")
+    for name in ids:
+        (tmp_path / "logs" / f"{name}.csv").write_bytes(SAMPLE.read_bytes())
+    manifest = tmp_path / "manifest.csv"
+    manifest.write_text("id,log\n" + "".join(f"{n},logs/{n}.csv\n" for n in ids))
+    out = tmp_path / "batch"
+    assert main(["batch", str(manifest), "--out", str(out), "--pages", "none", "--quiet",
+                 "--workers", "1"]) == 0
+
+    def files():
+        return {str(p.relative_to(out)): (p.stat().st_ino, p.read_bytes())
+                for p in out.rglob("*") if p.is_file()}
+    before = files()
+    proc = _run_limited(["batch", manifest, "--out", out, "--pages", "none", "--workers", "1"],
+                        tmp_path, limit=4096)
+    failed = out / "systems" / system_key("first") / "result.json"
+    _assert_refused(proc, failed)
+    assert proc.stderr.count(str(out)) == 1, proc.stderr     # one message, one file
+    assert not any(f"[{k}/3]" in proc.stdout for k in (1, 2, 3)), proc.stdout
+    # Same inode and bytes: no system's files were rewritten, no summary was made, and
+    # the summary stream is gone.
+    assert files() == before
 
 
 def test_full_disk_keeps_previous_draws(tmp_path):
