@@ -11,6 +11,7 @@ import json
 import shutil
 import subprocess
 
+import numpy as np
 import pytest
 
 from orbweigh.cli.main import main
@@ -53,10 +54,28 @@ def _chromium():
                 "installs it when run as root with apt-get): the page-layout check cannot run")
 
 
-def _measure(html_path, tmp_path):
+#: The batch index's widths and the right edge of each column's header.
+_MEASURE_INDEX = """<script>
+(function () {
+  const root = document.documentElement;
+  const table = document.getElementById('systems');
+  const heads = Array.from(table.tHead.rows[0].cells).map(
+    h => [h.textContent, h.getBoundingClientRect().right]);
+  const out = {heads: heads, clientWidth: root.clientWidth, scrollWidth: root.scrollWidth,
+               bodyScrollWidth: document.body.scrollWidth, innerWidth: window.innerWidth,
+               tableRight: table.getBoundingClientRect().right};
+  const pre = document.createElement('pre');
+  pre.id = 'orbweigh-measure';
+  pre.textContent = JSON.stringify(out);
+  document.body.appendChild(pre);
+})();
+</script>"""
+
+
+def _measure(html_path, tmp_path, script=_MEASURE):
     page = html_path.read_text(encoding="utf-8")
     copy = html_path.with_name("measure.html")
-    copy.write_text(page.replace("</body>", _MEASURE + "</body>"), encoding="utf-8")
+    copy.write_text(page.replace("</body>", script + "</body>"), encoding="utf-8")
     run = subprocess.run(
         [_chromium(), "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
          f"--user-data-dir={tmp_path / 'profile'}", f"--window-size={WIDTH},{HEIGHT}",
@@ -101,3 +120,45 @@ def test_oc_columns_in_view_at_1366_and_no_sideways_scroll(which, request, tmp_p
     assert m["bodyScrollWidth"] <= m["clientWidth"], m
     wide = [(what, right) for what, right in m["loose"] if right > m["clientWidth"] + 0.5]
     assert not wide, wide
+
+
+@pytest.fixture(scope="module")
+def batch_index(tmp_path_factory):
+    """A 12-system batch as a curator meets it: long ids (one without a space), catalogued
+    orbits (contradicted ones), a log with a rejected line (warnings) and one the reader
+    refuses (a long error)."""
+    from synthetic import make_log, write_log_csv
+    from orbweigh.batch import BatchOptions, run_batch
+    tmp = tmp_path_factory.mktemp("batch-index")
+    (tmp / "logs").mkdir()
+    true = {"P": 12.0, "T": 2005.3, "e": 0.4, "a": 0.5, "i": 50.0, "Omega": 120.0,
+            "omega": 60.0}
+    epochs = np.linspace(1995.0, 2024.0, 25)
+    rows = ["id,log,P,T,e,a,i,Omega,omega,last_epoch"]
+    for k in range(12):
+        name = ("WDS_14135+5147_AB_HIP_69483_a_catalogue_key_without_spaces" if k == 0
+                else f"WDS 14135+5147 AB = HIP {69483 + k} (system {k})")
+        log = write_log_csv(tmp / "logs" / f"s{k}.csv", make_log(true, epochs, 1.0, 0.01, k))
+        if k == 4:           # a letter O for a zero: one rejected line, a warning
+            log.write_text(log.read_text().replace(",0.", ",O.", 1))
+        if k == 7:           # no rho column: the reader refuses the log, a long error
+            log.write_text("epoch,theta,separation\n2000.0,10.0,0.5\n")
+        old = f"{12.0 + 0.5 * k},J2005.3,0.4,0.5,50,120,60,J2015" if k % 2 else ",,,,,,,"
+        rows.append(f"\"{name}\",logs/s{k}.csv,{old}")
+    (tmp / "manifest.csv").write_text("\n".join(rows) + "\n")
+    table = run_batch(tmp / "manifest.csv", tmp / "out", BatchOptions(seed=3, pages="none"),
+                      workers=1, progress=False)
+    assert sum(table["status"] == "failed") == 1 and max(table["n_warnings"]) > 0
+    return tmp / "out" / "index.html"
+
+
+def test_batch_index_fits_a_laptop_screen(batch_index, tmp_path):
+    """Long ids, warnings and the reader's error wrap inside their cells: every column,
+    the error last, ends inside the 1366 px window and the page does not scroll sideways."""
+    m = _measure(batch_index, tmp_path, _MEASURE_INDEX)
+    assert m["innerWidth"] == WIDTH
+    assert [h[0] for h in m["heads"]][-2:] == ["warnings", "error"]
+    for title, right in m["heads"]:
+        assert right <= m["clientWidth"], (title, right, m)
+    assert m["scrollWidth"] <= m["clientWidth"], m
+    assert m["bodyScrollWidth"] <= m["clientWidth"], m

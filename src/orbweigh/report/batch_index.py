@@ -40,6 +40,8 @@ COLUMNS = (("n_new", "new points", "", "i"),
            ("max_separation_sigma", "largest separation", "\u03c3", "f1"),
            ("mass_msun", "total mass", "M\u2609", "g3"))
 
+# Long ids, warnings and errors wrap, even inside a path or an id without spaces
+# ('anywhere' lowers the columns' minimum width too), so the table fits a 1366 px screen.
 _EXTRA_CSS = """
 body{max-width:none;margin:1rem 1.2rem} table.index{font-size:.8rem;width:100%}
 table.index th{position:sticky;top:0;z-index:1;vertical-align:bottom;white-space:normal;
@@ -50,9 +52,12 @@ table.index th button{font:inherit;font-weight:600;color:inherit;background:none
 table.index th[aria-sort=ascending] button::after{content:" \\25B2"}
 table.index th[aria-sort=descending] button::after{content:" \\25BC"}
 table.index tbody tr:nth-child(even) td{background:#f7f9fb}
-table.index tbody tr:hover td{background:#eef3f7} td.warnings-cell{min-width:9rem}
+table.index tbody tr:hover td{background:#eef3f7}
 td.warnings-cell small{color:#5a4a2a} .unit{font-weight:400;color:#5a6b7b}
-td.num small{display:block;white-space:normal} td.error-cell{min-width:9rem;color:#7a2334;overflow-wrap:anywhere} .tally .badge{margin-right:.3rem}
+td.num small{display:block;white-space:normal} td.error-cell{min-width:8rem;color:#7a2334}
+table.index th,table.index td{padding:.22rem .4rem}
+td.id-cell{min-width:9rem} .tally .badge{margin-right:.3rem}
+td.id-cell,td.warnings-cell,td.error-cell{overflow-wrap:anywhere}
 """
 
 # Sorts the table's body by the clicked column; data-value cells numerically, the rest as
@@ -130,7 +135,8 @@ def _warnings_cell(row):
 
 def _row(row, order):
     cells = [f"<td class='num' data-value='{int(row['rank'])}'>{row['rank']}</td>",
-             f'<td><a href="{escape(row["link"])}">{escape(row["id"])}</a></td>',
+             f'<td class="id-cell"><a href="{escape(row["link"])}">{escape(row["id"])}</a>'
+             "</td>",
              f"<td data-value='{order}' "
              f"title='{escape(row['reason'])}'>{verdict_badge(row['verdict'], row['status'])}"
              "</td>"]
