@@ -380,8 +380,8 @@ def test_failed_systems_name_their_log_as_the_manifest_wrote_it(tmp_path):
         "epoch,theta,rho,sigma_theta,sigma_rho\n2000.0,10.0,0.5,1,0.01\n2001.0,12.0,0.5,1,0.01\n")
     (cat / "manifest.csv").write_text("id,log\nno rho,logs/no_rho.csv\nshort,./logs/short.csv\n")
     out = tmp_path / "out"
-    rows = {r["id"]: r for r in run_batch(cat / "manifest.csv", out, BatchOptions(seed=1),
-                                          workers=1, progress=False)}
+    run_batch(cat / "manifest.csv", out, BatchOptions(seed=1), workers=1, progress=False)
+    rows = summary_rows(out)
     reader = ("log: logs/no_rho.csv, line 1: required column(s) rho not found; the header "
               "has: epoch, theta, sep. Rename the header or map your names with --columns")
     assert rows["no rho"]["error"].startswith(reader)
