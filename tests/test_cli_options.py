@@ -89,6 +89,9 @@ def test_mass_refuses_ratio_with_magnitudes_and_writes_nothing(tmp_path, capsys)
 
 
 # --------------------------------------------------------------------- bounded counts
+_PLAN = ["plan", "never-read.json", "--window", "2030", "2040"]
+
+
 @pytest.mark.parametrize("argv, phrases", [
     (["mass", SIRIUS, "--parallax", "379", "1.6", "--draws", "1000000000"],
      ["--draws 1000000000 is outside 2..200,000"]),
@@ -111,22 +114,15 @@ def test_mass_refuses_ratio_with_magnitudes_and_writes_nothing(tmp_path, capsys)
     (["plan", SIRIUS, "--window", "2030", "2400", "--step", "1e-4"],
      ["more than 100,000"]),
     # plan's physical values: finite and in range, refused before the document is read
-    (["plan", "never-read.json", "--window", "2030", "2040", "--aperture-mm", "inf"],
+    ([*_PLAN, "--aperture-mm", "inf"],
      ["--aperture-mm inf is outside 1..100,000", "give a value in that range"]),
-    (["plan", "never-read.json", "--window", "2030", "2040", "--aperture-mm", "nan"],
-     ["--aperture-mm nan is outside 1..100,000"]),
-    (["plan", "never-read.json", "--window", "2030", "2040", "--aperture-mm", "-300"],
-     ["--aperture-mm -300.0 is outside 1..100,000"]),
-    (["plan", "never-read.json", "--window", "2030", "2040", "--aperture-mm", "0"],
-     ["--aperture-mm 0.0 is outside"]),
-    (["plan", "never-read.json", "--window", "2030", "2040", "--sigma-mas", "inf"],
-     ["--sigma-mas inf is outside 0.001..100,000"]),
-    (["plan", "never-read.json", "--window", "2030", "2040", "--sigma-mas", "-1"],
-     ["--sigma-mas -1.0 is outside"]),
-    (["plan", "never-read.json", "--window", "2030", "2040", "--min-separation", "inf"],
-     ["--min-separation inf is outside 0..1,000"]),
-    (["plan", "never-read.json", "--window", "2030", "2040", "--min-separation", "nan"],
-     ["--min-separation nan is outside 0..1,000"]),
+    ([*_PLAN, "--aperture-mm", "nan"], ["--aperture-mm nan is outside 1..100,000"]),
+    ([*_PLAN, "--aperture-mm", "-300"], ["--aperture-mm -300.0 is outside 1..100,000"]),
+    ([*_PLAN, "--aperture-mm", "0"], ["--aperture-mm 0.0 is outside"]),
+    ([*_PLAN, "--sigma-mas", "inf"], ["--sigma-mas inf is outside 0.001..100,000"]),
+    ([*_PLAN, "--sigma-mas", "-1"], ["--sigma-mas -1.0 is outside"]),
+    ([*_PLAN, "--min-separation", "inf"], ["--min-separation inf is outside 0..1,000"]),
+    ([*_PLAN, "--min-separation", "nan"], ["--min-separation nan is outside 0..1,000"]),
     (["batch", "never-read.csv", "--out", "b", "--workers", "0"],
      ["--workers 0 is outside 1..64"]),
     (["batch", "never-read.csv", "--out", "b", "--workers", "100000"],
