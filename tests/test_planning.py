@@ -217,12 +217,15 @@ def test_plan_command_text_and_json(partial_path, capsys, tmp_path):
 
 @pytest.mark.parametrize("argv, message", [
     (["--window", "2035", "2027"], "--window START (2035.0) must be earlier than STOP"),
-    (["--window", "2027", "2035", "--aperture-mm", "-3"], "--aperture-mm must be positive"),
-    (["--window", "2027", "2035", "--sigma-mas", "0"], "--sigma-mas must be positive"),
+    (["--window", "2027", "2035", "--aperture-mm", "-3"],
+     "--aperture-mm -3.0 is outside 1..100,000"),
+    (["--window", "2027", "2035", "--sigma-mas", "0"],
+     "--sigma-mas 0.0 is outside 0.001..100,000"),
     (["--window", "2027", "2035", "--top", "0"], "--top must be at least 1"),
     (["--window", "2027", "2035", "--step", "0.00001"], "more than 100,000"),
     (["--window", "2027", "2035", "--draws", "1"], "--draws 1 is outside 2..10,000"),
-    (["--window", "2027", "2035", "--min-separation", "-1"], "must not be negative"),
+    (["--window", "2027", "2035", "--min-separation", "-1"],
+     "--min-separation -1.0 is outside 0..1,000"),
 ])
 def test_plan_bad_options(partial_path, capsys, argv, message):
     assert main(["plan", partial_path] + argv) == 2
