@@ -8,10 +8,10 @@ __all__ = ["add_log_arguments", "load_log", "add_mass_arguments", "check_mass_ar
 #: Bounds of the numeric options: (command or None for every other, option) -> (lowest,
 #: highest, why). Whole numbers that memory or time follow, and the physical values of
 #: ``plan`` (an infinite or NaN value is outside every range). At the limits of the counts
-#: (24-row log, CPU time and peak memory, benchmarks/bench_option_limits.py): mass 2 x 10^5 draws 0.5 s, 90 MB;
-#: compare 10^4 draws 2 s, 480 MB; ephemeris 10^4 draws x 10^4 epochs 28 s, 350 MB;
-#: sampling at the default 32 x 5000 steps 7 s, 160 MB. Beyond them (same machine,
-#: /usr/bin/time): mass 10^6 draws 0.7 GB, compare 10^5 draws 3.8 GB.
+#: (24-row log, CPU time and peak memory, benchmarks/bench_option_limits.py): mass
+#: 2 x 10^5 draws 0.5 s, 90 MB; compare 10^4 draws 2 s, 480 MB; ephemeris 10^4 draws x
+#: 10^4 epochs 28 s, 350 MB; sampling at the default 32 x 5000 steps 7 s, 160 MB. Beyond
+#: them (same machine, /usr/bin/time): mass 10^6 draws 0.7 GB, compare 10^5 draws 3.8 GB.
 LIMITS = {
     ("mass", "draws"): (2, 200_000, "a million draws take 0.7 GB"),
     (None, "draws"): (2, 10_000, "a 68 % band from 10,000 draws is far finer than its "
