@@ -282,7 +282,7 @@ def test_command_line(catalogue, tmp_path, capsys):
     status = main(["batch", str(catalogue), "--out", str(out), "--workers", "1",
                    "--only-contradicted", "--seed", "7", "--quiet"])
     assert status == 1                   # six broken systems: the batch reports failure
-    assert "6 system(s) failed" in capsys.readouterr().err
+    assert "6 systems failed" in capsys.readouterr().err
     # The command writes each flagged system's review page and the fit's full report, and
     # links the review page from the index (it links the report in turn).
     key = system_key("contradicted")

@@ -75,3 +75,13 @@ def test_p_value_floor_is_a_true_bound_where_scipy_underflows():
             lo, hi = (lo, mid) if gammaincc(dof / 2, mid / 2) == 0 else (mid, hi)
         assert gammaincc(dof / 2, hi / 2) == 0.0
         assert mpmath.gammainc(dof / 2, hi / 2, mpmath.inf, regularized=True) < fmt.P_FLOOR
+
+
+def test_counts_and_line_lists_agree_in_number():
+    # English agreement (common practice, no source): one line, two lines.
+    assert fmt.counted(1, "measurement") == "1 measurement"
+    assert fmt.counted(0, "system") == "0 systems"
+    assert fmt.counted(2, "radial velocity", "radial velocities") == "2 radial velocities"
+    assert fmt.line_list([7]) == "line 7"
+    assert fmt.line_list([2, 3, 9]) == "lines 2, 3, 9"
+    assert fmt.line_list(range(1, 15), most=3) == "lines 1, 2, 3 ..."

@@ -317,9 +317,9 @@ def _warnings(sol, r_rv):
                    f"weight of the velocities rests on their quoted sigmas.")
     far = np.flatnonzero(np.abs(r_rv) > _RV_OUTLIER_SIGMA)
     if far.size:
-        lines = ", ".join(str(int(sol.velocities.line[sol.data.rv_rows[j]])) for j in far)
+        lines = fmt.line_list([sol.velocities.line[sol.data.rv_rows[j]] for j in far], most=len(far))
         out.append(f"{far.size} radial velocit{'y lies' if far.size == 1 else 'ies lie'} beyond "
-                   f"{_RV_OUTLIER_SIGMA:g} sigma of the combined orbit (lines {lines}); "
+                   f"{_RV_OUTLIER_SIGMA:g} sigma of the combined orbit ({lines}); "
                    f"they were kept in the fit: flag them in the log if they are faulty.")
     if not sol.double_lined:
         out.append("Only one component's velocities: no orbital parallax; the component "

@@ -14,7 +14,7 @@ import math
 
 __all__ = ["ROUNDING_RULE", "decimals_for", "value_error_parts", "value_error",
            "interval_parts", "interval", "fixed", "number", "percent", "P_FLOOR", "p_value",
-           "EPOCH_LABELS", "epoch_label", "epoch_in_scale", "epoch"]
+           "EPOCH_LABELS", "epoch_label", "epoch_in_scale", "epoch", "counted", "line_list"]
 
 ROUNDING_RULE = (
     "an uncertainty is rounded to two significant digits (never beyond the units place) "
@@ -178,3 +178,16 @@ def epoch(value, scale, decimals=None, error=None, label=True, internal=False):
     prefix = {"jd": "JD ", "mjd": "MJD "}.get(scale, "")
     name = f" ({epoch_label(scale)})" if label and not prefix else ""
     return f"{prefix}{text}{name}"
+
+
+def counted(n, singular, plural=None):
+    """'1 measurement', '3 measurements' (``plural`` where adding an s is wrong)."""
+    return f"{n} {singular if n == 1 else plural or singular + 's'}"
+
+
+def line_list(lines, most=12):
+    """'line 7' or 'lines 2, 3, 9' (the first ``most``, then '...'): log lines named in a
+    message."""
+    lines = [str(int(v)) for v in lines]
+    shown = ", ".join(lines[:most]) + (" ..." if len(lines) > most else "")
+    return f"line{'' if len(lines) == 1 else 's'} {shown}"

@@ -566,8 +566,9 @@ def _flips(t, th, rho, lines):
             partners[a].append(a + d)
             partners[a + d].append(a)
     return [Suspicion(int(lines[k]), "quadrant_flip",
-                      f"theta {th[k]:.1f} deg is about 180 deg from line(s) "
-                      f"{', '.join(str(lines[p]) for p in sorted(partners[k]))} at similar rho: "
+                      f"theta {th[k]:.1f} deg is about 180 deg from "
+                      f"{fmt.line_list([lines[p] for p in sorted(partners[k])], most=n)} at "
+                      "similar rho: "
                       f"possible quadrant flip (theta + 180 = {(th[k] + 180) % 360:.1f})")
             for k in range(n) if 2 * len(partners[k]) > n_near[k]]
 

@@ -5,6 +5,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import formatting as fmt
 from .elements import (
     ELEMENT_KEYS, ELEMENT_UNITS, CampbellElements, campbell_from_thiele_innes,
     held_angles_as_reported,
@@ -330,9 +331,8 @@ def _phase_coverage(t, period, t_peri):
     return float(np.unique((phase * _PHASE_BINS).astype(int)).size / _PHASE_BINS)
 
 
-def _lines(data, idx, most=12):
-    lines = [str(int(v)) for v in data.line[idx]]
-    return ", ".join(lines[:most]) + (" ..." if len(lines) > most else "")
+def _lines(data, idx):
+    return fmt.line_list(data.line[idx])
 
 
 #: A log longer than this without coordinates gets the precession warning (at 30 yr and
@@ -415,17 +415,16 @@ def _warnings(sol, data, rows, flipped, outlier, best):
         out.append(f"Sigma factor not estimated, kept at 1, for {', '.join(kept)}: a technique "
                    f"needs at least {MIN_POINTS} fitted points for its own factor.")
     if flipped.any():
-        out.append(f"{int(flipped.sum())} measurement(s) corrected for a 180 deg quadrant "
-                   f"error (lines {_lines(data, rows[flipped])}).")
+        out.append(f"{fmt.counted(int(flipped.sum()), 'measurement')} corrected for a 180 deg "
+                   f"quadrant error ({_lines(data, rows[flipped])}).")
     if outlier.any():
-        out.append(f"{int(outlier.sum())} measurement(s) left out as outliers beyond "
-                   f"{sol.options.outlier_sigma:g} sigma (lines {_lines(data, rows[outlier])}).")
+        out.append(f"{fmt.counted(int(outlier.sum()), 'measurement')} left out as outliers "
+                   f"beyond {sol.options.outlier_sigma:g} sigma ({_lines(data, rows[outlier])}).")
     defaulted = np.flatnonzero(data.sigma_defaulted)
     if defaulted.size:
-        out.append(f"{defaulted.size} measurement(s) had no sigma and used the technique's "
-                   f"default (lines {_lines(data, defaulted)}).")
+        out.append(f"{fmt.counted(defaulted.size, 'measurement')} had no sigma and used the "
+                   f"technique's default ({_lines(data, defaulted)}).")
     if data.rejected:
-        out.append(f"{len(data.rejected)} log line(s) could not be used (lines "
-                   + ", ".join(str(p.line) for p in data.rejected[:12])
-                   + (" ..." if len(data.rejected) > 12 else "") + ").")
+        out.append(f"{fmt.counted(len(data.rejected), 'log line')} could not be used "
+                   f"({fmt.line_list([p.line for p in data.rejected])}).")
     return out

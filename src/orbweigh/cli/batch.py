@@ -38,6 +38,7 @@ def add_arguments(parser):
 def run(args):
     import sys
 
+    from .. import formatting as fmt
     from ..batch import BatchOptions, run_batch
     from ..errors import InputError
     if args.workers and args.scheduler:
@@ -50,10 +51,10 @@ def run(args):
     failed = counts.n_failed
     if not args.quiet:
         tally = ", ".join(f"{n} {v}" for v, n in sorted(counts.verdicts.items()))
-        systems = f"{counts.n_systems} system" + ("" if counts.n_systems == 1 else "s")
-        print(f"{systems}{f' ({tally})' if tally else ''}; {failed} failed. Summary: "
+        print(f"{fmt.counted(counts.n_systems, 'system')}{f' ({tally})' if tally else ''}; "
+              f"{failed} failed. Summary: "
               f"{args.out}/summary.ecsv, index: {args.out}/index.html")
     if failed:
-        print(f"orbweigh batch: {failed} system(s) failed; see the 'error' column of "
-              f"{args.out}/summary.csv", file=sys.stderr)
+        print(f"orbweigh batch: {fmt.counted(failed, 'system')} failed; see the 'error' "
+              f"column of {args.out}/summary.csv", file=sys.stderr)
     return 1 if failed else 0
