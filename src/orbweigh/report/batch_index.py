@@ -54,9 +54,9 @@ table.index th[aria-sort=descending] button::after{content:" \\25BC"}
 table.index tbody tr:nth-child(even) td{background:#f7f9fb}
 table.index tbody tr:hover td{background:#eef3f7}
 td.warnings-cell small{color:#5a4a2a} .unit{font-weight:400;color:#5a6b7b}
-td.num small{display:block;white-space:normal} td.error-cell{min-width:8rem;color:#7a2334}
+td.num small{display:block;white-space:normal} td.error-cell{min-width:6rem;color:#7a2334}
 table.index th,table.index td{padding:.22rem .4rem}
-td.id-cell{min-width:9rem} .tally .badge{margin-right:.3rem}
+td.id-cell{min-width:6rem} td.warnings-cell{min-width:10rem} .tally .badge{margin-right:.3rem}
 td.id-cell,td.warnings-cell,td.error-cell{overflow-wrap:anywhere}
 """
 
