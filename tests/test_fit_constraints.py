@@ -61,6 +61,28 @@ def test_fixed_campbell_angle_is_a_constrained_refinement():
     assert abs(truth_held.elements.period_yr - 24.0) < 4 * truth_held.errors["P"]
 
 
+def test_a_node_held_far_from_the_truth_stays_as_held_when_the_fit_goes_face_on():
+    # Omega held 92 deg off the truth: the best orbit allowed is face-on (i near 0),
+    # where Omega has no effect. The reported Omega must be exactly the held value (not
+    # a new split of Omega + omega from the Thiele-Innes constants), the reported
+    # elements must still be the fitted orbit, and the user is told the data disfavour
+    # the held value.
+    from orbweigh.ephemeris import ephemeris
+    from orbweigh.model import predict_theta_rho
+
+    data = make_log(TRUTH, np.linspace(2000, 2030, 40), 0.5, 0.005, seed=3)
+    held = fit_orbit(data, FitOptions(fixed={"Omega": 20.0}))
+    assert held.elements.node_deg == 20.0 and held.errors["Omega"] is None
+    assert held.elements.i_deg < 1.0
+    theta, rho = predict_theta_rho(held.params, data.epoch_yr)
+    shown = ephemeris(held.elements, data.epoch_yr)
+    assert np.allclose(shown.rho_arcsec, rho, atol=1e-9)
+    assert np.allclose(np.mod(shown.theta_deg - theta + 180, 360) - 180, 0, atol=1e-6)
+    said = [w for w in held.warnings if w.startswith("With Omega held the fit went face-on")]
+    assert len(said) == 1 and "the data disfavour the held value" in said[0]
+    assert not any("went face-on" in w for w in fit_orbit(data).warnings)
+
+
 def test_fixed_periastron_in_the_log_scale():
     # T given in the log's scale (here Julian years, the synthetic logs' scale)
     sol = fit_orbit(_log(TRUTH), FitOptions(fixed={"T": 2015.0}))

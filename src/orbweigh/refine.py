@@ -48,12 +48,20 @@ class Constraints:
 
 @dataclass(frozen=True)
 class Refined:
-    """A refined solution: parameters in FIT_KEYS order, chi2, covariance or None."""
+    """A refined solution: parameters in FIT_KEYS order, chi2, covariance or None.
+
+    ``campbell`` and ``campbell_covariance`` are set when the refinement ran in Campbell
+    elements (P, T, e, a, i, Omega, omega; angles in deg, not normalised): held angles
+    are then exact there, while turning (A, B, F, G) back would split Omega and omega
+    anew, arbitrarily for a face-on orbit.
+    """
 
     params: np.ndarray
     chi2: float
     covariance: np.ndarray | None = None
     success: bool = True
+    campbell: np.ndarray | None = None
+    campbell_covariance: np.ndarray | None = None
 
 
 def _basis(t, period, t_peri, e):
@@ -311,4 +319,4 @@ def refine_campbell(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear
     c, cov, success = _solve(resid, jacobian, start, lower, upper, vary, loss, max_nfev)
     chi2 = float(np.sum(resid(c) ** 2))
     return Refined(to_fit(c), chi2, None if cov is None else chain(c) @ cov @ chain(c).T,
-                   success)
+                   success, campbell=np.asarray(c, float), campbell_covariance=cov)

@@ -190,6 +190,23 @@ def _campbell_vector(params):
                      np.degrees(i), np.degrees(node), np.degrees(omega)], float)
 
 
+def _campbell_solution(best, scale):
+    """Campbell elements of a refined solution and their covariance (errors scaled).
+
+    Taken as refined when the refinement ran in Campbell elements (a held angle then
+    stays exactly as held, even face-on), otherwise from the Thiele-Innes constants.
+    """
+    if best.campbell is None:
+        return _campbell_vector(best.params), (
+            None if best.covariance is None else
+            campbell_covariance(best.params, best.covariance * scale))
+    vec = np.array(best.campbell, float)      # i is bounded to [0, 180] there
+    shift = np.floor(vec[5] / 180.0) * 180.0   # in degrees, so a held 60 stays 60.0
+    vec[5], vec[6] = vec[5] - shift, np.mod(vec[6] - shift, 360.0)
+    cov = None if best.campbell_covariance is None else best.campbell_covariance * scale
+    return vec, cov
+
+
 def campbell_covariance(params, fit_covariance):
     """Propagate the (P, T, e, A, B, F, G) covariance to Campbell elements.
 
@@ -226,9 +243,8 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     reduced = best.chi2 / dof
     scale = max(reduced, 1.0)
     fit_cov = None if best.covariance is None else best.covariance * scale
-    vec = _campbell_vector(params)
+    vec, cov = _campbell_solution(best, scale)
     elements = CampbellElements(*vec)
-    cov = None if fit_cov is None else campbell_covariance(params, fit_cov)
     errors = {k: (None if cov is None or k in options.fixed
                   else float(np.sqrt(max(cov[j, j], 0.0))))
               for j, k in enumerate(ELEMENT_KEYS)}
@@ -340,6 +356,10 @@ def _lines(data, idx):
 _UNPRECESSED_SPAN_YR = 30.0
 
 
+#: sin i below this (i within about 1 deg of 0 or 180) counts as face-on for a held angle.
+_FACE_ON_SIN_I = 0.02
+
+
 def _held_branch_note(fixed, el):
     """Say so when a held Omega or omega is reported on the other node branch."""
     shown = held_angles_as_reported(fixed, el.node_deg, el.omega_deg)
@@ -406,6 +426,11 @@ def _warnings(sol, data, rows, flipped, outlier, best):
     if el.i_deg < 10 or el.i_deg > 170:
         out.append("Nearly face-on orbit: Omega and omega are individually poorly defined; "
                    "only their sum (or difference) is.")
+    held_angles = [k for k in ("Omega", "omega") if k in sol.options.fixed]
+    if held_angles and np.sin(np.radians(el.i_deg)) < _FACE_ON_SIN_I:
+        out.append(f"With {' and '.join(held_angles)} held the fit went face-on "
+                   f"(i = {fmt.number(float(el.i_deg), 3)} deg), where the held angle has no "
+                   "effect: the data disfavour the held value. Check it, or free it.")
     if el.e < 0.05:
         out.append("Nearly circular orbit: omega and T are poorly defined.")
     kept = [f"{k} ({v['n_points']} points)" for k, v in
