@@ -3,9 +3,10 @@ import numpy as np
 import pytest
 
 from orbweigh.errors import InputError
-from orbweigh.reductions import (EPOCH_SCALES, approx_theta_correction_deg, parse_epoch,
-                                 parse_epochs, parse_target_coordinates, precess_theta_to_j2000,
-                                 split_epoch)
+from orbweigh.reductions import (EPOCH_SCALES, approx_theta_correction_deg, parse_declination,
+                                 parse_epoch, parse_epochs, parse_right_ascension,
+                                 parse_target_coordinates, precess_theta_to_date,
+                                 precess_theta_to_j2000, split_epoch)
 
 J2000_JD = 2451545.0  # IAU 1976 definition of J2000.0 (memory)
 B1950_JD = 2433282.4235  # B1950.0, IAU definition (Lieske 1979, A&A 73, 282; memory)
@@ -116,3 +117,52 @@ def test_no_change_at_j2000_and_vectorised_shape():
     out = precess_theta_to_j2000(theta, 2000.0, 200.0, 30.0)
     assert out.shape == theta.shape
     assert out == pytest.approx(theta, abs=1e-8)  # identity at equinox J2000 (definition)
+
+
+def _astropy_precessed(theta, t, ra, dec):
+    """Reference: astropy's FK5 frames, the pair carried to the equinox of date and a
+    point 1 arcsec along theta carried back (error of the construction ~1e-8 deg)."""
+    import astropy.units as u
+    from astropy.coordinates import FK5, SkyCoord
+    from astropy.time import Time
+
+    j2000 = FK5(equinox=Time(2000.0, format="jyear", scale="tt"))
+    of_date = FK5(equinox=Time(t, format="jyear", scale="tt"))
+    star = SkyCoord(np.full(t.size, ra) * u.deg, np.full(t.size, dec) * u.deg, frame=j2000)
+    tip = star.transform_to(of_date).directional_offset_by(theta * u.deg, 1 * u.arcsec)
+    tip = SkyCoord(tip.ra, tip.dec, frame=of_date).transform_to(j2000)
+    return star.position_angle(tip).deg
+
+
+def test_precession_agrees_with_astropy_fk5_everywhere():
+    # Random pairs over the whole sky (up to half a degree from a pole) and epochs
+    # 1800-2100: the same position angle as astropy's FK5 equinox change, both ways.
+    rng = np.random.default_rng(11)
+    for _ in range(12):
+        ra, dec = rng.uniform(0, 360), rng.uniform(-89.5, 89.5)
+        t, theta = rng.uniform(1800, 2100, 40), rng.uniform(0, 360, 40)
+        ours = precess_theta_to_j2000(theta, t, ra, dec)
+        diff = (ours - _astropy_precessed(theta, t, ra, dec) + 180.0) % 360.0 - 180.0
+        assert np.max(np.abs(diff)) < 2e-7
+        back = precess_theta_to_date(ours, t, ra, dec)
+        assert np.max(np.abs((back - theta + 180.0) % 360.0 - 180.0)) < 1e-9
+
+
+@pytest.mark.parametrize("text, unit", [
+    ("14h27m13.4s", "hourangle"), ("06:45:08.9", "hourangle"), ("6h45.2m", "hourangle"),
+    ("23 59 59.99", "hourangle"), ("12h", "hourangle"), ("0:0:0.5", "hourangle"),
+    ("+38d41m06s", "deg"), ("-16:42:58", "deg"), ("-00:30:00", "deg"), ("+38 41 06", "deg"),
+    ("-16d42m58.5s", "deg"), ("89d59m59.9s", "deg"), ("-0d0m1s", "deg")])
+def test_sexagesimal_coordinates_read_as_astropy_reads_them(text, unit):
+    # astropy.coordinates.Angle is the reference reader of the same text
+    from astropy.coordinates import Angle
+
+    ours = parse_right_ascension(text) if unit == "hourangle" else parse_declination(text)
+    assert ours == pytest.approx(Angle(text, unit=unit).deg, abs=1e-12)
+
+
+@pytest.mark.parametrize("text", ["10:60:00", "1.5:30", "12h30d", "12x30m", "--1:00", "1:2:3:4",
+                                  ""])
+def test_malformed_sexagesimal_is_refused(text):
+    with pytest.raises(InputError, match="neither degrees nor sexagesimal"):
+        parse_declination(text)

@@ -1,16 +1,13 @@
 """Least squares over a parameter vector with bounds, held values and a budget.
 
-Levenberg-Marquardt (MINPACK through ``scipy.optimize.leastsq``) knows no bounds, so a
-bounded parameter is fitted through a smooth internal variable (the transformation of
+Levenberg-Marquardt (our own, below: scipy.optimize costs 0.4 s to import, a fifth of a
+sampled fit from the command line) knows no bounds, so a bounded parameter is fitted
+through a smooth internal variable (the transformation of
 the MINUIT manual, James 1994, section "parameter limits"; memory):
 x = lo + (sin u + 1)(hi - lo)/2 with both limits, x = lo - 1 + sqrt(u^2 + 1) with a lower
 one only, x = hi + 1 - sqrt(u^2 + 1) with an upper one only. The Jacobian and the
 covariance follow by the chain rule. Robust losses use scipy's trust-region solver,
 which takes the bounds directly.
-
-This is the whole of what the refinement needs from a fitting library, and numpy and
-scipy alone import in a fraction of the time a general one takes (the command line and
-every batch worker pay that import).
 """
 from __future__ import annotations
 
@@ -119,32 +116,121 @@ class _Counted:
 
     def __call__(self, v):
         self.calls += 1
-        self.last = self.full(v)
         if self.calls > self.budget:
             raise _BudgetSpent
+        self.last = self.full(v)
         return np.asarray(self.residuals(self.last), float)
 
 
 def _linear(residuals, jacobian, start, lower, upper, vary, loss, budget):
-    from scipy.optimize import leastsq
-
     transform = _Transform(lower[vary], upper[vary])
     f = _Counted(residuals, jacobian, start, vary, budget, transform.to_external)
 
-    def dfun(u):
+    def jac(u, r):
+        if jacobian is None:
+            return _forward_differences(f, u, r)
         return np.asarray(jacobian(f.full(u)), float)[:, vary] * transform.gradient(u)
 
     try:
-        u, cov, _, _, ier = leastsq(f, transform.to_internal(start[vary]),
-                                    Dfun=None if jacobian is None else dfun, full_output=True,
-                                    ftol=1.5e-8, xtol=1.5e-8, gtol=0.0, maxfev=2 * budget,
-                                    epsfcn=1e-10, factor=100)
+        u, r, converged = _levenberg_marquardt(f, jac, transform.to_internal(start[vary]))
     except _BudgetSpent:
         return BoundedFit(f.last, None, False)
+    f.budget = np.inf                 # the covariance's Jacobian is not part of the search
+    cov = _inverse_curvature(jac(u, r))
     if cov is not None:
         g = transform.gradient(u)
         cov = cov * np.outer(g, g)
-    return BoundedFit(f.full(u), cov, ier in (1, 2, 3, 4))
+    return BoundedFit(f.full(u), cov, converged)
+
+
+#: Levenberg-Marquardt convergence: relative decrease of the cost, actual and predicted,
+#: or scaled step relative to the scaled parameters below these (the tests of MINPACK's
+#: lmder, More 1978; the tolerances its scipy interface defaults to).
+_FTOL = _XTOL = 1.5e-8
+#: Relative forward-difference step (square root of the 1e-10 relative error assumed for
+#: the residuals).
+_DIFF_STEP = 1e-5
+#: Damping of the first step relative to Marquardt's scaling: small, since the starts
+#: (polished search cells) are near a minimum (1e-3 took a third more evaluations).
+_START_DAMPING = 1e-5
+_MAX_DAMPING = 1e30
+
+
+def _levenberg_marquardt(f, jac, u):
+    """Minimise sum f(u)^2 from u; returns (u, f(u), converged).
+
+    Marquardt's scaling D by the largest column norms of the Jacobian seen so far (as
+    MINPACK's lmder), each damped step from the normal equations
+    (J^T J + lam D^2) step = -J^T r; the damping follows the ratio of actual to predicted
+    decrease (H. B. Nielsen 1999, IMM-REP-1999-05; memory). J. J. More, "The
+    Levenberg-Marquardt algorithm: implementation and theory", Lecture Notes in
+    Mathematics 630 (1978) 105.
+    """
+    r = f(u)
+    cost = float(r @ r)
+    damping, growth, scale = _START_DAMPING, 2.0, None
+    while True:
+        if cost == 0.0:
+            return u, r, True
+        J = jac(u, r)
+        norms = np.linalg.norm(J, axis=0)
+        scale = norms if scale is None else np.maximum(scale, norms)
+        scale = np.where(scale > 0.0, scale, 1.0)
+        curvature, gradient = J.T @ J, J.T @ r
+        while True:
+            step = _damped_step(curvature, gradient, damping * scale**2)
+            predicted = float(-2.0 * gradient @ step - step @ curvature @ step)
+            tiny_step = (np.linalg.norm(scale * step)
+                         <= _XTOL * (np.linalg.norm(scale * u) + _XTOL))
+            trial = u + step
+            r_trial = f(trial)
+            cost_trial = float(r_trial @ r_trial) if np.all(np.isfinite(r_trial)) else np.inf
+            actual = cost - cost_trial
+            if predicted > 0.0 and actual > 0.0:
+                ratio = actual / predicted
+                damping *= max(1.0 / 3.0, 1.0 - (2.0 * ratio - 1.0) ** 3)
+                growth = 2.0
+                small_cost = actual <= _FTOL * cost and predicted <= _FTOL * cost
+                u, r, cost = trial, r_trial, cost_trial
+                if small_cost or tiny_step:
+                    return u, r, True
+                break
+            if tiny_step:                 # no decrease left even for a negligible step
+                return u, r, True
+            damping *= growth
+            growth *= 2.0
+            if damping > _MAX_DAMPING:
+                return u, r, False
+
+
+def _damped_step(curvature, gradient, diagonal):
+    """Solve (curvature + diag(diagonal)) step = -gradient; least squares if singular."""
+    lhs = curvature + np.diag(diagonal)
+    try:
+        return np.linalg.solve(lhs, -gradient)
+    except np.linalg.LinAlgError:
+        return np.linalg.lstsq(lhs, -gradient, rcond=None)[0]
+
+
+def _forward_differences(f, u, r):
+    """d f / d u by forward differences (step _DIFF_STEP |u|, or _DIFF_STEP at 0)."""
+    h = _DIFF_STEP * np.abs(u)
+    h = np.where(h == 0.0, _DIFF_STEP, h)
+    columns = []
+    for j in range(u.size):
+        shifted = u.copy()
+        shifted[j] += h[j]
+        columns.append((f(shifted) - r) / h[j])
+    return np.column_stack(columns)
+
+
+def _inverse_curvature(J):
+    """(J^T J)^-1, None when singular or not finite."""
+    try:
+        cov = np.linalg.inv(J.T @ J)
+    except np.linalg.LinAlgError:
+        return None
+    return cov if np.all(np.isfinite(cov)) else None
 
 
 def _robust(residuals, jacobian, start, lower, upper, vary, loss, budget):

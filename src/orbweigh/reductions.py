@@ -248,18 +248,43 @@ def parse_declination(value):
 
 def _angle(value, name, sexagesimal_unit, form):
     """Degrees from a plain number, else from sexagesimal text in ``sexagesimal_unit``."""
-    from astropy.coordinates import Angle  # imported on use: astropy.coordinates is heavy
-
     text = str(value).strip()
     try:
         return float(text)
     except ValueError:
         pass
-    try:
-        return float(Angle(text, unit=sexagesimal_unit).deg)
-    except (ValueError, TypeError):
+    degrees = _sexagesimal_degrees(text, sexagesimal_unit)
+    if degrees is None:
         raise InputError(f"target {name} '{text}' is neither degrees nor sexagesimal "
-                         f"({form})") from None
+                         f"({form})")
+    return degrees
+
+
+_SEXAGESIMAL = re.compile(r"([+-]?)\s*(\d+(?:\.\d*)?)(?:\s*[hd:\s]\s*(\d+(?:\.\d*)?))?"
+                          r"(?:\s*[m:\s]\s*(\d+(?:\.\d*)?))?\s*[hdms]?")
+
+
+def _sexagesimal_degrees(text, default_unit):
+    """Degrees from 'hh:mm:ss.s', '06h45m08.9s', '-16d42m58s', '+38 41 06', '6h45.2m'.
+
+    The first field is hours with an 'h', degrees with a 'd', else ``default_unit``
+    ('hourangle' or 'deg'); minutes and seconds below 60, only the last field with a
+    fraction. None when the text is not of that form.
+    """
+    letters = set(re.sub(r"[^a-z]", "", text.lower()))
+    if not letters <= set("hdms") or {"h", "d"} <= letters:
+        return None
+    match = _SEXAGESIMAL.fullmatch(text.lower())
+    if match is None:
+        return None
+    sign, *fields = match.groups()
+    fields = [f for f in fields if f is not None]
+    values = [float(f) for f in fields]
+    if any("." in f for f in fields[:-1]) or any(v >= 60.0 for v in values[1:]):
+        return None
+    magnitude = sum(v / 60.0**k for k, v in enumerate(values))
+    hours = "h" in letters or ("d" not in letters and default_unit == "hourangle")
+    return (-1.0 if sign == "-" else 1.0) * magnitude * (15.0 if hours else 1.0)
 
 
 def precess_theta_to_j2000(theta_deg, epoch_yr, ra_deg, dec_deg):
@@ -296,24 +321,26 @@ def precess_theta_to_date(theta_deg, epoch_yr, ra_deg, dec_deg):
 
 
 def _precess_theta(theta_deg, epoch_yr, ra_deg, dec_deg, to_j2000):
-    import astropy.units as u
-    from astropy.coordinates import FK5, SkyCoord
-    from astropy.time import Time
+    """Position angles turned between the J2000 equator and the mean equator of date.
+
+    Both frames are rotations of each other, so at the star the position angles of every
+    direction differ by one angle: the position angle, in J2000, of the pole of date.
+    The precession matrix is IAU 2006 without frame bias (``erfa.bp06``; Capitaine et
+    al. 2003), the one astropy's FK5 frame uses between equinoxes.
+    """
+    import erfa
 
     theta, t = np.broadcast_arrays(np.asarray(theta_deg, float), np.asarray(epoch_yr, float))
     shape = theta.shape
     theta, t = theta.ravel(), t.ravel()
-    j2000 = FK5(equinox=Time(2000.0, format="jyear", scale="tt"))
-    of_date = FK5(equinox=Time(t, format="jyear", scale="tt"))
-    star = SkyCoord(np.full(t.size, ra_deg) * u.deg, np.full(t.size, dec_deg) * u.deg,
-                    frame=j2000)
-    star_date = star.transform_to(of_date)
-    # Offset along theta in the frame theta refers to, then measure in the other one.
-    origin, start, target, end = ((star_date, of_date, star, j2000) if to_j2000
-                                  else (star, j2000, star_date, of_date))
-    tip = origin.directional_offset_by(theta * u.deg, 1.0 * u.arcsec)
-    tip = SkyCoord(tip.ra, tip.dec, frame=start).transform_to(end)
-    return np.mod(target.position_angle(tip).deg, 360.0).reshape(shape)
+    _, precession, _ = erfa.bp06(_J2000_JD, (t - 2000.0) * _JULIAN_YEAR_D)
+    ra, dec = np.radians(ra_deg), np.radians(dec_deg)
+    star = np.array([np.cos(dec) * np.cos(ra), np.cos(dec) * np.sin(ra), np.sin(dec)])
+    pole = precession[:, 2, :]               # the pole of date in J2000 coordinates
+    north = pole[:, 2] - star[2] * (pole @ star)
+    east = pole[:, 1] * star[0] - pole[:, 0] * star[1]
+    turn = np.degrees(np.arctan2(east, north))
+    return np.mod(theta + (turn if to_j2000 else -turn), 360.0).reshape(shape)
 
 
 def approx_theta_correction_deg(epoch_yr, ra_deg, dec_deg):
