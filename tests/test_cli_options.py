@@ -59,8 +59,6 @@ def _refused(capsys, argv, *phrases):
     (["--fix", "Omega=360"], ["must be a node in [0, 360) deg", "(the same angle: 0)"]),
     (["--fix", "omega=400"], ["the fixed value of omega must be an angle in [0, 360) deg",
                               "(the same angle: 40)"]),
-    (["--fix", "e=0", "--rv", "never-read-rv.csv"],
-     ["--fix holds elements of the visual fit only", "Drop --fix, or fit without --rv"]),
     (["--period-range", "50", "10"], ["0 < PMIN < PMAX"]),
     (["--outlier-sigma", "-1"], ["the outlier threshold must be positive"]),
 ])

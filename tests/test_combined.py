@@ -7,7 +7,8 @@ import numpy as np
 import pytest
 
 from orbweigh.cli.main import main
-from orbweigh.combined import combined_blocks, fit_combined
+from orbweigh.combined import (add_to_document, combined_blocks, fit_combined, format_combined,
+                               parameter_draws, sample_combined)
 from orbweigh.elements import CampbellElements
 from orbweigh.ephemeris import ephemeris
 from orbweigh.fitting import FitOptions, fit_orbit
@@ -32,27 +33,29 @@ SIGMA_THETA, SIGMA_RHO, SIGMA_RV = 0.5, 0.01, (0.3, 0.4)
 SEED = 5
 
 
-def _write_positions(path, rng):
-    t = np.sort(rng.uniform(1975.0, 2024.0, 40))
-    eph = ephemeris(TRUE, t)
+def _write_positions(path, rng, true=TRUE, n=40):
+    t = np.sort(rng.uniform(1975.0, 2024.0, n))
+    eph = ephemeris(true, t)
     theta = np.mod(eph.theta_deg + rng.normal(0, SIGMA_THETA, t.size), 360.0)
     rho = eph.rho_arcsec + rng.normal(0, SIGMA_RHO, t.size)
     rows = [f"J{a:.4f},{b:.3f},{c:.4f},{SIGMA_THETA},{SIGMA_RHO},speckle"
             for a, b, c in zip(t, theta, rho)]
     path.write_text("epoch,theta,rho,sigma_theta,sigma_rho,technique\n" + "\n".join(rows) + "\n")
+    return path
 
 
-def _true_dict(node_deg, omega_deg):
-    return dict(zip(KEYS, (*TRUE.as_tuple()[:5], node_deg, omega_deg)))
+def _true_dict(node_deg, omega_deg, true=TRUE):
+    return dict(zip(KEYS, (*true.as_tuple()[:5], node_deg, omega_deg)))
 
 
-def _write_velocities(path, seed, node_deg, omega_deg, components=(1, 2), sigma=SIGMA_RV):
+def _write_velocities(path, seed, node_deg, omega_deg, components=(1, 2), sigma=SIGMA_RV,
+                      true=TRUE, n=30):
     """Velocities of the true orbit with the given node choice, from the independent
     generator (z away from the observer, velocities by differentiating z)."""
-    assert (node_deg - TRUE.node_deg) % 180 == 0
+    assert (node_deg - true.node_deg) % 180 == 0
     rng = np.random.default_rng(seed)
-    t = np.sort(rng.uniform(2000.0, 2024.0, 30))
-    v1, v2 = radial_velocities_3d(_true_dict(node_deg, omega_deg), t, PLX_MAS, Q, GAMMA)
+    t = np.sort(rng.uniform(2000.0, 2024.0, n))
+    v1, v2 = radial_velocities_3d(_true_dict(node_deg, omega_deg, true), t, PLX_MAS, Q, GAMMA)
     rows = []
     for k in range(t.size):
         for comp, v, s in ((1, v1[k], sigma[0]), (2, v2[k], sigma[1])):
@@ -268,11 +271,12 @@ def test_joint_posterior_matches_least_squares(synthetic):
     sol = fit_combined(solution, vs)
     draws, info = sample_combined(sol, walkers=22, steps=300, seed=7)
     assert info["seed"] == 7 and info["n_draws"] == len(draws) > 100
-    for j, key in enumerate(sol.keys):
+    assert sol.parameters == sol.keys           # nothing held
+    for j, key in enumerate(sol.parameters):
         assert abs(np.median(draws[:, j]) - sol.values[key]) < 0.5 * sol.errors[key], key
         assert 0.6 < np.std(draws[:, j]) / sol.errors[key] < 1.5, key
     for j in (5, 6):   # angles on the branch of the best value (within 180 deg of it)
-        assert np.all(np.abs(draws[:, j] - sol.values[sol.keys[j]]) <= 180.0)
+        assert np.all(np.abs(draws[:, j] - sol.values[sol.parameters[j]]) <= 180.0)
     blocks = combined_blocks(sol, draws=draws, seed=7)
     assert blocks["mass"]["draws_source"] == "posterior"
     assert blocks["mass"]["draws"] == len(draws)
@@ -326,11 +330,181 @@ def test_joint_posterior_epoch_in_the_log_scale():
                              ((50.0, 0.2), (1930.25, 0.05), (0.4, 0.01), (1.0, 0.01),
                               (60.0, 1.0), (120.0, 1.0), (40.0, 1.0), (-5.0, 0.1),
                               (10.0, 0.2), (12.0, 0.2))])
-    sol = SimpleNamespace(keys=("P", "T", "e", "a", "i", "Omega", "omega", "gamma", "K1", "K2"),
-                          visual=SimpleNamespace(data=SimpleNamespace(epoch_scale="besselian")))
+    sol = SimpleNamespace(parameters=("P", "T", "e", "a", "i", "Omega", "omega", "gamma", "K1",
+                                      "K2"),
+                          visual=SimpleNamespace(data=SimpleNamespace(epoch_scale="besselian"),
+                                                 options=SimpleNamespace(fixed={})))
     t = _posterior_summary(sol, draws)["T"]
     assert t["scale"] == "besselian"
     expected = Time(np.median(draws[:, 1]), format="jyear", scale="tt").byear
     assert t["value"] == pytest.approx(expected, abs=1e-6)
     assert t["value"] - np.median(draws[:, 1]) == pytest.approx(
         Time(1930.25, format="jyear", scale="tt").byear - 1930.25, abs=1e-6)
+
+
+# ------------------------------------------------------------ held elements (--fix)
+# Invented circular pair: the eccentric one with e = 0 (truth = the generator's input).
+CIRCULAR = dataclasses.replace(TRUE, e=0.0)
+K_SUM_CIRCULAR = rv_semi_amplitude_kms(A_AU, CIRCULAR.period_yr, 0.0, CIRCULAR.i_deg)
+K1_CIRCULAR, K2_CIRCULAR = K_SUM_CIRCULAR * Q / (1 + Q), K_SUM_CIRCULAR / (1 + Q)
+
+
+@pytest.fixture(scope="module")
+def circular(tmp_path_factory):
+    """A circular SB2 pair: positions, velocities, and the visual fit with e held at 0."""
+    folder = tmp_path_factory.mktemp("circular")
+    positions = _write_positions(folder / "positions.csv", np.random.default_rng(21),
+                                 CIRCULAR, n=30)
+    rv = _write_velocities(folder / "rv.csv", 22, 300.0, 40.0, true=CIRCULAR, n=20)
+    solution = fit_orbit(read_measurements(positions),
+                         FitOptions(period_range=(30.0, 80.0), fixed={"e": 0.0}))
+    return solution, read_velocities(rv), folder
+
+
+def _within(sol, truths, n_sigma=4.0):
+    """Keys whose value misses the truth by more than n_sigma errors (angles wrapped)."""
+    return [k for k, truth in truths.items()
+            if _angle_off(sol.values[k], truth) > n_sigma * sol.errors[k]]
+
+
+def test_held_eccentricity_of_a_circular_pair(circular):
+    # e held at 0: exactly 0, no error, not fitted, one degree of freedom more; the
+    # other elements recovered within 4 sigma (common practice, no source). T and omega
+    # are one parameter on a circle (only omega + 2 pi (t - T) / P counts): not compared.
+    solution, vs, _ = circular
+    sol = fit_combined(solution, vs)
+    assert sol.values["e"] == 0.0 and sol.errors["e"] is None and "e" not in sol.keys
+    assert sol.held == {"e": 0.0} and len(sol.keys) == 9
+    assert sol.dof == 2 * 30 + 2 * 20 - 9
+    assert not _within(sol, {"P": 50.0, "a": 0.5, "i": 118.0, "Omega": 300.0, "gamma": GAMMA,
+                             "K1": K1_CIRCULAR, "K2": K2_CIRCULAR})
+    assert sol.node_delta_chi2 > 100.0
+    blocks = combined_blocks(sol, seed=3)
+    assert blocks["orbital_parallax"]["low95"] < PLX_MAS < blocks["orbital_parallax"]["high95"]
+    draws = parameter_draws(sol, 50, seed=3)
+    assert np.all(draws[:, sol.parameters.index("e")] == 0.0)
+
+
+def test_held_period(synthetic):
+    solution, folder = synthetic
+    held = fit_orbit(solution.data, FitOptions(fixed={"P": 50.0}))
+    vs = read_velocities(_write_velocities(folder / "rv_held_p.csv", 23, 300.0, 40.0))
+    sol = fit_combined(held, vs)
+    assert sol.values["P"] == 50.0 and sol.errors["P"] is None and "P" not in sol.keys
+    assert sol.dof == 2 * 40 + 60 - 9
+    assert not _within(sol, {"T": 2012.3, "e": 0.45, "a": 0.5, "i": 118.0, "Omega": 300.0,
+                             "omega": 40.0, "gamma": GAMMA, "K1": K1, "K2": K2})
+
+
+def test_held_true_node_is_kept(synthetic):
+    # Omega held at its true 300 deg: the visual fit reports it as 120 (Omega in [0, 180));
+    # with velocities it is 300 exactly, and the other choice loses decisively.
+    solution, folder = synthetic
+    held = fit_orbit(solution.data, FitOptions(period_range=(30.0, 80.0),
+                                               fixed={"Omega": 300.0}))
+    assert held.elements.node_deg == pytest.approx(120.0)
+    vs = read_velocities(_write_velocities(folder / "rv_held_node.csv", 24, 300.0, 40.0))
+    sol = fit_combined(held, vs)
+    assert sol.values["Omega"] == 300.0 and sol.errors["Omega"] is None
+    assert sol.dof == 2 * 40 + 60 - 9
+    assert sol.other_node["values"]["Omega"] == 120.0
+    assert sol.node_delta_chi2 > 100.0
+    assert not any("prefer" in w or "not decided" in w for w in sol.warnings)
+    assert not _within(sol, {"omega": 40.0, "i": 118.0, "K1": K1, "K2": K2})
+    doc = add_to_document(held.to_document(), sol, combined_blocks(sol, seed=1))
+    assert doc["elements"]["Omega"] == {"value": 300.0, "error": None, "unit": "deg",
+                                        "fixed": True}
+    assert doc["node"]["held"] == ["Omega"] and doc["combined"]["fixed"] == {"Omega": 300.0}
+    assert not any("[0, 180)" in w for w in doc["warnings"])   # the visual branch note
+    assert "Omega = 300.00 deg held (--fix); Omega = 120.00 deg fits worse" in \
+        format_combined(doc)
+
+
+def test_node_held_on_the_wrong_side_is_kept_with_a_warning(synthetic):
+    # Omega held at true + 180 = 120 deg: kept as held, the other choice (300 deg) fitted
+    # for comparison, and the warning says the velocities prefer it, with the delta chi2.
+    solution, folder = synthetic
+    held = fit_orbit(solution.data, FitOptions(period_range=(30.0, 80.0),
+                                               fixed={"Omega": 120.0}))
+    vs = read_velocities(_write_velocities(folder / "rv_wrong_node.csv", 25, 300.0, 40.0))
+    sol = fit_combined(held, vs)
+    assert sol.values["Omega"] == 120.0 and sol.errors["Omega"] is None
+    other = sol.other_node
+    assert other["values"]["Omega"] == 300.0
+    assert _angle_off(other["values"]["omega"], 40.0) < 3.0
+    assert sol.node_delta_chi2 == pytest.approx(other["chi2"] - sol.chi2) and \
+        sol.node_delta_chi2 < -100.0
+    said = [w for w in sol.warnings if w.startswith("The velocities prefer the other node")]
+    assert len(said) == 1
+    assert "Omega = 300.00 deg" in said[0] and f"{-sol.node_delta_chi2:.1f}" in said[0]
+    assert "held Omega = 120 deg was kept" in said[0]
+    doc = add_to_document(held.to_document(), sol, combined_blocks(sol, seed=1))
+    assert doc["node"]["decisive"] and doc["node"]["delta_chi2"] < 0
+    assert "fits BETTER by delta chi2" in format_combined(doc)
+    from orbweigh.report.html import _node_sentence
+    assert _node_sentence(doc["node"]).startswith("A held angle (--fix) fixes the node")
+    assert _node_sentence(doc["node"]).endswith("fits better by \u0394\u03c7\u00b2 = "
+                                                f"{-sol.node_delta_chi2:.1f}: the velocities "
+                                                "prefer it.")
+
+
+def test_joint_posterior_with_a_held_element(circular):
+    solution, vs, _ = circular
+    sol = fit_combined(solution, vs)
+    draws, info = sample_combined(sol, walkers=20, steps=150, seed=9)
+    assert draws.shape[1] == len(sol.parameters) == len(sol.keys) + 1
+    assert np.all(draws[:, sol.parameters.index("e")] == 0.0)
+    assert info["fixed"] == {"e": 0.0} and "held fixed at 0" in info["priors"]["e"]
+    for key in ("P", "a", "K1"):    # free ones do move
+        assert np.std(draws[:, sol.parameters.index(key)]) > 0.2 * sol.errors[key]
+    doc = add_to_document(solution.to_document(), sol,
+                          combined_blocks(sol, draws=draws, seed=9), (draws, info))
+    summary = doc["combined"]["posterior"]["parameters"]
+    assert summary["e"]["fixed"] is True and summary["e"]["value"] == 0.0
+    assert summary["e"]["low95"] == summary["e"]["high95"] == 0.0
+    assert doc["mass"]["draws_source"] == "posterior"
+
+
+def test_cli_fit_with_velocities_and_held_elements(circular, capsys, tmp_path):
+    _, _, folder = circular
+    out_json = tmp_path / "held.json"
+    status, out, _ = _run(capsys, folder / "positions.csv", "--rv", folder / "rv.csv",
+                          "--period-range", 30, 80, "--fix", "e=0", "--fix", "Omega=300",
+                          "--json", out_json)
+    assert status == 0
+    doc = json.loads(out_json.read_text())
+    for key, value in (("e", 0.0), ("Omega", 300.0)):
+        assert doc["elements"][key] == {"value": value, "error": None, "unit": doc["elements"][
+            key]["unit"], "fixed": True}
+    assert doc["statistics"]["dof"] == 2 * 30 + 2 * 20 - 8
+    assert doc["combined"]["parameters"] == ["P", "T", "a", "i", "omega", "gamma", "K1", "K2"]
+    assert doc["combined"]["fixed"] == {"e": 0.0, "Omega": 300.0}
+    assert len(doc["combined"]["covariance"]) == 8
+    assert [row[2] for row in doc["covariance"]["matrix"]] == [0.0] * 7   # e's column
+    assert "e                         0 (fixed)" in out
+    assert "Omega = 300.00 deg held (--fix)" in out
+
+
+def test_held_periastron_epoch_in_a_besselian_log(tmp_path):
+    # T held in the log's scale (plain decimal years: Besselian); the combined fit holds
+    # the same instant as a Julian year, converted by astropy's Time here (independent).
+    from astropy.time import Time
+
+    rng = np.random.default_rng(26)
+    t = np.sort(rng.uniform(1975.0, 2024.0, 30))
+    eph = ephemeris(TRUE, t)
+    rows = [f"{b:.5f},{th:.3f},{r:.4f},{SIGMA_THETA},{SIGMA_RHO}" for b, th, r in zip(
+        Time(t, format="jyear", scale="tt").byear,
+        np.mod(eph.theta_deg + rng.normal(0, SIGMA_THETA, t.size), 360.0),
+        eph.rho_arcsec + rng.normal(0, SIGMA_RHO, t.size))]
+    log = tmp_path / "besselian.csv"
+    log.write_text("epoch,theta,rho,sigma_theta,sigma_rho\n" + "\n".join(rows) + "\n")
+    t_besselian = float(Time(TRUE.periastron_yr, format="jyear", scale="tt").byear)
+    held = fit_orbit(read_measurements(log), FitOptions(period_range=(30.0, 80.0),
+                                                        fixed={"T": t_besselian}))
+    vs = read_velocities(_write_velocities(tmp_path / "rv.csv", 27, 300.0, 40.0))
+    sol = fit_combined(held, vs)
+    assert sol.values["T"] == pytest.approx(TRUE.periastron_yr, abs=1e-9)
+    assert sol.errors["T"] is None and "T" not in sol.keys
+    doc = add_to_document(held.to_document(), sol, combined_blocks(sol, seed=1))
+    assert doc["elements"]["T"]["value"] == t_besselian and doc["elements"]["T"]["fixed"]

@@ -19,6 +19,12 @@ positive, so the wrong choice cannot mimic the right one by a sign change of K. 
 one is kept and the chi2 difference reported. Uncertainties come from the covariance,
 scaled by the reduced chi2 when it exceeds 1.
 
+Elements held in the visual fit (``FitOptions.fixed``, --fix) stay held: they are not
+fitted, carry no error and do not count in the degrees of freedom. Here Omega runs over
+[0, 360), so a held Omega or omega also fixes the node choice: that fit is kept whatever
+its chi2, the other choice is fitted with the held angles + 180 deg for comparison, and a
+warning says so when the velocities prefer it.
+
 Distance and masses (``combined_blocks``), per draw of the joint covariance (multivariate
 normal, seeded): the linear semi-major axis a_au = (K1 + K2) P sqrt(1 - e^2) / (2 pi sin i),
 the orbital parallax a["] / a_au and the component masses from a_au, P and q = K1/K2.
@@ -36,8 +42,10 @@ import numpy as np
 
 from . import formatting as fmt
 from .bounded_least_squares import fit_bounded
-from .elements import ELEMENT_KEYS, CampbellElements, centre_angles, thiele_innes_from_campbell
+from .elements import (ELEMENT_KEYS, CampbellElements, centre_angles, held_angles_as_reported,
+                       thiele_innes_from_campbell)
 from .errors import InputError
+from .fitting import held_constraints
 from .masses import format_mass_blocks, summarise, total_mass_msun
 from .model import normalised_residuals, predict_theta_rho, wrap_degrees
 from .reductions import from_julian_year, interval_in_scale
@@ -149,10 +157,11 @@ class CombinedSolution:
     data : JointData
         The fitted points.
     keys : tuple of str
-        Fitted parameters, in ``PARAMETER_KEYS`` order.
+        Fitted (free) parameters, in ``PARAMETER_KEYS`` order; held elements are absent.
     values, errors : dict
-        Best values and 1-sigma errors in ``PARAMETER_UNITS`` (T a Julian year; Omega
-        in [0, 360), omega in [0, 360)).
+        Best values and 1-sigma errors of every parameter (``parameters``) in
+        ``PARAMETER_UNITS`` (T a Julian year; Omega in [0, 360), omega in [0, 360)); a held
+        element has its held value and error None.
     covariance : ndarray or None
         Covariance of ``keys`` (scaled by the reduced chi2 when > 1).
     chi2, chi2_astrometric, chi2_rv : float
@@ -162,7 +171,11 @@ class CombinedSolution:
     other_node : dict
         Best fit with the other node choice: {"values", "chi2"}.
     node_delta_chi2 : float
-        chi2 of the other node choice minus the kept one's.
+        chi2 of the other node choice minus the kept one's (negative only when a held
+        angle kept the worse choice).
+    held : dict
+        Held elements of the kept fit in internal units (T a Julian year, angles deg);
+        empty when none.
     warnings, notes : list of str
         Plain-language caveats.
     """
@@ -182,6 +195,7 @@ class CombinedSolution:
     errors_scaled: bool
     other_node: dict
     node_delta_chi2: float
+    held: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
     notes: list = field(default_factory=list)
 
@@ -201,6 +215,25 @@ class CombinedSolution:
     def double_lined(self):
         return "K1" in self.keys and "K2" in self.keys
 
+    @property
+    def parameters(self):
+        """Every joint parameter, held or fitted, in ``PARAMETER_KEYS`` order."""
+        return tuple(k for k in PARAMETER_KEYS if k in self.values)
+
+    @property
+    def held_angles(self):
+        """The held ones of Omega and omega: they fix the node choice."""
+        return tuple(k for k in ("Omega", "omega") if k in self.held)
+
+    def full_covariance(self):
+        """Covariance of ``parameters`` (held rows and columns zero), or None."""
+        if self.covariance is None:
+            return None
+        index = [self.parameters.index(k) for k in self.keys]
+        full = np.zeros((len(self.parameters),) * 2)
+        full[np.ix_(index, index)] = self.covariance
+        return full
+
 
 def _linear_amplitudes(v, data):
     """gamma and the amplitudes for a fixed orbit, by weighted linear least squares.
@@ -216,12 +249,14 @@ def _linear_amplitudes(v, data):
     return float(sol[0]), dict(zip(amps, sol[1:]))
 
 
-def _start(elements, data, shift_node):
-    """Start values from the visual elements, one node choice, and the velocities."""
+def _start(elements, data, shift_node, held):
+    """Start values from the visual elements, one node choice, the held values and the
+    velocities."""
     v = dict(zip(ELEMENT_KEYS, elements.as_tuple()))
     if shift_node:
         v["Omega"] += 180.0
         v["omega"] += 180.0
+    v.update(held)
     gamma, amps = _linear_amplitudes(v, data)
     v["gamma"] = gamma
     for k, value in amps.items():
@@ -231,18 +266,42 @@ def _start(elements, data, shift_node):
     return v
 
 
-def _least_squares(v0, data, keys):
-    """Levenberg-Marquardt on the joint residuals; (values, chi2, unscaled covariance)."""
+def _least_squares(v0, data, keys, held):
+    """Levenberg-Marquardt of ``keys`` on the joint residuals, ``held`` fixed; (values of
+    every parameter, chi2, unscaled covariance of ``keys``)."""
     lower = [_BOUNDS.get(k, (-np.inf, np.inf))[0] for k in keys]
     upper = [_BOUNDS.get(k, (-np.inf, np.inf))[1] for k in keys]
     start = [v0[k] if k != "e" else min(max(v0[k], 1e-4), _E_MAX - 1e-3) for k in keys]
 
     def resid(x):
-        return joint_residuals(dict(zip(keys, x)), data)
+        return joint_residuals({**held, **dict(zip(keys, x))}, data)
 
     out = fit_bounded(resid, start, lower, upper, np.ones(len(keys), bool))
-    values = {k: float(v) for k, v in zip(keys, out.x)}
+    values = {**{k: float(v) for k, v in held.items()},
+              **{k: float(v) for k, v in zip(keys, out.x)}}
+    for k in ("Omega", "omega"):
+        values[k] = float(np.mod(values[k], 360.0))
     return values, float(np.sum(resid(out.x) ** 2)), out.covariance
+
+
+def _node_fits(solution, data, keys, held):
+    """(kept, other) fits of the two node choices, each (values, chi2, covariance).
+
+    Without a held angle the better one is kept. A held Omega or omega fixes the choice:
+    the kept fit starts from the visual orbit on the held angle's branch, the other one
+    holds the angle(s) + 180 deg.
+    """
+    angles = [k for k in ("Omega", "omega") if k in held]
+    el = solution.elements
+    if not angles:
+        fits = sorted((_least_squares(_start(el, data, shift, held), data, keys, held)
+                       for shift in (False, True)), key=lambda f: f[1])
+        return fits[0], fits[1]
+    # the visual orbit is reported with Omega in [0, 180): is the held angle on the other branch?
+    shift = held_angles_as_reported(held, el.node_deg, el.omega_deg) != held
+    turned = {**held, **{k: float(np.mod(held[k] + 180.0, 360.0)) for k in angles}}
+    return (_least_squares(_start(el, data, shift, held), data, keys, held),
+            _least_squares(_start(el, data, not shift, turned), data, keys, turned))
 
 
 def fit_combined(solution, velocities):
@@ -263,23 +322,23 @@ def fit_combined(solution, velocities):
     ------
     InputError
         Fewer than three usable velocities (gamma and one amplitude need more).
+
+    Elements held in the visual fit (``solution.options.fixed``) stay held here (see the
+    module's description).
     """
     data = JointData.from_solution(solution, velocities)
     if data.t_rv.size < 3:
         raise InputError(f"{velocities.source}: {data.t_rv.size} usable radial velocities; a "
                          "combined solution needs at least 3 (gamma and an amplitude)")
-    keys = ELEMENT_KEYS + ("gamma",) + data.amplitude_keys()
-    fits = [_least_squares(_start(solution.elements, data, shift), data, keys)
-            for shift in (False, True)]
-    fits.sort(key=lambda f: f[1])
-    (values, chi2, covar), (other, other_chi2, _) = fits
-    for v in (values, other):
-        v["Omega"], v["omega"] = float(np.mod(v["Omega"], 360.0)), float(np.mod(v["omega"], 360.0))
+    held = held_constraints(solution.options, solution.data).fixed
+    keys = tuple(k for k in ELEMENT_KEYS if k not in held) + ("gamma",) + data.amplitude_keys()
+    (values, chi2, covar), (other, other_chi2, _) = _node_fits(solution, data, keys, held)
     dof = max(2 * data.t_ast.size + data.t_rv.size - len(keys), 1)
     reduced = chi2 / dof
     cov = None if covar is None else covar * max(reduced, 1.0)
-    errors = {k: (None if cov is None else float(np.sqrt(max(cov[j, j], 0.0))))
-              for j, k in enumerate(keys)}
+    errors = {k: (None if cov is None or k in held else
+                  float(np.sqrt(max(cov[keys.index(k), keys.index(k)], 0.0))))
+              for k in values}
     n_ast = data.t_ast.size
     r = joint_residuals(values, data)
     sol = CombinedSolution(
@@ -288,24 +347,52 @@ def fit_combined(solution, velocities):
         chi2_astrometric=float(np.sum(r[:2 * n_ast] ** 2)),
         chi2_rv=float(np.sum(r[2 * n_ast:] ** 2)), dof=int(dof), reduced_chi2=float(reduced),
         errors_scaled=bool(reduced > 1.0 and cov is not None),
-        other_node={"values": other, "chi2": other_chi2}, node_delta_chi2=other_chi2 - chi2)
+        other_node={"values": other, "chi2": other_chi2}, node_delta_chi2=other_chi2 - chi2,
+        held=dict(held))
     sol.warnings.extend(_warnings(sol, r[2 * n_ast:]))
-    sol.notes.append("Radial velocities fix the node: Omega is the ascending node (where the "
-                     "secondary recedes) and runs over [0, 360) deg; omega is the secondary's, "
-                     "the primary's spectroscopic omega1 = omega + 180 deg.")
+    sol.notes.append(("With radial velocities " if sol.held_angles else
+                      "Radial velocities fix the node: ") +
+                     "Omega is the ascending node (where the secondary recedes) and runs over "
+                     "[0, 360) deg; omega is the secondary's, the primary's spectroscopic "
+                     "omega1 = omega + 180 deg.")
+    if sol.held_angles:
+        verb = "fixes" if len(sol.held_angles) == 1 else "fix"
+        sol.notes.append(f"Held {_held_words(sol)} {verb} the node choice; the other choice "
+                         f"was fitted with {' and '.join(sol.held_angles)} + 180 deg for "
+                         "comparison only.")
     if sol.errors_scaled:
         sol.notes.append(f"Uncertainties of the combined solution were scaled by "
                          f"sqrt(reduced chi2) = {np.sqrt(reduced):.2f}.")
     return sol
 
 
+def _held_words(sol):
+    """'Omega = 300 deg' (and 'omega = 40 deg'): the held angles, as the user gave them."""
+    return " and ".join(f"{k} = {fmt.number(sol.held[k], 6)} deg" for k in sol.held_angles)
+
+
+def _node_warning(sol):
+    """The node choice in words when it is not decided, or when a held angle kept the
+    choice the velocities reject."""
+    delta, other = sol.node_delta_chi2, sol.other_node["values"]
+    if abs(delta) < NODE_DECISIVE_DELTA_CHI2:
+        which = "better" if delta < 0 else "worse"
+        return (f"The node is not decided: the other choice (Omega = {other['Omega']:.2f} deg) "
+                f"fits {which} by only delta chi2 = {abs(delta):.1f} (< "
+                f"{NODE_DECISIVE_DELTA_CHI2:g}); the velocities do not constrain the orbit's "
+                "phase well enough.")
+    if delta < 0:
+        return (f"The velocities prefer the other node: Omega = {other['Omega']:.2f} deg, "
+                f"omega = {other['omega']:.2f} deg (the held {' and '.join(sol.held_angles)} "
+                f"+ 180 deg) fits better by "
+                f"delta chi2 = {-delta:.1f}. The held {_held_words(sol)} "
+                + ("was kept as given (--fix); check it, or free it." if len(sol.held_angles) == 1
+                   else "were kept as given (--fix); check them, or free them."))
+    return None
+
+
 def _warnings(sol, r_rv):
-    out = []
-    if sol.node_delta_chi2 < NODE_DECISIVE_DELTA_CHI2:
-        out.append(f"The node is not decided: the other choice (Omega = "
-                   f"{sol.other_node['values']['Omega']:.2f} deg) fits worse by only delta chi2 "
-                   f"= {sol.node_delta_chi2:.1f} (< {NODE_DECISIVE_DELTA_CHI2:g}); the "
-                   f"velocities do not constrain the orbit's phase well enough.")
+    out = [w for w in (_node_warning(sol),) if w]
     if sol.covariance is None:
         out.append("The covariance of the combined fit could not be estimated (degenerate "
                    "solution): no uncertainties, orbital parallax or masses are given.")
@@ -329,16 +416,19 @@ def _warnings(sol, r_rv):
 
 # ----------------------------------------------------------------- distance and masses
 def parameter_draws(sol, n, seed):
-    """Draws of the joint parameters from the covariance, shape (n, len(keys)).
+    """Draws of the joint parameters from the covariance, shape (n, len(sol.parameters)).
 
-    Multivariate normal around the best values with ``numpy.random.default_rng(seed)``;
-    e is folded into [0, 0.999), P, a and the amplitudes are taken positive.
+    Multivariate normal around the best values with ``numpy.random.default_rng(seed)``
+    (held elements constant at their values); e is folded into [0, 0.999), P, a and the
+    amplitudes are taken positive.
     """
     rng = np.random.default_rng(seed)
-    best = np.array([sol.values[k] for k in sol.keys])
-    draws = rng.multivariate_normal(best, sol.covariance, size=n, method="eigh")
-    for j, k in enumerate(sol.keys):
-        if k in ("P", "a", "K1", "K2"):
+    best = np.array([sol.values[k] for k in sol.parameters])
+    draws = rng.multivariate_normal(best, sol.full_covariance(), size=n, method="eigh")
+    for j, k in enumerate(sol.parameters):
+        if k in sol.held:
+            draws[:, j] = sol.held[k]
+        elif k in ("P", "a", "K1", "K2"):
             draws[:, j] = np.abs(draws[:, j])
         elif k == "e":
             draws[:, j] = np.clip(np.abs(draws[:, j]), 0.0, 0.999)
@@ -369,7 +459,7 @@ def combined_blocks(sol, parallax=None, combine=False, n_draws=4000, seed=1, dra
         Seed of the parameter draws (``default_rng(seed)``); the trigonometric parallax
         is drawn from ``default_rng(SeedSequence(seed).spawn(1)[0])``.
     draws : ndarray, optional
-        Posterior draws of ``sol.keys`` (``sample_combined``) to use instead of the
+        Posterior draws of ``sol.parameters`` (``sample_combined``) to use instead of the
         covariance draws; ``n_draws`` is then their number.
 
     Returns
@@ -392,7 +482,7 @@ def combined_blocks(sol, parallax=None, combine=False, n_draws=4000, seed=1, dra
     if draws is None:
         draws = parameter_draws(sol, n_draws, seed)
     n_draws = len(draws)
-    d = dict(zip(sol.keys, np.asarray(draws, float).T))
+    d = dict(zip(sol.parameters, np.asarray(draws, float).T))
     trig = None
     if parallax is not None:
         rng = np.random.default_rng(np.random.SeedSequence(seed).spawn(1)[0])
@@ -450,7 +540,7 @@ def _double_lined(d, trig, parallax, combine, mass):
 
 def _single_lined(sol, d, trig, parallax, mass):
     """Mass function, and with a parallax the masses through the measured component's orbit."""
-    key = sol.keys[-1]                       # 'K1' or 'K2', the measured component
+    key, = sol.data.amplitude_keys()          # 'K1' or 'K2', the measured component
     f_key = mass_function_msun(d[key], d["P"] * _DAYS_PER_YEAR, d["e"])
     blocks = {"mass_function": {**summarise(f_key, "solMass"), "component": int(key[1])},
               "warnings": []}
@@ -482,11 +572,13 @@ def _single_lined(sol, d, trig, parallax, mass):
 class JointPosterior:
     """Log-posterior of the joint parameters given positions and velocities.
 
-    Sampled coordinates (``names``): ln P [P in yr], T [Julian yr], e, ln a [a in arcsec],
+    Sampled coordinates (``names``), one for each fitted parameter (``sol.keys``; held
+    elements are not sampled): ln P [P in yr], T [Julian yr], e, ln a [a in arcsec],
     cos i, Omega [deg], omega [deg], gamma [km/s], K1 and/or K2 [km/s].
 
-    Priors: ``PRIORS``. ln L = -chi2/2 of ``joint_residuals``, with every sigma scaled
-    by sqrt(reduced chi2) of the joint fit when that exceeds 1, as for the fit's own errors.
+    Priors: ``PRIORS`` (``priors`` names the held elements instead). ln L = -chi2/2 of
+    ``joint_residuals``, with every sigma scaled by sqrt(reduced chi2) of the joint fit
+    when that exceeds 1, as for the fit's own errors.
     """
 
     E_MAX = 0.99
@@ -499,10 +591,15 @@ class JointPosterior:
               "omega": "uniform on the circle; reported in [0, 360) deg",
               "gamma": "uniform",
               "K": "uniform on [0, inf): positive, so the node is not mimicked by a sign change"}
+    #: Walker coordinate of a parameter sampled in a transformed scale.
+    COORDINATES = {"P": "ln_P", "a": "ln_a", "i": "cos_i"}
 
     def __init__(self, sol):
         self.keys = sol.keys
-        self.names = ("ln_P", "T", "e", "ln_a", "cos_i") + sol.keys[5:]
+        self.held = dict(sol.held)
+        self.names = tuple(self.COORDINATES.get(k, k) for k in sol.keys)
+        self.priors = {**self.PRIORS, **{k: f"held fixed at {fmt.number(v, 6)} (--fix): not "
+                                            "sampled" for k, v in _held_in_document(sol).items()}}
         scale = np.sqrt(max(sol.reduced_chi2, 1.0))
         d = sol.data
         self.data = dataclasses.replace(
@@ -514,32 +611,42 @@ class JointPosterior:
         self.t_ref = sol.values["T"]
 
     def values(self, q):
-        """Joint parameters in ``PARAMETER_UNITS`` from walker coordinates q, (n, ndim)."""
+        """Every joint parameter in ``PARAMETER_UNITS`` from walker coordinates q, (n, ndim);
+        held elements at their values."""
         q = np.atleast_2d(q)
-        v = dict(zip(self.keys, q.T))
-        v["P"], v["a"] = np.exp(q[:, 0]), np.exp(q[:, 3])
-        v["i"] = np.degrees(np.arccos(np.clip(q[:, 4], -1.0, 1.0)))
+        v = {k: np.full(len(q), x) for k, x in self.held.items()}
+        for k, x in zip(self.keys, q.T):
+            v[k] = (np.exp(x) if k in ("P", "a") else
+                    np.degrees(np.arccos(np.clip(x, -1.0, 1.0))) if k == "i" else x)
         return v
 
     def coordinates(self, values):
         """Walker coordinates of a dict of joint parameters."""
-        q = [values[k] for k in self.keys]
-        q[0], q[3] = np.log(q[0]), np.log(q[3])
-        q[4] = np.cos(np.radians(q[4]))
-        return np.array(q, float)
+        return np.array([np.log(values[k]) if k in ("P", "a") else
+                         np.cos(np.radians(values[k])) if k == "i" else values[k]
+                         for k in self.keys], float)
+
+    def _inside(self, q):
+        """Walkers inside the prior's support."""
+        limits = {"ln_P": self.ln_p_range, "ln_a": self.ln_a_range, "cos_i": (-1.0, 1.0),
+                  "e": (0.0, self.E_MAX), "K1": (0.0, np.inf), "K2": (0.0, np.inf)}
+        inside = np.ones(len(q), bool)
+        for name, x in zip(self.names, q.T):
+            if name in limits:
+                lo, hi = limits[name]
+                inside &= (x >= lo) & ((x < hi) if name == "e" else (x <= hi))
+        return inside
 
     def __call__(self, q):
         q = np.atleast_2d(q)
-        amps = q[:, 8:]
-        inside = ((q[:, 0] >= self.ln_p_range[0]) & (q[:, 0] <= self.ln_p_range[1])
-                  & (q[:, 2] >= 0.0) & (q[:, 2] < self.E_MAX) & (np.abs(q[:, 4]) <= 1.0)
-                  & (q[:, 3] >= self.ln_a_range[0]) & (q[:, 3] <= self.ln_a_range[1])
-                  & np.all(amps >= 0.0, axis=1))
+        inside = self._inside(q)
         out = np.full(len(q), -np.inf)
         if inside.any():
             v = {k: x[:, None] for k, x in self.values(q[inside]).items()}
             r = joint_residuals(v, self.data)
-            out[inside] = -q[inside, 0] - 0.5 * np.einsum("ij,ij->i", r, r)
+            out[inside] = -0.5 * np.einsum("ij,ij->i", r, r)
+            if "P" in self.keys and "T" in self.keys:  # T's density 1/P, in ln P; none if held
+                out[inside] -= q[inside, self.keys.index("P")]
         return out
 
 
@@ -550,13 +657,13 @@ def sample_combined(sol, walkers=40, steps=2000, seed=0, progress=False):
 
     Returns
     -------
-    draws : ndarray, shape (n, len(sol.keys))
+    draws : ndarray, shape (n, len(sol.parameters))
         Draws in ``PARAMETER_UNITS`` (T in the period centred on the best T; Omega and
         omega each within 180 deg of its best value, so a summary interval may cross
-        0 deg), ready for ``combined_blocks``.
+        0 deg; held elements constant at their values), ready for ``combined_blocks``.
     info : dict
-        Walkers, steps, burn, thin, acceptance, converged, seed, sigma scale, priors and
-        the sampler's warnings, for the result document.
+        Walkers, steps, burn, thin, acceptance, converged, seed, sigma scale, priors, the
+        held elements (document units) and the sampler's warnings, for the result document.
     """
     from .sampling import sample_posterior
 
@@ -564,23 +671,23 @@ def sample_combined(sol, walkers=40, steps=2000, seed=0, progress=False):
         raise InputError("the combined fit has no covariance: cannot size the walkers' start")
     post = JointPosterior(sol)
     best = post.coordinates(sol.values)
-    err = np.array([sol.errors[k] for k in sol.keys])
-    scales = err.copy()
-    scales[0], scales[3] = err[0] / sol.values["P"], err[3] / sol.values["a"]
-    scales[4] = np.sin(np.radians(sol.values["i"])) * np.radians(err[4])
+    scales = np.array([sol.errors[k] / sol.values[k] if k in ("P", "a") else
+                       np.sin(np.radians(sol.values["i"])) * np.radians(sol.errors[k])
+                       if k == "i" else sol.errors[k] for k in sol.keys])
     sample = sample_posterior(post, [best], scales, post.names, walkers=walkers, steps=steps,
                               seed=seed, progress=progress)
     v = post.values(sample.draws())
-    v["T"] = post.t_ref + np.mod(v["T"] - post.t_ref + 0.5 * v["P"], v["P"]) - 0.5 * v["P"]
+    if "T" not in sol.held:
+        v["T"] = post.t_ref + np.mod(v["T"] - post.t_ref + 0.5 * v["P"], v["P"]) - 0.5 * v["P"]
     v["Omega"], v["omega"] = centre_angles(v["Omega"], v["omega"], sol.values["Omega"],
                                            sol.values["omega"], 360.0)
+    v.update({k: np.full(len(v["T"]), x) for k, x in sol.held.items()})  # exactly as held
     info = {"walkers": int(walkers), "steps": int(steps), "burn": int(sample.burn),
             "thin": int(sample.thin), "n_draws": int(len(sample.draws())),
             "acceptance": float(sample.acceptance), "converged": bool(sample.converged),
-            "seed": int(seed), "sigma_scale": post.sigma_scale,
-            "priors": dict(JointPosterior.PRIORS),
-            "warnings": list(sample.warnings)}
-    return np.column_stack([v[k] for k in sol.keys]), info
+            "seed": int(seed), "sigma_scale": post.sigma_scale, "priors": dict(post.priors),
+            "fixed": _held_in_document(sol), "warnings": list(sample.warnings)}
+    return np.column_stack([v[k] for k in sol.parameters]), info
 
 
 # ------------------------------------------------------------------- result document
@@ -589,8 +696,13 @@ def _entry(value, error, unit):
             "unit": unit}
 
 
+def _held_in_document(sol):
+    """The held elements in document units, as given (T in the log's epoch scale)."""
+    return {k: float(v) for k, v in sol.visual.options.fixed.items()}
+
+
 def _thiele_innes(sol):
-    """A, B, F, G [arcsec] and errors propagated from (a, i, Omega, omega)."""
+    """A, B, F, G [arcsec] and errors propagated from (a, i, Omega, omega) (held: none)."""
     names = ("a", "i", "Omega", "omega")
     x = np.array([sol.values[k] for k in names])
 
@@ -600,9 +712,9 @@ def _thiele_innes(sol):
     best = ti(x)
     if sol.covariance is None:
         return {k: _entry(best[j], None, "arcsec") for j, k in enumerate("ABFG")}
-    idx = [sol.keys.index(k) for k in names]
+    idx = [sol.parameters.index(k) for k in names]
     jac = np.column_stack([(ti(x + h) - ti(x - h)) / 2e-6 for h in 1e-6 * np.eye(4)])
-    cov = jac @ sol.covariance[np.ix_(idx, idx)] @ jac.T
+    cov = jac @ sol.full_covariance()[np.ix_(idx, idx)] @ jac.T
     return {k: _entry(best[j], np.sqrt(max(cov[j, j], 0.0)), "arcsec")
             for j, k in enumerate("ABFG")}
 
@@ -625,7 +737,9 @@ def _rv_rows(sol):
 
 
 def _update_astrometry(doc, sol):
-    """Elements, Thiele-Innes constants, covariance and position residuals of the joint orbit."""
+    """Elements, Thiele-Innes constants, covariance and position residuals of the joint orbit.
+
+    Held elements keep "fixed": true, no error, and their values as given."""
     scale = sol.visual.data.epoch_scale
     for k in ELEMENT_KEYS:
         doc["elements"][k].update(value=float(sol.values[k]), error=sol.errors[k])
@@ -633,10 +747,13 @@ def _update_astrometry(doc, sol):
     t["value"] = float(from_julian_year(sol.values["T"], scale))
     if t["error"] is not None:
         t["error"] = float(interval_in_scale(t["error"], scale))
+    for k, value in _held_in_document(sol).items():
+        doc["elements"][k].update(value=value, error=None, fixed=True)
     doc["thiele_innes"] = _thiele_innes(sol)
     doc["covariance"] = None if sol.covariance is None else {
-        "parameters": list(ELEMENT_KEYS), "matrix": sol.covariance[:7, :7].tolist(),
-        "units": "P yr, T Julian yr, e, a arcsec, i Omega omega deg"}
+        "parameters": list(ELEMENT_KEYS), "matrix": sol.full_covariance()[:7, :7].tolist(),
+        "units": "P yr, T Julian yr, e, a arcsec, i Omega omega deg; held elements' rows "
+                 "and columns zero"}
     theta_pred, rho_pred = predict_theta_rho(_orbit_params(sol.values), sol.visual.data.epoch_yr)
     rows = [r for r in doc["residuals"] if r["status"] != "rejected"]
     for r, tp, rp in zip(rows, theta_pred, rho_pred):  # both in the data's row order
@@ -648,12 +765,17 @@ def _update_astrometry(doc, sol):
 
 
 def _posterior_summary(sol, draws):
-    """Median and 68 %, 95 % intervals of each joint parameter; T in the log's epoch scale."""
+    """Median and 68 %, 95 % intervals of each joint parameter (draws of ``sol.parameters``);
+    T in the log's epoch scale; a held element its value as given, with "fixed": true."""
     scale = sol.visual.data.epoch_scale
+    held = _held_in_document(sol)
     out = {}
-    for j, k in enumerate(sol.keys):
+    for j, k in enumerate(sol.parameters):
         values = draws[:, j] if k != "T" else from_julian_year(draws[:, j], scale)
         out[k] = summarise(values, PARAMETER_UNITS[k])
+        if k in held:
+            out[k].update(dict.fromkeys(("low95", "low", "value", "high", "high95"), held[k]),
+                          fixed=True)
         if k == "T":
             out[k]["scale"] = scale
     return out
@@ -669,7 +791,11 @@ def add_to_document(doc, sol, blocks, posterior=None):
     doc["combined"]["posterior"] (median, 68 % and 95 % intervals of every parameter, T in
     the log's epoch scale).
     """
+    from .solution import undetermined_warning
+
+    visual_verdict = undetermined_warning(doc["elements"])
     fitted = _update_astrometry(doc, sol)
+    joint_verdict = undetermined_warning(doc["elements"])
     s = doc["statistics"]
     vs = sol.velocities
     rv_res = (vs.rv_kms - rv_model(sol.values, vs.epoch_yr, vs.component))[vs.usable]
@@ -684,18 +810,22 @@ def add_to_document(doc, sol, blocks, posterior=None):
         if k in sol.keys:
             doc[k] = _entry(sol.values[k], sol.errors[k], "km/s")
     other = sol.other_node
+    chosen = (f"chosen by the held {_held_words(sol)} (--fix)" if sol.held_angles else
+              "fixed by the radial velocities")
     doc["node"] = {"Omega_deg": float(sol.values["Omega"]),
                    "omega_deg": float(sol.values["omega"]),
                    "other": {"Omega_deg": float(other["values"]["Omega"]),
                              "omega_deg": float(other["values"]["omega"]),
                              "chi2": float(other["chi2"])},
                    "delta_chi2": float(sol.node_delta_chi2),
-                   "decisive": bool(sol.node_delta_chi2 >= NODE_DECISIVE_DELTA_CHI2),
-                   "note": "fixed by the radial velocities; Omega runs over [0, 360) deg"}
+                   "decisive": bool(abs(sol.node_delta_chi2) >= NODE_DECISIVE_DELTA_CHI2),
+                   "held": list(sol.held_angles),
+                   "note": f"{chosen}; Omega runs over [0, 360) deg"}
     doc["combined"] = {
         "parameters": list(sol.keys),
         "units": {k: PARAMETER_UNITS[k] for k in sol.keys},
         "covariance": None if sol.covariance is None else sol.covariance.tolist(),
+        "fixed": _held_in_document(sol),
         "visual_chi2": float(sol.visual.chi2), "visual_dof": int(sol.visual.dof),
         "double_lined": sol.double_lined,
         "weighting": "each datum by its own sigma (no relative factor)"}
@@ -707,13 +837,29 @@ def add_to_document(doc, sol, blocks, posterior=None):
                          "n_used": int(vs.usable.sum()), "n_excluded": int((~vs.usable).sum()),
                          "n_rejected": len(vs.rejected), "epoch_scale": vs.epoch_scale}
     doc["rv_residuals"] = _rv_rows(sol)
-    doc["notes"] = [n for n in doc["notes"] if "[0, 180)" not in n] + sol.notes
-    doc["warnings"].extend(sol.warnings)
+    # The visual fit's words on the node ambiguity (and on a held angle moved to [0, 180)),
+    # on its error scaling and on undetermined elements are not about the joint elements.
+    doc["notes"] = [n for n in doc["notes"] if "[0, 180)" not in n
+                    and not n.startswith("Uncertainties were scaled")] + sol.notes
+    doc["warnings"] = [w for w in doc["warnings"] if "[0, 180)" not in w
+                       and w != visual_verdict] + [w for w in (joint_verdict,) if w] + sol.warnings
     for key in ("orbital_parallax", "parallax", "mass", "mass_function"):
         if key in blocks:
             doc[key] = blocks[key]
     doc["warnings"].extend(blocks.get("warnings", []))
     return doc
+
+
+def _node_line(node):
+    """The node choice in one line: kept (or held) and how the other one fits."""
+    delta = node["delta_chi2"]
+    kept = "held (--fix)" if node.get("held") else "kept"
+    line = (f"  node: Omega = {node['Omega_deg']:.2f} deg {kept}; Omega = "
+            f"{node['other']['Omega_deg']:.2f} deg fits {'worse' if delta >= 0 else 'BETTER'} "
+            f"by delta chi2 = {abs(delta):.1f}")
+    if not node["decisive"]:
+        return line + " (NOT decisive)"
+    return line + (": the velocities prefer it" if delta < 0 else "")
 
 
 def format_combined(doc):
@@ -725,9 +871,7 @@ def format_combined(doc):
             for k, label in
             (("gamma", "gamma (systemic velocity)"), ("K1", "K1 (primary)"),
              ("K2", "K2 (secondary)")) if k in doc]
-    out.append(f"  node: Omega = {node['Omega_deg']:.2f} deg kept; Omega = "
-               f"{node['other']['Omega_deg']:.2f} deg fits worse by delta chi2 = "
-               f"{node['delta_chi2']:.1f}" + ("" if node["decisive"] else " (NOT decisive)"))
+    out.append(_node_line(node))
     out.append(f"  chi2 {s['chi2']:.2f} for {s['dof']} degrees of freedom: astrometry "
                f"{s['chi2_astrometric']:.2f}, velocities {s['chi2_rv']:.2f} "
                f"(rms {s['rms_rv_kms']:.3f} km/s)")

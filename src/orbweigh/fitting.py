@@ -36,7 +36,7 @@ from .search import default_period_range, grid_search, isotropic_weights
 from .solution import OrbitSolution, build_solution
 from .technique_weights import MIN_POINTS, scale_factors, technique_statistics
 
-__all__ = ["FitOptions", "fit_orbit"]
+__all__ = ["FitOptions", "fit_orbit", "held_constraints"]
 
 #: A flip must lower the point's chi2 by at least this much (decisive: 5 sigma-equivalent).
 FLIP_MIN_GAIN = 25.0
@@ -230,7 +230,7 @@ def _fit(data, options):
                        f"epoch(s); an orbit needs at least {_MIN_POINTS} epochs spread in time "
                        "(measurements of one night constrain no orbit)")
     weight = np.sqrt(data.weight[usable])
-    constraints = _constraints(options, data)
+    constraints = held_constraints(options, data)
     points = _Points(data.epoch_yr[usable], data.theta_deg[usable], data.rho_arcsec[usable],
                      data.sigma_theta_deg[usable] / weight,
                      data.sigma_rho_arcsec[usable] / weight, constraints)
@@ -352,8 +352,12 @@ def _suspects_explained(points, found, suspects, options):
     return all(flipped[k] or chi2_pt[k] / red <= options.outlier_sigma ** 2 for k in suspects)
 
 
-def _constraints(options, data):
-    """The held elements in internal units (T as a Julian year) and the period bound."""
+def held_constraints(options, data):
+    """The held elements in internal units (T as a Julian year) and the period bound.
+
+    Also the combined fit's held elements (``combined.fit_combined``): one conversion of a
+    held T from the log's epoch scale.
+    """
     from .reductions import to_julian_year
 
     fixed = {k: float(v) for k, v in options.fixed.items()}

@@ -15,7 +15,7 @@ from .reductions import epoch_unit, from_julian_year, interval_in_scale
 from .result import SCHEMA
 
 __all__ = ["OrbitSolution", "build_solution", "campbell_covariance", "undetermined_elements",
-           "undetermined_advice", "require_determined"]
+           "undetermined_warning", "undetermined_advice", "require_determined"]
 
 _PHASE_BINS = 20
 
@@ -313,6 +313,16 @@ def undetermined_elements(elements):
             and elements[k]["error"] > 0.5 * abs(elements[k]["value"])]
 
 
+def undetermined_warning(elements):
+    """The warning for an elements block whose P or a is undetermined; None otherwise."""
+    bad = undetermined_elements(elements)
+    if not bad:
+        return None
+    return (f"{' and '.join(bad)} undetermined (error above half the value): the data "
+            "constrain only the motion along the observed arc. Do not use these elements, "
+            "nor any mass from them.")
+
+
 def undetermined_advice(doc, what):
     """None, or why ``what`` (e.g. 'a mass') cannot be given and which data would help."""
     bad = undetermined_elements(doc["elements"])
@@ -401,11 +411,9 @@ def _warnings(sol, data, rows, flipped, outlier, best):
     elif sol.reduced_chi2 < 0.3:
         out.append(f"Reduced chi2 = {sol.reduced_chi2:.2f}: the quoted sigmas look too large; "
                    "uncertainties may be overestimated.")
-    undetermined = undetermined_elements(sol.to_document()["elements"])
+    undetermined = undetermined_warning(sol.to_document()["elements"])
     if undetermined:
-        out.append(f"{' and '.join(undetermined)} undetermined (error above half the value): "
-                   "the data constrain only the motion along the observed arc. Do not use "
-                   "these elements, nor any mass from them.")
+        out.append(undetermined)
     bounds = sol.options.period_bounds
     if bounds is not None and "P" not in sol.options.fixed and any(
             abs(np.log(el.period_yr / b)) < 1e-3 for b in bounds):

@@ -35,9 +35,10 @@ def add_arguments(parser):
                         help="hold an element at VALUE (repeatable; NAME one of P, T, e, a, "
                              "i, Omega, omega; P in yr, T in the log's epoch scale, a in "
                              "arcsec, angles in deg, Omega and omega in [0, 360)), e.g. --fix "
-                             "e=0 for a circular orbit; a node held beyond 180 deg is reported "
-                             "as Omega - 180 with omega + 180 (the same apparent orbit), with "
-                             "a warning. Not with --rv")
+                             "e=0 for a circular orbit; without --rv a node held beyond 180 deg "
+                             "is reported as Omega - 180 with omega + 180 (the same apparent "
+                             "orbit), with a warning; with --rv a held Omega or omega picks the "
+                             "node, and a warning says when the velocities prefer the other")
     parser.add_argument("--technique-scales", action="store_true",
                         help="estimate one sigma factor per observing technique (each "
                              "technique's reduced chi2 brought to about 1, iterated with the "
@@ -152,10 +153,6 @@ def _read_velocities(args):
     if args.combine_parallax and (args.parallax is None or args.parallax[1] <= 0):
         raise InputError("--combine-parallax weighs the trigonometric parallax against the "
                          "orbital one: give --parallax VALUE ERROR with a positive error")
-    if args.rv and args.fix:
-        raise InputError("--fix holds elements of the visual fit only: the combined fit of "
-                         "--rv frees every element again, so the held values would be lost. "
-                         "Drop --fix, or fit without --rv")
     if not args.rv:
         return None
     columns = (parse_column_mapping(args.rv_columns, option="--rv-columns")

@@ -137,6 +137,20 @@ _VELOCITY_NAMES = (("gamma", "Systemic velocity", "\u03b3"),
                    ("K2", "Velocity amplitude, secondary", "K\u2082"))
 
 
+def _node_sentence(node):
+    """How the node was chosen and how the other choice fits (worse, or better when a held
+    angle kept the choice the velocities reject)."""
+    delta = node["delta_chi2"]
+    chosen = ("A held angle (--fix) fixes the node" if node.get("held") else
+              "The velocities fix the node")
+    return (f"{chosen}: \u03a9 = {fmt.fixed(node['Omega_deg'], 2)} deg; the other node "
+            f"(\u03a9 = {fmt.fixed(node['other']['Omega_deg'], 2)} deg) fits "
+            f"{'worse' if delta >= 0 else 'better'} by \u0394\u03c7\u00b2 = "
+            f"{fmt.fixed(abs(delta), 1)}"
+            + (", which is NOT decisive." if not node.get("decisive") else
+               ": the velocities prefer it." if delta < 0 else "."))
+
+
 def _combined_section(doc, figures):
     if "combined" not in doc:
         return ""
@@ -157,10 +171,7 @@ def _combined_section(doc, figures):
                     f"{fmt.fixed(s['chi2_rv'], 2)} (rms of the velocity residuals "
                     f"{fmt.fixed(s['rms_rv_kms'], 3)} km/s).")
     if node:
-        text.append(f"The velocities fix the node: \u03a9 = {fmt.fixed(node['Omega_deg'], 2)} "
-                    f"deg; the other node (\u03a9 = {fmt.fixed(node['other']['Omega_deg'], 2)} "
-                    f"deg) fits worse by \u0394\u03c7\u00b2 = {fmt.fixed(node['delta_chi2'], 1)}"
-                    + ("." if node.get("decisive") else ", which is NOT decisive."))
+        text.append(_node_sentence(node))
     parts = ["<h2 id='combined'>Combined solution with radial velocities</h2>",
              _table(("quantity", "symbol", "value", f"uncertainty (1{_SIGMA})", "unit"), rows,
                     numeric=(2, 3), table_id="velocity-table"),
