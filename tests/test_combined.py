@@ -379,6 +379,10 @@ def test_held_eccentricity_of_a_circular_pair(circular):
     assert not _within(sol, {"P": 50.0, "a": 0.5, "i": 118.0, "Omega": 300.0, "gamma": GAMMA,
                              "K1": K1_CIRCULAR, "K2": K2_CIRCULAR})
     assert sol.node_delta_chi2 > 100.0
+    # T and omega slide together along the circle: T is brought back by whole periods to
+    # the passage nearest the mean epoch, the same orbit (chi2 recomputed there)
+    assert abs(sol.values["T"] - np.mean(sol.data.t_ast)) <= 0.5 * sol.values["P"]
+    assert sol.chi2_astrometric + sol.chi2_rv == pytest.approx(sol.chi2, rel=1e-9)
     blocks = combined_blocks(sol, seed=3)
     assert blocks["orbital_parallax"]["low95"] < PLX_MAS < blocks["orbital_parallax"]["high95"]
     draws = parameter_draws(sol, 50, seed=3)

@@ -304,6 +304,22 @@ def _node_fits(solution, data, keys, held):
             _least_squares(_start(el, data, not shift, turned), data, keys, turned))
 
 
+def _periastron_near(values, covar, keys, t_ref):
+    """T moved by whole periods (the same orbit) to the passage nearest t_ref, with the
+    covariance carried along (T - k P); a held T stays.
+
+    With e held at 0, T and omega are one parameter and the fit may drift periods away.
+    """
+    k = float(np.round((values["T"] - t_ref) / values["P"]))
+    if "T" not in keys or k == 0.0:
+        return values, covar
+    if covar is not None and "P" in keys:
+        jac = np.eye(len(keys))
+        jac[keys.index("T"), keys.index("P")] = -k
+        covar = jac @ covar @ jac.T
+    return {**values, "T": values["T"] - k * values["P"]}, covar
+
+
 def fit_combined(solution, velocities):
     """Joint least-squares fit of a visual solution's points and a velocity log.
 
@@ -333,6 +349,9 @@ def fit_combined(solution, velocities):
     held = held_constraints(solution.options, solution.data).fixed
     keys = tuple(k for k in ELEMENT_KEYS if k not in held) + ("gamma",) + data.amplitude_keys()
     (values, chi2, covar), (other, other_chi2, _) = _node_fits(solution, data, keys, held)
+    t_ref = float(np.mean(data.t_ast))          # as the visual fit's start (least P-T correlation)
+    values, covar = _periastron_near(values, covar, keys, t_ref)
+    other, _ = _periastron_near(other, None, keys, t_ref)
     dof = max(2 * data.t_ast.size + data.t_rv.size - len(keys), 1)
     reduced = chi2 / dof
     cov = None if covar is None else covar * max(reduced, 1.0)
