@@ -25,7 +25,6 @@ finite and >= 0 (or absent). The other blocks a command reads (``mass``, ``paral
 """
 from __future__ import annotations
 
-import functools
 import json
 from pathlib import Path
 
@@ -429,15 +428,15 @@ def read_draws(path, with_parallax=False):
         columns, holds non-numeric or non-finite values, or has no rows.
     """
     path = Path(path)
-    try:
-        stat = path.stat()
-        key = (str(path.resolve()), stat.st_size, stat.st_mtime_ns)
-    except OSError:
-        key = None  # let the reader give its clear message
+    key = _content_key(path)
     if key is None:
-        draws, parallax, meta = _parse_draws(path)
+        draws, parallax, meta = _parse_draws(path)  # let the reader give its clear message
     else:
-        draws, parallax, meta = _parse_draws_cached(key, path)
+        if key not in _PARSED_DRAWS:
+            _PARSED_DRAWS[key] = _parse_draws(path)
+            while len(_PARSED_DRAWS) > 2:
+                _PARSED_DRAWS.pop(next(iter(_PARSED_DRAWS)))
+        draws, parallax, meta = _PARSED_DRAWS[key]
     if not with_parallax:
         return draws.copy(), dict(meta)
     if parallax is None:
@@ -447,9 +446,31 @@ def read_draws(path, with_parallax=False):
     return np.column_stack([draws, parallax]), dict(meta)
 
 
-@functools.lru_cache(maxsize=2)
-def _parse_draws_cached(key, path):
-    return _parse_draws(path)
+#: Draws parsed, by content key (path, size, modification time): two at most.
+_PARSED_DRAWS = {}
+
+
+def _content_key(path):
+    try:
+        stat = path.stat()
+    except OSError:
+        return None
+    return str(path.resolve()), stat.st_size, stat.st_mtime_ns
+
+
+def remember_draws(path, draws, parallax, meta):
+    """Record draws just written to ``path`` as what reading it gives.
+
+    The command that wrote the file (``fit --sample``, then its masses) need not parse it
+    back: the writer (``ecsv.ecsv_text``) round-trips every float and metadata value
+    exactly (tests/test_ecsv.py), so the content is known. Any later change of the file
+    changes its key and it is parsed again.
+    """
+    key = _content_key(Path(path))
+    if key is not None:
+        _PARSED_DRAWS[key] = (np.array(draws, float),
+                              None if parallax is None else np.array(parallax, float),
+                              dict(meta))
 
 
 def _parse_draws(path):

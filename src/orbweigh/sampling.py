@@ -542,11 +542,11 @@ def write_draws(path, result, inputs=()):
     ``result.read_draws`` reads them), and parallax [mas] when it was sampled; the
     metadata hold the seed, priors, walkers, steps, burn-in, thinning, acceptance,
     autocorrelation times, weights and the convergence flag. Written as a whole
-    (``files.write_table``); onto one of ``inputs`` is refused.
+    (``files.write_atomic``); onto one of ``inputs`` is refused.
     """
-    from astropy.table import Table
-
-    from .files import write_table
+    from .ecsv import ecsv_text
+    from .files import write_atomic
+    from .result import remember_draws
     units = {"P": "yr", "T": "yr", "e": None, "a": "arcsec", "i": "deg", "Omega": "deg",
              "omega": "deg"}
     columns = [result.elements[:, k] for k in range(7)]
@@ -555,10 +555,10 @@ def write_draws(path, result, inputs=()):
         columns.append(result.parallax)
         names.append("parallax")
         col_units.append("mas")
-    table = Table(columns, names=names, units=col_units,
-                  meta={"description": "posterior draws of the Campbell elements; T is a "
-                                       "decimal Julian year", **_sampling_meta(result)})
-    write_table(path, table, inputs=inputs)
+    meta = {"description": "posterior draws of the Campbell elements; T is a decimal Julian "
+                           "year", **_sampling_meta(result)}
+    write_atomic(path, ecsv_text(columns, names, col_units, meta), inputs=inputs)
+    remember_draws(path, result.elements, result.parallax, meta)
     return len(result.elements)
 
 
