@@ -78,26 +78,3 @@ def test_internal_variable_round_trip_and_derivative(lower, upper):
     h = 1e-6       # central difference of the external value
     numeric = (transform.to_external(u + h) - transform.to_external(u - h)) / (2 * h)
     np.testing.assert_allclose(transform.gradient(u), numeric, rtol=1e-6)
-
-
-def test_a_sampled_fit_from_the_command_line_loads_no_heavy_module(tmp_path):
-    # scipy.stats (0.7-0.9 s to import), scipy.optimize (0.4 s), astropy.coordinates
-    # (0.3 s) and astropy.table (0.2 s with its YAML) would be most of a sampled fit from
-    # the command line: the whole command on the sample pair, precession and the draws
-    # file included, loads none of them. Clean interpreter.
-    import subprocess
-    import sys
-    from pathlib import Path
-
-    log = Path(__file__).resolve().parent.parent / "sample_measurements" / "measurements.csv"
-    code = ("import sys\n"
-            "from orbweigh.cli.main import main\n"
-            f"status = main(['fit', {str(log)!r}, '--target-ra', '14h27m13.4s', '--target-dec',"
-            " '+38d41m06s', '--parallax', '40.68', '0.40', '--sample', '--steps', '300',"
-            f" '--quiet', '--out', {str(tmp_path / 'out')!r}])\n"
-            "heavy = ('scipy.stats', 'scipy.optimize', 'astropy.coordinates',"
-            " 'astropy.table')\n"
-            "print(status, [m for m in heavy if m in sys.modules])\n")
-    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
-                         check=True).stdout
-    assert out.strip().splitlines()[-1] == "0 []"
