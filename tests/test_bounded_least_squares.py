@@ -78,3 +78,37 @@ def test_internal_variable_round_trip_and_derivative(lower, upper):
     h = 1e-6       # central difference of the external value
     numeric = (transform.to_external(u + h) - transform.to_external(u - h)) / (2 * h)
     np.testing.assert_allclose(transform.gradient(u), numeric, rtol=1e-6)
+
+
+def test_nonlinear_fit_matches_minpack():
+    # A damped oscillation started far from its solution: scipy's MINPACK
+    # Levenberg-Marquardt (least_squares method='lm') is the reference solution, with and
+    # without an analytic Jacobian, and inv(J^T J) there the reference covariance.
+    t = np.linspace(0.0, 10.0, 80)
+    truth = np.array([2.0, 0.3, 1.7, 0.4])
+    rng = np.random.default_rng(5)
+
+    def model(p):
+        return p[0] * np.exp(-p[1] * t) * np.cos(p[2] * t + p[3])
+
+    data = model(truth) + 0.02 * rng.standard_normal(t.size)
+
+    def resid(p):
+        return (model(p) - data) / 0.02
+
+    def jac(p):
+        decay, phase = np.exp(-p[1] * t), p[2] * t + p[3]
+        return np.column_stack([decay * np.cos(phase), -t * p[0] * decay * np.cos(phase),
+                                -t * p[0] * decay * np.sin(phase),
+                                -p[0] * decay * np.sin(phase)]) / 0.02
+
+    start = [1.0, 0.1, 1.6, 0.0]
+    ref = least_squares(resid, start, jac=jac, method="lm", xtol=1e-15, ftol=1e-15)
+    J = jac(ref.x)
+    for jacobian in (jac, None):
+        out = fit_bounded(resid, start, [-np.inf] * 4, [np.inf] * 4, [True] * 4, jacobian)
+        assert out.success
+        np.testing.assert_allclose(out.x, ref.x, rtol=1e-6)
+        expected = np.linalg.inv(J.T @ J)   # forward differences: 1e-4 of the largest term
+        np.testing.assert_allclose(out.covariance, expected, rtol=1e-4,
+                                   atol=1e-4 * np.abs(expected).max())
