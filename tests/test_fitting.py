@@ -11,6 +11,7 @@ import math
 import numpy as np
 
 from orbweigh.fitting import FitOptions, fit_orbit
+from orbweigh.solution import undetermined_advice
 from synthetic import make_log, rotation
 
 #: Recovery bound in reported sigmas (4: a 6e-5 two-sided Gaussian tail per quantity).
@@ -250,7 +251,26 @@ def test_short_arc_is_flagged_undetermined():
     # 3 years of a 300-year orbit: the arc fixes the motion, not P or a.
     truth = dict(WELL_COVERED, P=300.0, T=2100.0, a=2.0)
     sol = fit(truth, np.linspace(2010.0, 2013.0, 12), seed=4)
-    assert any("undetermined" in w for w in sol.warnings)
+    # P and a either come with errors above half their values or with none at all
+    # (degenerate covariance: a change at the last digit decides which); either way no
+    # mass, dynamical parallax or plan may follow from them.
+    assert any("undetermined" in w or "covariance could not be estimated" in w
+               for w in sol.warnings)
+    assert undetermined_advice(sol.to_document(), "mass") is not None
+
+
+def test_a_fit_without_any_uncertainty_gives_no_mass():
+    # The same rule for a degenerate fit whose covariance is missing: no error to judge
+    # by, so no mass; published elements without errors are not a fit and still give one.
+    doc = fit(WELL_COVERED, over_periods(WELL_COVERED, 24, 1.5), seed=1).to_document()
+    assert undetermined_advice(doc, "mass") is None
+    doc["covariance"] = None
+    for entry in doc["elements"].values():
+        entry["error"] = None
+    advice = undetermined_advice(doc, "mass")
+    assert advice is not None and "covariance could not be estimated" in advice
+    del doc["statistics"]
+    assert undetermined_advice(doc, "mass") is None
 
 
 def test_flips_never_exceed_a_quarter_of_the_points():

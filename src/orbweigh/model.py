@@ -6,11 +6,13 @@ degenerate; Campbell elements and their covariance follow by exact transformatio
 """
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 
 from .elements import wrap_degrees
-from .ephemeris import orbit_xy, xy_to_theta_rho
-from .kepler import eccentric_anomaly
+from .ephemeris import xy_to_theta_rho
+from .kepler import eccentric_anomaly, mean_anomaly
 
 __all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_jacobian",
            "wrap_degrees"]
@@ -19,10 +21,44 @@ __all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_ja
 FIT_KEYS = ("P", "T", "e", "A", "B", "F", "G")
 
 
+class _LastAnomaly(threading.local):
+    """The eccentric anomaly of the last (t, P, T, e) solved in this thread.
+
+    Levenberg-Marquardt evaluates the Jacobian at the point whose residuals it has just
+    evaluated: the same Kepler solution, a third of the refinement's Kepler solves. The
+    epoch array is held (not only its id), so another cannot take its address; P, T, e
+    must match exactly. One per thread (a Dask worker may fit in several threads).
+    """
+
+    def __init__(self):
+        self.t, self.key, self.E = None, None, None
+
+    def solve(self, t, P, T, e):
+        key = (float(P), float(T), float(e))
+        if self.t is not t or self.key != key:
+            self.E = eccentric_anomaly(mean_anomaly(t, P, T), e)
+            self.t, self.key = t, key
+        return self.E
+
+
+_LAST_ANOMALY = _LastAnomaly()
+
+
+def _orbit_basis(t, P, T, e):
+    """sin E, cos E, X = cos E - e, Y = sqrt(1 - e^2) sin E at epochs t."""
+    E = _LAST_ANOMALY.solve(t, P, T, e)
+    sin_e, cos_e = np.sin(E), np.cos(E)
+    return sin_e, cos_e, cos_e - e, np.sqrt(1.0 - e**2) * sin_e
+
+
 def predict_theta_rho(params, t):
     """Predicted theta [deg] and rho [arcsec] at epochs t for a parameter vector."""
     P, T, e, A, B, F, G = params
-    return xy_to_theta_rho(*orbit_xy(t, P, T, e, A, B, F, G))
+    if np.ndim(P) or np.ndim(T) or np.ndim(e):     # arrays of parameters: no memory
+        from .ephemeris import orbit_xy
+        return xy_to_theta_rho(*orbit_xy(t, P, T, e, A, B, F, G))
+    _, _, X, Y = _orbit_basis(t, P, T, e)
+    return xy_to_theta_rho(A * X + F * Y, B * X + G * Y)
 
 
 def normalised_residuals(params, t, theta, rho, sigma_theta, sigma_rho):
@@ -47,10 +83,8 @@ def residual_jacobian(params, t, sigma_theta, sigma_rho):
     """
     P, T, e, A, B, F, G = params
     M = 2.0 * np.pi * (t - T) / P
-    E = eccentric_anomaly(M, e)
-    sin_e, cos_e = np.sin(E), np.cos(E)
+    sin_e, cos_e, X, Y = _orbit_basis(t, P, T, e)
     s = np.sqrt(1.0 - e**2)
-    X, Y = cos_e - e, s * sin_e
     D = 1.0 - e * cos_e
     dE = {"P": -M / (P * D), "T": -2.0 * np.pi / (P * D), "e": sin_e / D}
     dX = {k: -sin_e * v for k, v in dE.items()}

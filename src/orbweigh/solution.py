@@ -326,20 +326,30 @@ def undetermined_warning(elements):
 def undetermined_advice(doc, what):
     """None, or why ``what`` (e.g. 'a mass') cannot be given and which data would help."""
     bad = undetermined_elements(doc["elements"])
-    if not bad:
+    if not bad and not _degenerate_fit(doc):
         return None
     el, stats = doc["elements"], doc.get("statistics", {})
     span = ""
     if "epoch_first" in stats and "epoch_last" in stats:
         span = (f" The fitted measurements span {stats['epoch_first']:.1f}-"
                 f"{stats['epoch_last']:.1f}, a small part of the orbit.")
-    values = ", ".join(f"{k} = {el[k]['value']:.3g} +- {el[k]['error']:.2g} {el[k]['unit']}"
-                       for k in bad)
-    return (f"{doc.get('source', 'this orbit')}: no {what}: {' and '.join(bad)} undetermined "
-            f"({values}; error above half the value), and the mass goes as a^3/P^2.{span} "
-            "What would fix it: measurements over a longer arc (the arc's curvature fixes P "
+    if bad:
+        values = ", ".join(f"{k} = {el[k]['value']:.3g} +- {el[k]['error']:.2g} "
+                           f"{el[k]['unit']}" for k in bad)
+        why = f"{' and '.join(bad)} undetermined ({values}; error above half the value)"
+    else:
+        why = ("the fit is degenerate (its covariance could not be estimated), so P and a "
+               "have no uncertainty")
+    return (f"{doc.get('source', 'this orbit')}: no {what}: {why}, and the mass goes as "
+            f"a^3/P^2.{span} What would fix it: measurements over a longer arc (the arc's curvature fixes P "
             "and a), or a period or other element known independently, e.g. from "
             "spectroscopy, held with --fix.")
+
+
+def _degenerate_fit(doc):
+    """A fitted orbit (not published elements) left without any uncertainty."""
+    return ("chi2" in (doc.get("statistics") or {}) and doc.get("covariance") is None
+            and not (doc.get("posterior") or {}).get("draws_file"))
 
 
 def require_determined(doc, what):
