@@ -1,6 +1,7 @@
 """Tests of the combined visual-spectroscopic solution (positions + radial velocities)."""
 import dataclasses
 import json
+import math
 from pathlib import Path
 
 import numpy as np
@@ -367,26 +368,52 @@ def _within(sol, truths, n_sigma=4.0):
             if _angle_off(sol.values[k], truth) > n_sigma * sol.errors[k]]
 
 
+#: The circular truth's passage through the ascending node: only omega + 2 pi (t - T) / P
+#: counts, so with omega = 40 deg the node is passed 40/360 of a period before T.
+T_NODE_CIRCULAR = CIRCULAR.periastron_yr - CIRCULAR.omega_deg / 360.0 * CIRCULAR.period_yr
+
+
+def _off_in_phase(value, truth, period):
+    return abs(math.remainder(value - truth, period))
+
+
 def test_held_eccentricity_of_a_circular_pair(circular):
-    # e held at 0: exactly 0, no error, not fitted, one degree of freedom more; the
-    # other elements recovered within 4 sigma (common practice, no source). T and omega
-    # are one parameter on a circle (only omega + 2 pi (t - T) / P counts): not compared.
+    # e held at 0: exactly 0, no error, not fitted; omega held at 0 by convention and T
+    # the epoch of passage through the ascending node (common practice, no source); two
+    # degrees of freedom more than the free fit. The velocities pick Omega = 300 where
+    # the visual fit reports 120: T half a period from the visual one, omega still 0.
     solution, vs, _ = circular
     sol = fit_combined(solution, vs)
     assert sol.values["e"] == 0.0 and sol.errors["e"] is None and "e" not in sol.keys
-    assert sol.held == {"e": 0.0} and len(sol.keys) == 9
-    assert sol.dof == 2 * 30 + 2 * 20 - 9
+    assert sol.values["omega"] == 0.0 and sol.errors["omega"] is None
+    assert sol.held == {"e": 0.0, "omega": 0.0} and len(sol.keys) == 8
+    assert sol.held_angles == ()            # the convention's omega does not pick the node
+    assert sol.dof == 2 * 30 + 2 * 20 - 8
     assert not _within(sol, {"P": 50.0, "a": 0.5, "i": 118.0, "Omega": 300.0, "gamma": GAMMA,
                              "K1": K1_CIRCULAR, "K2": K2_CIRCULAR})
+    assert _off_in_phase(sol.values["T"], T_NODE_CIRCULAR, sol.values["P"]) < \
+        4 * sol.errors["T"]
+    assert sol.errors["T"] < 0.01 * sol.values["P"]
     assert sol.node_delta_chi2 > 100.0
-    # T and omega slide together along the circle: T is brought back by whole periods to
-    # the passage nearest the mean epoch, the same orbit (chi2 recomputed there)
+    assert sol.other_node["values"]["omega"] == 0.0
     assert abs(sol.values["T"] - np.mean(sol.data.t_ast)) <= 0.5 * sol.values["P"]
     assert sol.chi2_astrometric + sol.chi2_rv == pytest.approx(sol.chi2, rel=1e-9)
+    # errors as those of the free combined fit of the same logs (within 3x)
+    free = fit_combined(fit_orbit(solution.data, FitOptions(period_range=(30.0, 80.0))), vs)
+    for key in ("P", "a", "i", "Omega", "K1", "K2"):
+        ratio = sol.errors[key] / free.errors[key]
+        assert 1 / 3 < ratio < 3, (key, ratio)
     blocks = combined_blocks(sol, seed=3)
     assert blocks["orbital_parallax"]["low95"] < PLX_MAS < blocks["orbital_parallax"]["high95"]
     draws = parameter_draws(sol, 50, seed=3)
     assert np.all(draws[:, sol.parameters.index("e")] == 0.0)
+    assert np.all(draws[:, sol.parameters.index("omega")] == 0.0)
+    doc = add_to_document(solution.to_document(), sol, blocks)
+    assert doc["elements"]["omega"] == {"value": 0.0, "error": None, "unit": "deg",
+                                        "fixed": True}
+    assert doc["fit"]["fixed"] == {"e": 0.0}     # as given; the convention in the notes
+    assert any(n.startswith("Circular orbit (e held at 0)") for n in doc["notes"])
+    assert not any("undetermined" in w for w in doc["warnings"])
 
 
 def test_held_period(synthetic):
@@ -456,9 +483,11 @@ def test_joint_posterior_with_a_held_element(circular):
     solution, vs, _ = circular
     sol = fit_combined(solution, vs)
     draws, info = sample_combined(sol, walkers=20, steps=150, seed=9)
-    assert draws.shape[1] == len(sol.parameters) == len(sol.keys) + 1
+    assert draws.shape[1] == len(sol.parameters) == len(sol.keys) + 2     # e and omega held
     assert np.all(draws[:, sol.parameters.index("e")] == 0.0)
-    assert info["fixed"] == {"e": 0.0} and "held fixed at 0" in info["priors"]["e"]
+    assert info["fixed"] == {"e": 0.0, "omega": 0.0} and "held fixed at 0" in info["priors"]["e"]
+    assert "by convention (circular orbit" in info["priors"]["omega"]
+    assert np.all(draws[:, sol.parameters.index("omega")] == 0.0)
     for key in ("P", "a", "K1"):    # free ones do move
         assert np.std(draws[:, sol.parameters.index(key)]) > 0.2 * sol.errors[key]
     doc = add_to_document(solution.to_document(), sol,
@@ -466,6 +495,13 @@ def test_joint_posterior_with_a_held_element(circular):
     summary = doc["combined"]["posterior"]["parameters"]
     assert summary["e"]["fixed"] is True and summary["e"]["value"] == 0.0
     assert summary["e"]["low95"] == summary["e"]["high95"] == 0.0
+    assert summary["omega"]["fixed"] is True and summary["omega"]["high95"] == 0.0
+    # T is well defined: its 95 % interval holds the truth's node passage and spans a
+    # small part of the period (not spread over it)
+    t = summary["T"]
+    assert t["high95"] - t["low95"] < 0.05 * sol.values["P"]
+    assert _off_in_phase(t["value"], T_NODE_CIRCULAR, sol.values["P"]) < \
+        0.5 * (t["high95"] - t["low95"])
     assert doc["mass"]["draws_source"] == "posterior"
 
 
@@ -480,10 +516,13 @@ def test_cli_fit_with_velocities_and_held_elements(circular, capsys, tmp_path):
     for key, value in (("e", 0.0), ("Omega", 300.0)):
         assert doc["elements"][key] == {"value": value, "error": None, "unit": doc["elements"][
             key]["unit"], "fixed": True}
-    assert doc["statistics"]["dof"] == 2 * 30 + 2 * 20 - 8
-    assert doc["combined"]["parameters"] == ["P", "T", "a", "i", "omega", "gamma", "K1", "K2"]
-    assert doc["combined"]["fixed"] == {"e": 0.0, "Omega": 300.0}
-    assert len(doc["combined"]["covariance"]) == 8
+    # e = 0 held and omega = 0 by convention (circular orbit)
+    assert doc["elements"]["omega"]["fixed"] is True and doc["elements"]["omega"]["value"] == 0
+    assert doc["statistics"]["dof"] == 2 * 30 + 2 * 20 - 7
+    assert doc["combined"]["parameters"] == ["P", "T", "a", "i", "gamma", "K1", "K2"]
+    assert doc["combined"]["fixed"] == {"e": 0.0, "Omega": 300.0, "omega": 0.0}
+    assert doc["fit"]["fixed"] == {"e": 0.0, "Omega": 300.0}
+    assert len(doc["combined"]["covariance"]) == 7
     assert [row[2] for row in doc["covariance"]["matrix"]] == [0.0] * 7   # e's column
     assert "e                         0 (fixed)" in out
     assert "Omega = 300.00 deg held (--fix)" in out

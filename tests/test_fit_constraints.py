@@ -21,19 +21,59 @@ def _log(truth, n=30, cycles=1.3, seed=7, sigma_theta=0.5, sigma_rho=0.005):
     return make_log(truth, epochs, sigma_theta, sigma_rho, seed=seed)
 
 
-def test_fixed_eccentricity_of_a_circular_orbit():
-    # A circular truth fitted with e held at 0: e is exactly 0, marked fixed with no
-    # error, and the degrees of freedom are 2n - 6 (six free parameters).
-    truth = dict(TRUTH, e=0.0, omega=0.0)
-    sol = fit_orbit(_log(truth), FitOptions(fixed={"e": 0.0}))
-    assert sol.elements.e == 0.0
-    assert sol.errors["e"] is None and sol.dof == 2 * 30 - 6
+# A circular truth: omega = 0, so T = 2015.0 is a passage through the node Omega.
+CIRCULAR = dict(TRUTH, e=0.0, omega=0.0)
+
+
+def _off(value, truth, period):
+    """|value - truth| with the difference wrapped into a half period either way."""
+    return abs(math.remainder(value - truth, period))
+
+
+@pytest.mark.parametrize("node", [112.0, 292.0])
+def test_circular_orbit_with_e_held_has_omega_0_and_t_at_the_node(node):
+    # e held at 0: omega is held at 0 by convention and T is the epoch of passage through
+    # the node Omega (common practice, no source). With the node on the far side (292
+    # deg) the orbit is reported with Omega = 112 and T half a period later (same orbit).
+    data = _log(dict(CIRCULAR, Omega=node))
+    free = fit_orbit(data)
+    sol = fit_orbit(data, FitOptions(fixed={"e": 0.0}))
+    el = sol.elements
+    assert el.e == 0.0 and el.omega_deg == 0.0
+    assert sol.errors["e"] is None and sol.errors["omega"] is None
+    assert sol.dof == 2 * 30 - 5                  # P, T, a, i, Omega free
     doc = sol.to_document()
-    assert doc["elements"]["e"]["fixed"] is True and doc["elements"]["e"]["error"] is None
-    assert doc["fit"] == {"fixed": {"e": 0.0}, "period_bounds": None}
-    # the other elements recovered within 4 sigma (common practice, no source)
-    assert abs(sol.elements.period_yr - 24.0) < 4 * sol.errors["P"]
-    assert abs(sol.elements.a_arcsec - 0.85) < 4 * sol.errors["a"]
+    assert doc["elements"]["omega"] == {"value": 0.0, "error": None, "unit": "deg",
+                                        "fixed": True}
+    assert doc["fit"] == {"fixed": {"e": 0.0}, "period_bounds": None}   # as given
+    assert ("Circular orbit (e held at 0): omega is 0 by convention and T is the epoch of "
+            "passage through the node Omega.") in sol.notes
+    assert not any("undetermined" in w or "poorly defined" in w for w in sol.warnings)
+    assert any("omega = 0 by convention" in w for w in sol.warnings)
+    # errors as those of the free fit of the same log (within 3x) and far below the values
+    for key in ("P", "a", "i"):
+        ratio = sol.errors[key] / free.errors[key]
+        assert 1 / 3 < ratio < 3, (key, ratio)
+    assert sol.errors["P"] < 1e-3 * 24.0 and sol.errors["a"] < 1e-2 * 0.85
+    assert sol.errors["i"] < 1.0 and sol.errors["T"] < 1e-2 * 24.0
+    # the truth within 4 sigma (common practice, no source); T modulo P
+    t_node = 2015.0 + (12.0 if node >= 180.0 else 0.0)
+    assert abs(el.period_yr - 24.0) < 4 * sol.errors["P"]
+    assert _off(el.periastron_yr, t_node, el.period_yr) < 4 * sol.errors["T"]
+    assert abs(el.a_arcsec - 0.85) < 4 * sol.errors["a"]
+    assert abs(el.i_deg - 48.0) < 4 * sol.errors["i"]
+    assert abs(el.node_deg - 112.0) < 4 * sol.errors["Omega"]
+    # and T nearest the middle of the data, as the free fit's
+    assert abs(el.periastron_yr - np.mean(data.epoch_yr)) <= 0.5 * el.period_yr
+
+
+def test_circular_orbit_with_t_held_keeps_omega_free():
+    # e and T held: omega then places the node passage, so no convention applies; the
+    # truth's T = 2015 is a node passage, so omega comes out near 0 (within 4 sigma).
+    sol = fit_orbit(_log(CIRCULAR), FitOptions(fixed={"e": 0.0, "T": 2015.0}))
+    assert sol.dof == 2 * 30 - 5 and sol.errors["omega"] is not None   # P, a, i, Omega, omega
+    assert abs(math.remainder(sol.elements.omega_deg, 360.0)) < 4 * sol.errors["omega"]
+    assert not any("by convention" in n for n in sol.notes + sol.warnings)
 
 
 def test_fixed_period_is_held_and_the_rest_recovered():

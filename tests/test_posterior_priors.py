@@ -118,6 +118,42 @@ def test_held_elements_stay_exactly_fixed():
     assert marginal.priors["P"].startswith("held fixed at 24")
 
 
+# A circular truth: omega = 0, so T = 2015 is a passage through the node Omega.
+CIRCULAR = dict(TRUTH, e=0.0, omega=0.0)
+
+
+@pytest.mark.parametrize("node, seed", [(112.0, 21), (112.0, 22), (179.9, 23)])
+def test_circular_orbit_posterior_has_omega_0_and_a_well_defined_t(node, seed):
+    # e held at 0: omega is held at 0 by convention (common practice, no source), so the
+    # direct sampler runs over (P, T, a, i, Omega) and T is the epoch of passage through
+    # the node, well defined. Near the node seam (179.9 deg) draws on either side of
+    # 180 deg are the same orbit with T half a period apart: the summary must not split.
+    truth = dict(CIRCULAR, Omega=node)
+    doc = _doc(truth=truth, seed=seed, fixed={"e": 0.0})
+    result = sample_document(doc, seed=seed)
+    assert result.method == "direct"
+    assert result.sample.names == ("ln_P", "T", "ln_a", "cos_i", "Omega")
+    assert np.all(result.elements[:, 2] == 0.0) and np.all(result.elements[:, 6] == 0.0)
+    assert np.all((result.elements[:, 5] >= 0.0) & (result.elements[:, 5] < 180.0))
+    assert result.priors["omega"].startswith("held at 0 by convention (circular orbit")
+    summary = posterior_block(doc, result, None)["summary"]
+    assert summary["omega"]["fixed"] and summary["omega"]["high95"] == 0.0
+    # the truth inside each 95 % interval; T of the truth on the reported node's branch
+    reported = doc["elements"]["Omega"]["value"]
+    turned = abs(math.remainder(reported - node, 360.0)) > 90.0
+    t_node = 2015.0 + (12.0 if turned else 0.0)
+    t = summary["T"]
+    truths = {"P": 24.0, "a": 0.85, "i": 48.0,
+              "T": t["median"] + math.remainder(t_node - t["median"], 24.0)}
+    for key, value in truths.items():
+        assert summary[key]["low95"] <= value <= summary[key]["high95"], key
+    # T not spread over the period (nor split by the seam): its 95 % interval is a small
+    # part of it, and its 68 % half-width is the fit's error (within 30 %)
+    assert t["high95"] - t["low95"] < 0.01 * 24.0
+    half = 0.5 * (t["high"] - t["low"])
+    assert half == pytest.approx(doc["elements"]["T"]["error"], rel=0.3)
+
+
 def test_every_element_held_but_the_linear_ones_draws_without_a_chain():
     result = sample_document(_doc(fixed={"P": 24.0, "T": 2015.0, "e": 0.5}), seed=1)
     assert result.sample is None and len(result.elements) == 4000
@@ -198,6 +234,9 @@ def test_fit_prints_and_records_the_priors_and_masses_use_the_sampled_parallax(
     (["--sample", "--prior", "e=0.3"], "expected NAME=MEAN,SIGMA"),
     (["--sample", "--prior", "e=0.3,0.1", "--prior", "e=0.2,0.1"], "gives e twice"),
     (["--sample", "--fix", "e=0", "--prior", "e=0.1,0.1"], "e is held fixed"),
+    (["--sample", "--fix", "e=0", "--prior", "omega=30,5"],
+     "--prior omega: with e held at 0 (a circular orbit) omega has no meaning and is held "
+     "at 0 by convention"),
     (["--prior", "e=0.3,0.1"], "add --sample"),
     (["--sample", "--parallax", "40", "1", "--prior", "parallax=40,1"],
      "the parallax is given twice"),

@@ -19,11 +19,14 @@ positive, so the wrong choice cannot mimic the right one by a sign change of K. 
 one is kept and the chi2 difference reported. Uncertainties come from the covariance,
 scaled by the reduced chi2 when it exceeds 1.
 
-Elements held in the visual fit (``FitOptions.fixed``, --fix) stay held: they are not
-fitted, carry no error and do not count in the degrees of freedom. Here Omega runs over
-[0, 360), so a held Omega or omega also fixes the node choice: that fit is kept whatever
-its chi2, the other choice is fitted with the held angles + 180 deg for comparison, and a
-warning says so when the velocities prefer it.
+Elements held in the visual fit (``FitOptions.held``: --fix, and a circular orbit's
+omega = 0 by convention) stay held: they are not fitted, carry no error and do not count
+in the degrees of freedom. Here Omega runs over [0, 360), so a held Omega or omega also
+fixes the node choice: that fit is kept whatever its chi2, the other choice is fitted with
+the held angles + 180 deg for comparison, and a warning says so when the velocities prefer
+it. Not so a held omega with e held at 0 (``elements.phase_in_periastron``): the other
+node is then (Omega + 180, T + P/2) with omega as held, and the better choice is kept; T
+is the epoch of passage through the ascending node.
 
 Distance and masses (``combined_blocks``), per draw of the joint covariance (multivariate
 normal, seeded): the linear semi-major axis a_au = (K1 + K2) P sqrt(1 - e^2) / (2 pi sin i),
@@ -42,8 +45,9 @@ import numpy as np
 
 from . import formatting as fmt
 from .bounded_least_squares import fit_bounded
-from .elements import (ELEMENT_KEYS, CampbellElements, centre_angles, held_angles_as_reported,
-                       thiele_innes_from_campbell)
+from .elements import (ELEMENT_KEYS, CampbellElements, centre_angles, convention_held,
+                       held_angles_as_reported, held_elements, phase_in_periastron,
+                       thiele_innes_from_campbell, turn_node)
 from .errors import InputError
 from .fitting import held_constraints
 from .masses import format_mass_blocks, summarise, total_mass_msun
@@ -222,8 +226,8 @@ class CombinedSolution:
 
     @property
     def held_angles(self):
-        """The held ones of Omega and omega: they fix the node choice."""
-        return tuple(k for k in ("Omega", "omega") if k in self.held)
+        """The held ones of Omega and omega that fix the node choice (``_node_angles``)."""
+        return _node_angles(self.held)
 
     def full_covariance(self):
         """Covariance of ``parameters`` (held rows and columns zero), or None."""
@@ -249,13 +253,20 @@ def _linear_amplitudes(v, data):
     return float(sol[0]), dict(zip(amps, sol[1:]))
 
 
+def _node_angles(held):
+    """The held ones of Omega and omega that fix the node choice: a held omega of a
+    circular orbit does not (the node's half turn moves T instead)."""
+    return tuple(k for k in ("Omega", "omega") if k in held
+                 and not (k == "omega" and phase_in_periastron(held)))
+
+
 def _start(elements, data, shift_node, held):
     """Start values from the visual elements, one node choice, the held values and the
     velocities."""
     v = dict(zip(ELEMENT_KEYS, elements.as_tuple()))
     if shift_node:
-        v["Omega"] += 180.0
-        v["omega"] += 180.0
+        v["Omega"], v["omega"], v["T"] = (float(x) for x in turn_node(
+            v["Omega"], v["omega"], v["T"], v["P"], -180.0, phase_in_periastron(held)))
     v.update(held)
     gamma, amps = _linear_amplitudes(v, data)
     v["gamma"] = gamma
@@ -291,7 +302,7 @@ def _node_fits(solution, data, keys, held):
     the kept fit starts from the visual orbit on the held angle's branch, the other one
     holds the angle(s) + 180 deg.
     """
-    angles = [k for k in ("Omega", "omega") if k in held]
+    angles = _node_angles(held)
     el = solution.elements
     if not angles:
         fits = sorted((_least_squares(_start(el, data, shift, held), data, keys, held)
@@ -308,7 +319,9 @@ def _periastron_near(values, covar, keys, t_ref):
     """T moved by whole periods (the same orbit) to the passage nearest t_ref, with the
     covariance carried along (T - k P); a held T stays.
 
-    With e held at 0, T and omega are one parameter and the fit may drift periods away.
+    The fit of the other node starts half a period away under the circular convention
+    (``_start``), and a free T may end periods away from the data; near their mean it is
+    least correlated with P, as in the visual fit.
     """
     k = float(np.round((values["T"] - t_ref) / values["P"]))
     if "T" not in keys or k == 0.0:
@@ -617,8 +630,7 @@ class JointPosterior:
         self.keys = sol.keys
         self.held = dict(sol.held)
         self.names = tuple(self.COORDINATES.get(k, k) for k in sol.keys)
-        self.priors = {**self.PRIORS, **{k: f"held fixed at {fmt.number(v, 6)} (--fix): not "
-                                            "sampled" for k, v in _held_in_document(sol).items()}}
+        self.priors = {**self.PRIORS, **_held_priors(sol)}
         scale = np.sqrt(max(sol.reduced_chi2, 1.0))
         d = sol.data
         self.data = dataclasses.replace(
@@ -716,8 +728,17 @@ def _entry(value, error, unit):
 
 
 def _held_in_document(sol):
-    """The held elements in document units, as given (T in the log's epoch scale)."""
-    return {k: float(v) for k, v in sol.visual.options.fixed.items()}
+    """The held elements in document units: as given (T in the log's epoch scale), and a
+    circular orbit's omega = 0 by convention (``elements.held_elements``)."""
+    return {k: float(v) for k, v in held_elements(sol.visual.options.fixed).items()}
+
+
+def _held_priors(sol):
+    """The priors' words for the held elements: by --fix, or by the circular convention."""
+    from .priors import held_words
+
+    convention = convention_held(sol.visual.options.fixed)
+    return {k: held_words(v, k in convention) for k, v in _held_in_document(sol).items()}
 
 
 def _thiele_innes(sol):

@@ -9,6 +9,10 @@ Conventions (those of the trade):
   with W the node Omega and w the periastron argument omega.
 * Positions alone fix (Omega, omega) only up to a common 180 deg shift; without radial
   velocities Omega is reported in [0, 180) deg.
+* A circular orbit (e held at 0, omega and T free) has no periastron: the position
+  depends on T and omega only through omega + 2 pi (t - T) / P. By convention omega is
+  then held at 0 and T is the epoch of passage through the node Omega
+  (``held_elements``; common practice, no source).
 
 The vectorised functions work in radians; ``CampbellElements`` holds the public values
 in the units its field names state.
@@ -29,6 +33,11 @@ __all__ = [
     "wrap_degrees",
     "centre_angles",
     "held_angles_as_reported",
+    "CIRCULAR_NOTE",
+    "convention_held",
+    "held_elements",
+    "phase_in_periastron",
+    "turn_node",
 ]
 
 #: Keys of the elements in result documents, in the order used everywhere.
@@ -186,3 +195,43 @@ def held_angles_as_reported(fixed, node_deg, omega_deg):
         if name in out and abs(float(wrap_degrees(out[name] - shown))) > 90.0:
             out[name] = float(np.mod(out[name] + 180.0, 360.0))
     return out
+
+
+#: The circular orbit's convention in words, for the result's notes.
+CIRCULAR_NOTE = ("Circular orbit (e held at 0): omega is 0 by convention and T is the epoch "
+                 "of passage through the node Omega.")
+
+
+def convention_held(fixed):
+    """{"omega": 0.0} when ``fixed`` (the user's held elements) holds e at 0 and leaves
+    omega and T free, else {}: the circular orbit's convention (see the module notes).
+
+    With T held as well, omega is what places the node passage, so it stays free."""
+    circular = fixed.get("e") == 0.0 and "omega" not in fixed and "T" not in fixed
+    return {"omega": 0.0} if circular else {}
+
+
+def held_elements(fixed):
+    """Every element a fit holds: ``fixed`` (--fix) as given and the convention's omega.
+
+    The one place the circular orbit's omega = 0 is added: the visual fit
+    (``FitOptions.held``), the combined fit and the posterior all take it from here."""
+    return {**fixed, **convention_held(fixed)}
+
+
+def phase_in_periastron(held):
+    """Whether a 180 deg turn of the node moves T rather than omega: e held at 0, omega
+    held and T free, where (Omega + 180, omega, T + P/2) is (Omega, omega + 180, T) and
+    omega keeps its held value."""
+    return held.get("e") == 0.0 and "omega" in held and "T" not in held
+
+
+def turn_node(node_deg, omega_deg, t_peri, period, shift_deg, phase):
+    """The same apparent orbit with Omega moved by ``-shift_deg`` (a multiple of 180):
+    omega moves alike, or with ``phase`` (``phase_in_periastron``) T by shift/360 P.
+
+    Returns (Omega, omega, T); arrays broadcast."""
+    node = np.asarray(node_deg, float) - shift_deg
+    if phase:
+        return node, np.asarray(omega_deg, float), t_peri + period * (shift_deg / 360.0)
+    return node, np.asarray(omega_deg, float) - shift_deg, t_peri

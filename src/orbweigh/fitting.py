@@ -28,7 +28,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .elements import ELEMENT_KEYS
+from .elements import ELEMENT_KEYS, held_elements
 from .errors import FitError, InputError
 from .model import normalised_residuals
 from .refine import Constraints, polish_cells, refine_full
@@ -76,7 +76,8 @@ class FitOptions:
     fixed : dict
         Elements held at given values, keyed P, T, e, a, i, Omega, omega, in the result
         document's units: P [yr], T in the log's epoch scale, a [arcsec], angles [deg].
-        Held in the search (P, e, T), the refinement and the degrees of freedom.
+        Held in the search (P, e, T), the refinement and the degrees of freedom; recorded
+        as given. ``held`` adds omega = 0 for a circular orbit (e held at 0).
     period_bounds : (float, float) or None
         The period must lie in [lo, hi] yr: the search stays inside and the refinement
         is bounded (a solution on the bound is warned of). The search range defaults to it.
@@ -111,6 +112,12 @@ class FitOptions:
             if not 0 < lo < hi:
                 raise InputError(f"period bounds must satisfy 0 < PMIN < PMAX; got {lo}, {hi}")
         _check_fixed(self.fixed, self.period_bounds)
+
+    @property
+    def held(self):
+        """Every held element: ``fixed`` and, with e held at 0 (and omega and T free),
+        omega = 0 by convention (``elements.held_elements``)."""
+        return held_elements(self.fixed)
 
 
 #: Ranges of held values: (low, high, high included, in words); P and a exclude 0.
@@ -256,7 +263,7 @@ def _fit(data, options):
     return build_solution(
         data=data, rows=usable, points=points, best=final[0],
         alternatives=_distinct_alternatives(
-            final, options, n_dof=2 * clean.t.size - 7 + len(options.fixed)),
+            final, options, n_dof=2 * clean.t.size - 7 + len(options.held)),
         flipped=flipped, outlier=outlier, options=options, period_range=period_range,
         n_trials=n_trials, fit_seconds=time.perf_counter() - started,
         sigma_factor=factor, technique_scales=scales)
@@ -348,19 +355,20 @@ def _suspects_explained(points, found, suspects, options):
     best, flipped = _correct_flips(points, found, options.loss,
                                    np.zeros(points.t.size, bool))
     chi2_pt = _point_chi2(points, best.params, flipped)
-    red = max(best.chi2 / max(2 * points.t.size - 7 + len(options.fixed), 1), 1.0)
+    red = max(best.chi2 / max(2 * points.t.size - 7 + len(options.held), 1), 1.0)
     return all(flipped[k] or chi2_pt[k] / red <= options.outlier_sigma ** 2 for k in suspects)
 
 
 def held_constraints(options, data):
-    """The held elements in internal units (T as a Julian year) and the period bound.
+    """The held elements (``FitOptions.held``) in internal units (T as a Julian year) and
+    the period bound.
 
     Also the combined fit's held elements (``combined.fit_combined``): one conversion of a
     held T from the log's epoch scale.
     """
     from .reductions import to_julian_year
 
-    fixed = {k: float(v) for k, v in options.fixed.items()}
+    fixed = {k: float(v) for k, v in options.held.items()}
     if "T" in fixed:
         fixed["T"] = float(to_julian_year(np.array([fixed["T"]]), data.epoch_scale)[0])
     return Constraints(fixed, tuple(options.period_bounds) if options.period_bounds else None)
@@ -452,13 +460,13 @@ def _set_aside_outliers(points, best, flipped, options, max_rounds=10):
     for _ in range(max_rounds):
         chi2_pt = _point_chi2(points, best.params, flipped)
         n_in = int((~outlier).sum())
-        red = chi2_pt[~outlier].sum() / max(2 * n_in - 7 + len(options.fixed), 1)
+        red = chi2_pt[~outlier].sum() / max(2 * n_in - 7 + len(options.held), 1)
         dist = np.sqrt(chi2_pt / max(red, 1.0))
         new = dist > options.outlier_sigma
         if new.sum() > max_out:                      # keep only the worst ones
             new = np.zeros(n, bool)
             new[np.argsort(dist)[::-1][:max_out]] = True
-        if np.array_equal(new, outlier) or 2 * int((~new).sum()) <= 7 - len(options.fixed):
+        if np.array_equal(new, outlier) or 2 * int((~new).sum()) <= 7 - len(options.held):
             break
         outlier = new
         best = points.subset(~outlier, flipped).refine(best.params, options.loss)
@@ -476,7 +484,7 @@ def _scale_by_technique(points, technique, best, flipped, options):
 
     Returns (best, outlier mask, factor of each point, the document block).
     """
-    n_free = 7 - len(options.fixed)
+    n_free = 7 - len(options.held)
     factors, outlier = {}, np.zeros(points.t.size, bool)
     factor = np.ones(points.t.size)
     converged, change = False, np.inf

@@ -27,9 +27,10 @@ marginal and cancels exactly in the weights). The weighted draws are resampled
 (systematic resampling) into equally weighted ones; the effective number of draws
 (sum w)^2 / sum w^2 is reported, and a warning given when it is low.
 
-``DirectPosterior`` (when a, i, Omega or omega is held by ``--fix``, which makes beta no
-longer free): the ensemble runs over all free elements in (ln P, T, e, ln a, cos i,
-Omega, omega) with the exact likelihood; no weights. T moves in a window of two periods
+``DirectPosterior`` (when a, i, Omega or omega is held by ``--fix``, or omega = 0 by the
+circular orbit's convention, ``elements.held_elements``, which makes beta no longer
+free): the ensemble runs over all free elements in (ln P, T, e, ln a, cos i, Omega,
+omega) with the exact likelihood; no weights. T moves in a window of two periods
 around the fit's T and the angles within +-2 pi of the fit's, where their priors are
 uniform (a mode near a seam lies whole inside the window).
 """
@@ -40,7 +41,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .elements import campbell_from_thiele_innes, normalise_node, thiele_innes_from_campbell
+from .elements import (campbell_from_thiele_innes, normalise_node, phase_in_periastron,
+                       thiele_innes_from_campbell)
 from .errors import InputError
 
 __all__ = ["Positions", "MarginalPosterior", "DirectPosterior", "ALL_NAMES",
@@ -182,12 +184,16 @@ def _t_window(t_peri, period, t_ref):
     return np.abs(t_peri - t_ref) < period
 
 
-def _reported(period, t_peri, e, a, i_rad, node, omega, t_ref):
+def _reported(period, t_peri, e, a, i_rad, node, omega, t_ref, phase=False):
     """Element draws (P, T, e, a, i, Omega, omega) [yr, Julian yr, -, arcsec, deg x3]:
-    T moved by whole periods into [t_ref - P/2, t_ref + P/2), Omega into [0, 180) deg
-    with omega shifted alike, omega into [0, 360) deg."""
-    t_peri = t_ref + np.mod(t_peri - t_ref + 0.5 * period, period) - 0.5 * period
+    Omega into [0, 180) deg with omega shifted alike, omega into [0, 360) deg, or with
+    ``phase`` (a circular orbit's held omega, ``elements.phase_in_periastron``) T shifted
+    by half periods instead; then T moved by whole periods into [t_ref - P/2, t_ref + P/2)."""
+    if phase:
+        shift = np.pi * np.floor(node / np.pi)
+        node, t_peri = node - shift, t_peri + period * shift / (2.0 * np.pi)
     node, omega = normalise_node(node, omega)
+    t_peri = t_ref + np.mod(t_peri - t_ref + 0.5 * period, period) - 0.5 * period
     return np.column_stack([period, t_peri, e, a, np.degrees(i_rad), np.degrees(node),
                             np.degrees(omega)])
 
@@ -369,7 +375,7 @@ class DirectPosterior:
         """Element draws for walker positions q; the weights are all one (log 0)."""
         el, _ = self._columns(q)
         draws = _reported(el["P"], el["T"], el["e"], el["a"], el["i"], el["Omega"],
-                          el["omega"], self.t_ref)
+                          el["omega"], self.t_ref, phase_in_periastron(self.fixed))
         return draws, np.zeros(len(draws))
 
     def coordinates(self, elements):

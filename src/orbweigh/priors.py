@@ -30,7 +30,7 @@ import numpy as np
 from .elements import wrap_degrees
 from .errors import InputError
 
-__all__ = ["E_MAX", "PRIOR_NAMES", "ElementPriors", "check_gaussian_priors"]
+__all__ = ["E_MAX", "PRIOR_NAMES", "ElementPriors", "check_gaussian_priors", "held_words"]
 
 #: Upper bound (excluded) of the eccentricity prior.
 E_MAX = 0.99
@@ -49,9 +49,15 @@ _MEAN_RANGE = {"P": (0.0, math.inf, False, False, "a positive period in yr"),
                "T": (-math.inf, math.inf, False, False, "a finite epoch")}
 
 
-def check_gaussian_priors(priors, fixed=()):
+def check_gaussian_priors(priors, fixed=None):
     """Refuse unknown names, sigma <= 0, means outside the element's range, and priors on
-    held elements (InputError, before any sampling)."""
+    held elements (InputError, before any sampling).
+
+    ``fixed``: the elements held with --fix, name -> value (a circular orbit's omega,
+    held by convention, is refused too)."""
+    from .elements import convention_held
+
+    fixed = dict(fixed or {})
     for name, (mean, sigma) in priors.items():
         if name not in PRIOR_NAMES:
             raise InputError(f"--prior {name}: no such element; a prior can be put on "
@@ -67,6 +73,21 @@ def check_gaussian_priors(priors, fixed=()):
         if name in fixed:
             raise InputError(f"--prior {name}: {name} is held fixed (--fix); a held element "
                              "takes no prior. Drop one of the two")
+        if name in convention_held(fixed):
+            raise InputError(f"--prior {name}: with e held at 0 (a circular orbit) {name} "
+                             "has no meaning and is held at 0 by convention; T is then the "
+                             "epoch of passage through the node. Drop the prior, or free e")
+
+
+def held_words(value, by_convention=False):
+    """A held element's prior in words: held with --fix, or by the circular orbit's
+    convention (``elements.convention_held``)."""
+    from .formatting import number
+
+    if by_convention:
+        return (f"held at {number(float(value), 6)} by convention (circular orbit, e held "
+                "at 0): not sampled")
+    return f"held fixed at {number(float(value), 6)} (--fix): not sampled"
 
 
 def _gauss(x, mean, sigma):
@@ -94,6 +115,9 @@ class ElementPriors:
         name -> (mean, sigma) as the user gave them (T in the log's epoch scale).
     fixed : tuple of str
         Held elements: they carry no density (a held T no 1/P).
+    convention : tuple of str
+        Those of ``fixed`` held by the circular orbit's convention, not by --fix
+        (``elements.convention_held``).
     """
 
     period_range: tuple
@@ -103,6 +127,7 @@ class ElementPriors:
     epoch_label: str = ""
     gaussian_given: dict = field(default_factory=dict)
     fixed: tuple = ()
+    convention: tuple = ()
 
     # ------------------------------------------------------------ (ln P, T, e) part
     def log_nonlinear(self, period, t_peri, e):
@@ -182,7 +207,7 @@ class ElementPriors:
             out[name] = f"Gaussian N({number(mean, 6)}, {number(sigma, 6)}) {unit}".rstrip() + \
                 f"{support[name]} (--prior)"
         for name, value in fixed.items():
-            out[name] = f"held fixed at {number(float(value), 6)} (--fix): not sampled"
+            out[name] = held_words(value, name in self.convention)
         if parallax is not None:
             out["parallax"] = (f"Gaussian N({number(float(parallax[0]), 6)}, "
                                f"{number(float(parallax[1]), 6)}) mas; the "

@@ -15,7 +15,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .bounded_least_squares import fit_bounded
-from .elements import campbell_from_thiele_innes, thiele_innes_from_campbell
+from .elements import (campbell_from_thiele_innes, phase_in_periastron,
+                       thiele_innes_from_campbell, wrap_degrees)
 from .kepler import eccentric_anomaly, mean_anomaly
 from .model import FIT_KEYS, normalised_residuals, residual_jacobian
 
@@ -273,16 +274,23 @@ def thiele_innes_jacobian(a, i_deg, node_deg, omega_deg):
 
 
 def _campbell_start(params0, fixed):
-    """Campbell start from (P, T, e, A, B, F, G), held values imposed.
+    """Campbell start (P, T, e, a, i, Omega, omega) from (P, T, e, A, B, F, G), held
+    values imposed.
 
-    A held node 180 deg away from the start's (the node ambiguity) turns omega too.
+    A held node 180 deg away from the start's (the node ambiguity) turns omega too. With
+    e held at 0 a held omega moves T instead (``elements.phase_in_periastron``): the
+    phase omega + 2 pi (t - T) / P of the start is kept.
     """
     a, i, node, omega = campbell_from_thiele_innes(*params0[3:])
-    start = {"a": float(a), "i": float(np.degrees(i)), "Omega": float(np.degrees(node)),
+    start = {"P": float(params0[0]), "T": float(params0[1]), "e": float(params0[2]),
+             "a": float(a), "i": float(np.degrees(i)), "Omega": float(np.degrees(node)),
              "omega": float(np.degrees(omega))}
     if "Omega" in fixed and np.cos(np.radians(fixed["Omega"] - start["Omega"])) < 0:
         start["omega"] += 180.0
-    start.update({k: v for k, v in fixed.items() if k in start})
+    if phase_in_periastron(fixed):
+        turn = float(wrap_degrees(fixed["omega"] - start["omega"]))
+        start["T"] += turn / 360.0 * start["P"]
+    start.update(fixed)
     return start
 
 
@@ -294,8 +302,9 @@ def refine_campbell(params0, t, theta, rho, sigma_theta, sigma_rho, loss="linear
     exactly through the Thiele-Innes Jacobian (singular where held).
     """
     fixed = constraints.fixed
-    start, lower, upper, vary = _orbit_limits(params0, constraints)
     campbell0 = _campbell_start(params0, fixed)
+    start, lower, upper, vary = _orbit_limits([campbell0[k] for k in CAMPBELL_KEYS[:3]],
+                                              constraints)
     start += [campbell0[k] for k in CAMPBELL_KEYS[3:]]
     lower, upper = lower + [0.0, 0.0, -np.inf, -np.inf], upper + [np.inf, 180.0, np.inf, np.inf]
     vary = vary + [k not in fixed for k in CAMPBELL_KEYS[3:]]

@@ -336,13 +336,18 @@ def _start_scales(doc, best, names):
                      else fallback.get(n, 1e-3) for n in names])
 
 
-def _held(doc, best):
-    """Held elements in the document's units, a held Omega or omega on the branch of the
-    reported orbit (``elements.held_angles_as_reported``)."""
-    from .elements import held_angles_as_reported
+def _given(doc):
+    """The elements held with --fix in the fit, in the document's units, as given."""
+    return {k: float(v) for k, v in ((doc.get("fit") or {}).get("fixed") or {}).items()}
 
-    fixed = {k: float(v) for k, v in ((doc.get("fit") or {}).get("fixed") or {}).items()}
-    return held_angles_as_reported(fixed, best.node_deg, best.omega_deg)
+
+def _held(doc, best):
+    """Held elements in the document's units (with a circular orbit's omega = 0,
+    ``elements.held_elements``), a held Omega or omega on the branch of the reported
+    orbit (``elements.held_angles_as_reported``)."""
+    from .elements import held_angles_as_reported, held_elements
+
+    return held_angles_as_reported(held_elements(_given(doc)), best.node_deg, best.omega_deg)
 
 
 def _internal_fixed(fixed_doc, doc, direct):
@@ -361,6 +366,7 @@ def _internal_fixed(fixed_doc, doc, direct):
 
 def _element_priors(doc, best, gaussian):
     """ElementPriors of a document: period support, a support, the user's Gaussians."""
+    from .elements import convention_held
     from .formatting import epoch_label
     from .reductions import to_julian_year
     from .result import epoch_scale_of
@@ -384,7 +390,8 @@ def _element_priors(doc, best, gaussian):
                                   best.a_arcsec * _A_PRIOR_FACTOR),
                          gaussian=internal, period_source=source,
                          epoch_label=epoch_label(epoch_scale_of(doc)),
-                         gaussian_given=dict(gaussian), fixed=tuple(fixed)), fixed
+                         gaussian_given=dict(gaussian), fixed=tuple(fixed),
+                         convention=tuple(convention_held(_given(doc)))), fixed
 
 
 def sample_document(doc, walkers=None, steps=DEFAULT_STEPS, seed=0, priors=None,
@@ -422,14 +429,13 @@ def sample_document(doc, walkers=None, steps=DEFAULT_STEPS, seed=0, priors=None,
                          "give it once")
     if parallax is None and "parallax" in gaussian:
         parallax = gaussian.pop("parallax")
-    fixed_names = tuple((doc.get("fit") or {}).get("fixed") or {})
-    check_gaussian_priors(gaussian, fixed_names)
+    check_gaussian_priors(gaussian, _given(doc))
     reduced = float(doc["statistics"]["reduced_chi2"])
     scale = math.sqrt(reduced) if reduced > 1.0 else 1.0
     positions = Positions.from_document(doc, scale)
     best = elements_from_document(doc)
     element_priors, fixed_doc = _element_priors(doc, best, gaussian)
-    direct = any(k in fixed_names for k in _LINEAR_ELEMENTS)
+    direct = any(k in fixed_doc for k in _LINEAR_ELEMENTS)
     fixed = _internal_fixed(fixed_doc, doc, direct)
     if direct:
         model = DirectPosterior(positions, element_priors, fixed, best.periastron_yr,
@@ -562,12 +568,24 @@ def write_draws(path, result, inputs=()):
     return len(result.elements)
 
 
-def _centred(draws, best):
-    """Draws with the angles on the branch nearest the best values (for percentiles)."""
-    from .elements import centre_angles
+def _centred(draws, best, held):
+    """Draws with the angles on the branch nearest the best values (for percentiles).
+
+    Where a node's half turn moves T (``elements.phase_in_periastron``: a circular orbit,
+    omega held), T moves with it and is taken back to the period centred on the best T.
+    """
+    from .elements import phase_in_periastron, turn_node, wrap_degrees
 
     out = draws.copy()
-    out[:, 5], out[:, 6] = centre_angles(out[:, 5], out[:, 6], best[5], best[6], 180.0)
+    shift = 180.0 * np.round((out[:, 5] - best[5]) / 180.0)
+    phase = phase_in_periastron(held)
+    out[:, 5], omega, t_peri = turn_node(out[:, 5], out[:, 6], out[:, 1], out[:, 0], shift,
+                                         phase)
+    out[:, 6] = best[6] + wrap_degrees(omega - best[6])
+    if phase:
+        period = out[:, 0]
+        t_peri = best[1] + np.remainder(t_peri - best[1] + 0.5 * period, period) - 0.5 * period
+    out[:, 1] = t_peri
     return out
 
 
@@ -583,7 +601,7 @@ def posterior_block(doc, result, draws_file):
     from .result import elements_from_document, epoch_scale_of
 
     best = np.array(elements_from_document(doc).as_tuple())
-    draws = _centred(result.elements, best)
+    draws = _centred(result.elements, best, result.fixed)
     percentiles = np.percentile(draws, _PERCENTILES, axis=0)
     scale = epoch_scale_of(doc)
     summary = {}

@@ -7,8 +7,8 @@ import numpy as np
 
 from . import formatting as fmt
 from .elements import (
-    ELEMENT_KEYS, ELEMENT_UNITS, CampbellElements, campbell_from_thiele_innes,
-    held_angles_as_reported,
+    CIRCULAR_NOTE, ELEMENT_KEYS, ELEMENT_UNITS, CampbellElements, campbell_from_thiele_innes,
+    convention_held, held_angles_as_reported, phase_in_periastron, turn_node,
 )
 from .model import predict_theta_rho, wrap_degrees
 from .reductions import epoch_unit, from_julian_year, interval_in_scale
@@ -93,7 +93,7 @@ class OrbitSolution:
         scale = self.data.epoch_scale
         doc = {"schema": SCHEMA, "source": str(self.data.source),
                "elements": _elements_block(self.elements, self.errors, scale,
-                                           self.options.fixed),
+                                           self.options.held),
                "thiele_innes": {k: _entry(self.thiele_innes[k], self.thiele_innes_errors[k],
                                           "arcsec") for k in "ABFG"},
                "covariance": None if self.covariance is None else {
@@ -190,20 +190,32 @@ def _campbell_vector(params):
                      np.degrees(i), np.degrees(node), np.degrees(omega)], float)
 
 
-def _campbell_solution(best, scale):
+def _campbell_solution(best, scale, held, t_ref):
     """Campbell elements of a refined solution and their covariance (errors scaled).
 
     Taken as refined when the refinement ran in Campbell elements (a held angle then
     stays exactly as held, even face-on), otherwise from the Thiele-Innes constants.
+    Omega is brought into [0, 180); where that turns a held omega of a circular orbit it
+    moves T by half a period instead (``elements.turn_node``), and T is then taken to
+    the passage nearest ``t_ref`` (the covariance carried along, T + c P).
     """
     if best.campbell is None:
         return _campbell_vector(best.params), (
             None if best.covariance is None else
             campbell_covariance(best.params, best.covariance * scale))
     vec = np.array(best.campbell, float)      # i is bounded to [0, 180] there
-    shift = np.floor(vec[5] / 180.0) * 180.0   # in degrees, so a held 60 stays 60.0
-    vec[5], vec[6] = vec[5] - shift, np.mod(vec[6] - shift, 360.0)
     cov = None if best.campbell_covariance is None else best.campbell_covariance * scale
+    shift = np.floor(vec[5] / 180.0) * 180.0   # in degrees, so a held 60 stays 60.0
+    phase = phase_in_periastron(held)
+    node, omega, t_peri = turn_node(vec[5], vec[6], vec[1], vec[0], shift, phase)
+    vec[5], vec[6] = node, np.mod(omega, 360.0)
+    if phase:
+        turns = (t_peri - vec[1]) / vec[0] - np.round((t_peri - t_ref) / vec[0])
+        vec[1] += turns * vec[0]
+        if cov is not None:
+            jac = np.eye(7)
+            jac[1, 0] = turns
+            cov = jac @ cov @ jac.T
     return vec, cov
 
 
@@ -239,13 +251,15 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     from .technique_weights import technique_statistics
     params = best.params
     n_fit = int((~outlier).sum())
-    dof = max(2 * n_fit - 7 + len(options.fixed), 1)
+    held = options.held
+    dof = max(2 * n_fit - 7 + len(held), 1)
     reduced = best.chi2 / dof
     scale = max(reduced, 1.0)
     fit_cov = None if best.covariance is None else best.covariance * scale
-    vec, cov = _campbell_solution(best, scale)
+    t_ref = float(np.mean(points.t[~outlier]))
+    vec, cov = _campbell_solution(best, scale, held, t_ref)
     elements = CampbellElements(*vec)
-    errors = {k: (None if cov is None or k in options.fixed
+    errors = {k: (None if cov is None or k in held
                   else float(np.sqrt(max(cov[j, j], 0.0))))
               for j, k in enumerate(ELEMENT_KEYS)}
     ti = dict(zip("ABFG", params[3:]))
@@ -269,7 +283,7 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     by_technique = technique_statistics(
         data.technique[fitted], d_theta[fitted] / (as_fitted * data.sigma_theta_deg[fitted]),
         d_rho[fitted] / (as_fitted * data.sigma_rho_arcsec[fitted]),
-        d_theta[fitted], d_rho[fitted], 7 - len(options.fixed))
+        d_theta[fitted], d_rho[fitted], 7 - len(held))
     stats = {
         "n_input": int(data.n_lines or len(data)), "n_used": n_fit,
         "n_rejected": len(data.rejected), "n_excluded": int((~data.usable).sum()),
@@ -288,7 +302,8 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     }
     if technique_scales is not None:
         stats["technique_scales"] = technique_scales
-    alts = [(CampbellElements(*_campbell_vector(r.params)), r.chi2) for r in alternatives]
+    alts = [(CampbellElements(*_campbell_solution(r, scale, held, t_ref)[0]), r.chi2)
+            for r in alternatives]
     solution = OrbitSolution(
         data=data, params=params, fit_covariance=fit_cov, elements=elements, covariance=cov,
         errors=errors, thiele_innes=ti, thiele_innes_errors=ti_err, status=status,
@@ -297,6 +312,8 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
         errors_scaled=stats["errors_scaled"], alternatives=alts, statistics=stats,
         options=options, sigma_factor=factor)
     solution.warnings.extend(_warnings(solution, data, rows, flipped, outlier, best))
+    if convention_held(options.fixed):
+        solution.notes.append(CIRCULAR_NOTE)
     solution.notes.append("Without radial velocities Omega and omega are known only up to a "
                           "common 180 deg shift; Omega is given in [0, 180) deg.")
     if solution.errors_scaled:
@@ -431,8 +448,11 @@ def _warnings(sol, data, rows, flipped, outlier, best):
                    f"{bounds[1]:g} yr: the data prefer a period outside it, so the elements "
                    "are those of the best orbit allowed, not of a minimum.")
     if sol.options.fixed:
+        convention = "".join(f", and {k} = {v:g} by convention (circular orbit)"
+                             for k, v in convention_held(sol.options.fixed).items())
         out.append("Held fixed (no error, not counted in the degrees of freedom): "
-                   + ", ".join(f"{k} = {v:g}" for k, v in sol.options.fixed.items()) + ".")
+                   + ", ".join(f"{k} = {v:g}" for k, v in sol.options.fixed.items())
+                   + convention + ".")
         out.extend(_held_branch_note(sol.options.fixed, el))
     if best.covariance is None:
         out.append("The covariance could not be estimated (degenerate solution): "
@@ -449,7 +469,7 @@ def _warnings(sol, data, rows, flipped, outlier, best):
         out.append(f"With {' and '.join(held_angles)} held the fit went face-on "
                    f"(i = {fmt.number(float(el.i_deg), 3)} deg), where the held angle has no "
                    "effect: the data disfavour the held value. Check it, or free it.")
-    if el.e < 0.05:
+    if el.e < 0.05 and not phase_in_periastron(sol.options.held):
         out.append("Nearly circular orbit: omega and T are poorly defined.")
     kept = [f"{k} ({v['n_points']} points)" for k, v in
             (stats.get("technique_scales") or {}).get("factors", {}).items() if not v["estimated"]]

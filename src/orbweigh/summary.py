@@ -10,6 +10,14 @@ _LABELS = {"P": "P (period)", "T": "T (periastron)", "e": "e", "a": "a (semi-maj
            "i": "i (inclination)", "Omega": "Omega (node)", "omega": "omega (periastron arg.)"}
 
 
+def _label(key, elements):
+    """An element's label; T of a circular orbit (e and omega held at 0) is the epoch of
+    passage through the node, not of a periastron (``elements.CIRCULAR_NOTE``)."""
+    circular = all(elements.get(k, {}).get("fixed") and elements[k]["value"] == 0.0
+                   for k in ("e", "omega"))
+    return "T (node passage)" if key == "T" and circular else _LABELS.get(key, key)
+
+
 def _value(entry):
     if entry.get("fixed"):
         return " ".join(filter(None, (fmt.number(entry["value"], 6), entry.get("unit", ""),
@@ -61,7 +69,7 @@ def format_result(doc):
     """Elements, Thiele-Innes constants, statistics, flagged rows and warnings as text."""
     out = [f"Orbit of {doc.get('source', '?')}"]
     for key, entry in doc["elements"].items():
-        label = _LABELS.get(key, key)
+        label = _label(key, doc["elements"])
         extra = f"  [{fmt.epoch_label(entry['scale'])}]" if key == "T" else ""
         out.append(f"  {label:<26}{_value(entry)}{extra}")
     out.append("Thiele-Innes constants")

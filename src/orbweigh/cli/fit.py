@@ -35,7 +35,8 @@ def add_arguments(parser):
                         help="hold an element at VALUE (repeatable; NAME one of P, T, e, a, "
                              "i, Omega, omega; P in yr, T in the log's epoch scale, a in "
                              "arcsec, angles in deg, Omega and omega in [0, 360)), e.g. --fix "
-                             "e=0 for a circular orbit; without --rv a node held beyond 180 deg "
+                             "e=0 for a circular orbit (omega is then held at 0 and T is the "
+                             "epoch of passage through the node, by convention); without --rv a node held beyond 180 deg "
                              "is reported as Omega - 180 with omega + 180 (the same apparent "
                              "orbit), with a warning; with --rv a held Omega or omega picks the "
                              "node, and a warning says when the velocities prefer the other")
@@ -263,7 +264,7 @@ def _check_sampling_arguments(args):
     if args.rv and args.priors:
         raise InputError("--prior applies to the visual-orbit posterior; with --rv the joint "
                          "posterior keeps its own priors: drop --prior or --rv")
-    check_gaussian_priors(args.priors, tuple(parse_fixed(args.fix)))
+    check_gaussian_priors(args.priors, parse_fixed(args.fix))
     if "parallax" in args.priors:
         if args.parallax is not None:
             raise InputError("the parallax is given twice (--parallax and --prior "
