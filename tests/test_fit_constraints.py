@@ -67,6 +67,19 @@ def test_circular_orbit_with_e_held_has_omega_0_and_t_at_the_node(node):
     assert abs(el.periastron_yr - np.mean(data.epoch_yr)) <= 0.5 * el.period_yr
 
 
+def test_circular_orbit_with_the_node_held_on_the_far_branch():
+    # e = 0 and Omega = 292 held (the truth's 112 + 180): the same apparent orbit, reported
+    # as Omega = 112 exactly with omega still 0 and T moved by half a period, back at the
+    # truth's node passage 2015.0 (within 4 sigma; common practice, no source).
+    sol = fit_orbit(_log(CIRCULAR), FitOptions(fixed={"e": 0.0, "Omega": 292.0}))
+    el = sol.elements
+    assert el.node_deg == 112.0 and el.omega_deg == 0.0 and sol.dof == 2 * 30 - 4
+    assert _off(el.periastron_yr, 2015.0, el.period_yr) < 4 * sol.errors["T"]
+    assert any("reported as Omega = 112 deg with T half a period away" in w
+               for w in sol.warnings)
+    assert any("(Omega + 180, T + P/2) is the same apparent orbit" in n for n in sol.notes)
+
+
 def test_circular_orbit_with_t_held_keeps_omega_free():
     # e and T held: omega then places the node passage, so no convention applies; the
     # truth's T = 2015 is a node passage, so omega comes out near 0 (within 4 sigma).

@@ -314,8 +314,13 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     solution.warnings.extend(_warnings(solution, data, rows, flipped, outlier, best))
     if convention_held(options.fixed):
         solution.notes.append(CIRCULAR_NOTE)
-    solution.notes.append("Without radial velocities Omega and omega are known only up to a "
-                          "common 180 deg shift; Omega is given in [0, 180) deg.")
+    if phase_in_periastron(held):
+        solution.notes.append("Without radial velocities Omega is known only up to 180 deg: "
+                              "for a circular orbit (Omega + 180, T + P/2) is the same "
+                              "apparent orbit; Omega is given in [0, 180) deg.")
+    else:
+        solution.notes.append("Without radial velocities Omega and omega are known only up "
+                              "to a common 180 deg shift; Omega is given in [0, 180) deg.")
     if solution.errors_scaled:
         solution.notes.append(f"Uncertainties were scaled by sqrt(reduced chi2) = "
                               f"{np.sqrt(reduced):.2f}.")
@@ -397,8 +402,9 @@ _UNPRECESSED_SPAN_YR = 30.0
 _FACE_ON_SIN_I = 0.02
 
 
-def _held_branch_note(fixed, el):
-    """Say so when a held Omega or omega is reported on the other node branch."""
+def _held_branch_note(fixed, el, phase):
+    """Say so when a held Omega or omega is reported on the other node branch (with
+    ``phase``, a circular orbit's held omega, the branch moves T by half a period)."""
     shown = held_angles_as_reported(fixed, el.node_deg, el.omega_deg)
     moved = [k for k in ("Omega", "omega") if k in fixed and shown[k] != fixed[k]]
     if not moved:
@@ -406,6 +412,11 @@ def _held_branch_note(fixed, el):
     from .formatting import number
 
     given = ", ".join(f"{k} = {number(float(fixed[k]), 6)}" for k in moved)
+    if phase:
+        return [f"Held {given} deg is reported as Omega = {number(float(el.node_deg), 6)} "
+                "deg with T half a period away, the same apparent orbit: without radial "
+                "velocities a circular orbit's (Omega, T) and (Omega + 180, T + P/2) cannot "
+                "be told apart, and Omega is reported in [0, 180)."]
     return [f"Held {given} deg is reported as Omega = {number(float(el.node_deg), 6)}, "
             f"omega = {number(float(el.omega_deg), 6)} deg, the same apparent orbit: "
             "without radial velocities (Omega, omega) and (Omega + 180, omega + 180) "
@@ -453,7 +464,8 @@ def _warnings(sol, data, rows, flipped, outlier, best):
         out.append("Held fixed (no error, not counted in the degrees of freedom): "
                    + ", ".join(f"{k} = {v:g}" for k, v in sol.options.fixed.items())
                    + convention + ".")
-        out.extend(_held_branch_note(sol.options.fixed, el))
+        out.extend(_held_branch_note(sol.options.fixed, el,
+                                     phase_in_periastron(sol.options.held)))
     if best.covariance is None:
         out.append("The covariance could not be estimated (degenerate solution): "
                    "no uncertainties are given.")
