@@ -10,7 +10,9 @@ import pytest
 
 from orbweigh.errors import InputError
 from orbweigh.fitting import FitOptions, fit_orbit
+from orbweigh.report.tables import element_name
 from orbweigh.solution import campbell_covariance
+from orbweigh.summary import format_result
 from synthetic import make_log
 
 TRUTH = dict(P=24.0, T=2015.0, e=0.5, a=0.85, i=48.0, Omega=112.0, omega=250.0)
@@ -50,6 +52,10 @@ def test_circular_orbit_with_e_held_has_omega_0_and_t_at_the_node(node):
             "passage through the node Omega.") in sol.notes
     assert not any("undetermined" in w or "poorly defined" in w for w in sol.warnings)
     assert any("omega = 0 by convention" in w for w in sol.warnings)
+    # T is named for what it is, in the printed summary and in the report's tables
+    assert "T (node passage)" in format_result(doc)
+    assert element_name("T", doc["elements"]) == "Epoch of node passage"
+    assert element_name("T", free.to_document()["elements"]) == "Epoch of periastron"
     # errors as those of the free fit of the same log (within 3x) and far below the values
     for key in ("P", "a", "i"):
         ratio = sol.errors[key] / free.errors[key]

@@ -36,7 +36,8 @@ from .reductions import EPOCH_SCALES, epoch_unit, to_julian_year
 
 __all__ = ["SCHEMA", "MAX_DOCUMENT_BYTES", "load_result", "validate_document",
            "elements_from_document", "element_draws", "epoch_scale_of", "read_draws",
-           "draws_for_masses", "covariance_from_document", "element_errors", "independent_draws"]
+           "draws_for_masses", "covariance_from_document", "element_errors", "independent_draws",
+           "t_is_node_passage"]
 
 SCHEMA = "orbweigh.result/1"
 
@@ -396,6 +397,14 @@ def epoch_scale_of(doc):
         raise InputError(f"{doc.get('_path', 'result document')}: element T has unknown "
                          f"scale {scale!r}; expected one of {', '.join(EPOCH_SCALES)}")
     return scale
+
+
+def t_is_node_passage(elements):
+    """Whether T of an elements block is the epoch of passage through the node, not of a
+    periastron: e and omega both held at 0, a circular orbit's convention
+    (``elements.CIRCULAR_NOTE``)."""
+    return all(isinstance(elements.get(k), dict) and elements[k].get("fixed")
+               and elements[k].get("value") == 0.0 for k in ("e", "omega"))
 
 
 def elements_from_document(doc):

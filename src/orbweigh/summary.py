@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 from . import formatting as fmt
-from .result import epoch_scale_of
+from .result import epoch_scale_of, t_is_node_passage
 
 __all__ = ["format_result"]
 
@@ -11,11 +11,11 @@ _LABELS = {"P": "P (period)", "T": "T (periastron)", "e": "e", "a": "a (semi-maj
 
 
 def _label(key, elements):
-    """An element's label; T of a circular orbit (e and omega held at 0) is the epoch of
-    passage through the node, not of a periastron (``elements.CIRCULAR_NOTE``)."""
-    circular = all(elements.get(k, {}).get("fixed") and elements[k]["value"] == 0.0
-                   for k in ("e", "omega"))
-    return "T (node passage)" if key == "T" and circular else _LABELS.get(key, key)
+    """An element's label; T of a circular orbit is the epoch of passage through the node
+    (``result.t_is_node_passage``)."""
+    if key == "T" and t_is_node_passage(elements):
+        return "T (node passage)"
+    return _LABELS.get(key, key)
 
 
 def _value(entry):

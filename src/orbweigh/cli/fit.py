@@ -36,10 +36,11 @@ def add_arguments(parser):
                              "i, Omega, omega; P in yr, T in the log's epoch scale, a in "
                              "arcsec, angles in deg, Omega and omega in [0, 360)), e.g. --fix "
                              "e=0 for a circular orbit (omega is then held at 0 and T is the "
-                             "epoch of passage through the node, by convention); without --rv a node held beyond 180 deg "
-                             "is reported as Omega - 180 with omega + 180 (the same apparent "
-                             "orbit), with a warning; with --rv a held Omega or omega picks the "
-                             "node, and a warning says when the velocities prefer the other")
+                             "epoch of passage through the node, by convention); without --rv "
+                             "a node held beyond 180 deg is reported as Omega - 180 with "
+                             "omega + 180 (the same apparent orbit), with a warning; with --rv "
+                             "a held Omega or omega picks the node, and a warning says when "
+                             "the velocities prefer the other")
     parser.add_argument("--technique-scales", action="store_true",
                         help="estimate one sigma factor per observing technique (each "
                              "technique's reduced chi2 brought to about 1, iterated with the "

@@ -19,7 +19,7 @@ from .. import formatting as fmt
 from ..elements import thiele_innes_from_campbell
 from ..measurements import TECHNIQUE_DEFAULTS
 from ..reductions import from_julian_year
-from ..result import element_draws, elements_from_document, epoch_scale_of
+from ..result import element_draws, elements_from_document, epoch_scale_of, t_is_node_passage
 from . import style
 
 __all__ = ["measurement_rows", "velocity_rows", "epoch_axis", "plot_orbit", "plot_residuals",
@@ -399,7 +399,8 @@ def plot_orbit(doc, ax=None, n_band=80, seed=None):
         ax.plot(y, x, color=style.ORBIT, lw=1.1, zorder=2, label="fitted orbit", gid="orbit")
         ax.plot([0, y[0]], [0, x[0]], color=style.PERIASTRON, lw=0.6, ls=":", zorder=2)
         ax.plot(y[0], x[0], marker="o", ms=5, mfc="white", mec=style.PERIASTRON, mew=1.2,
-                linestyle="none", zorder=5, label="periastron", gid="periastron")
+                linestyle="none", zorder=5, gid="periastron",
+                label="node passage (T)" if t_is_node_passage(doc["elements"]) else "periastron")
         # Eccentric anomaly grows with time, so the arrow E = pi -> pi + 0.3 shows the motion.
         k = np.searchsorted(_E_GRID, np.pi)
         ax.annotate("", xy=(y[k + 17], x[k + 17]), xytext=(y[k], x[k]), zorder=5,

@@ -110,7 +110,7 @@ def _elements_section(doc):
         value, error = tb.format_value_error(entry["value"], entry.get("error"))
         if entry.get("fixed"):
             error = "held fixed"
-        name, _, symbol = tb.ELEMENT_NAMES[key]
+        name, symbol = tb.element_name(key, doc["elements"]), tb.ELEMENT_NAMES[key][2]
         rows.append((name, symbol, _signed(value), error, _element_unit(key, entry, doc)))
     what = "least-squares fit" if "combined" not in doc else "joint fit of positions and " \
         "radial velocities"

@@ -11,7 +11,7 @@ from ..formatting import ROUNDING_RULE, decimals_for
 from ..reductions import epoch_unit
 from ..result import epoch_scale_of
 
-__all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "THIELE_INNES_KEYS", "MASS_KEYS",
+__all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "element_name", "THIELE_INNES_KEYS", "MASS_KEYS",
            "RESIDUAL_COLUMNS", "RESIDUAL_DECIMALS", "decimals_for",
            "format_value_error", "format_interval",
            "theta_equinox", "object_name", "parallax_entries", "elements_rows", "elements_latex", "elements_table_latex",
@@ -25,6 +25,16 @@ ELEMENT_NAMES = {"P": ("Period", r"$P$", "P"), "T": ("Epoch of periastron", r"$T
                            "\N{GREEK CAPITAL LETTER OMEGA}"),
                  "omega": ("Argument of periastron", r"$\omega$", "\N{GREEK SMALL LETTER OMEGA}")}
 THIELE_INNES_KEYS = ("A", "B", "F", "G")
+
+
+def element_name(key, elements):
+    """The name of an element of an elements block: T of a circular orbit is the epoch of
+    passage through the node (``result.t_is_node_passage``)."""
+    from ..result import t_is_node_passage
+
+    if key == "T" and t_is_node_passage(elements):
+        return "Epoch of node passage"
+    return ELEMENT_NAMES[key][0]
 MASS_KEYS = ("total", "primary", "secondary")
 
 #: Residual columns: (key, unit or None; 'epoch' takes the document's epoch unit).
@@ -148,8 +158,9 @@ def _parallax_rows(doc):
 def elements_rows(doc):
     """(symbol, quantity, value, unit) LaTeX cells of the elements, Thiele-Innes constants,
     velocities of a combined solution, parallaxes and masses."""
-    rows = [(ELEMENT_NAMES[k][1], ELEMENT_NAMES[k][0], _latex_cell(doc["elements"][k]),
-             _latex_unit(k, doc["elements"][k], doc)) for k in ELEMENT_KEYS]
+    el = doc["elements"]
+    rows = [(ELEMENT_NAMES[k][1], element_name(k, el), _latex_cell(el[k]),
+             _latex_unit(k, el[k], doc)) for k in ELEMENT_KEYS]
     ti = doc.get("thiele_innes") or {}
     rows += [(f"${k}$", "Thiele--Innes constant", _latex_cell(ti[k]), ti[k].get("unit", "arcsec"))
              for k in THIELE_INNES_KEYS if k in ti]
