@@ -53,21 +53,22 @@ class _Transform:
         return np.where(np.abs(u) < _TINY, 0.0, u)
 
     def to_external(self, u):
-        lo, hi = self.lower, self.upper
-        root = np.sqrt(u * u + 1.0)
-        with np.errstate(invalid="ignore"):
-            x = np.where(self.both, lo + (np.sin(u) + 1.0) * (hi - lo) / 2.0, u)
-        x = np.where(self.low_only, lo - 1.0 + root, x)
-        x = np.where(self.high_only, hi + 1.0 - root, x)
+        # Index arrays, not np.where over every case: called at every evaluation.
+        lo, hi, x = self.lower, self.upper, np.array(u, float)
+        b, low, high = self.both, self.low_only, self.high_only
+        x[b] = lo[b] + (np.sin(u[b]) + 1.0) * (hi[b] - lo[b]) / 2.0
+        x[low] = lo[low] - 1.0 + np.sqrt(u[low] * u[low] + 1.0)
+        x[high] = hi[high] + 1.0 - np.sqrt(u[high] * u[high] + 1.0)
         return np.clip(x, lo, hi)
 
     def gradient(self, u):
         """dx/du of each varied parameter."""
-        root = np.sqrt(u * u + 1.0)
-        with np.errstate(invalid="ignore"):
-            g = np.where(self.both, np.cos(u) * (self.upper - self.lower) / 2.0, 1.0)
-        g = np.where(self.low_only, u / root, g)
-        return np.where(self.high_only, -u / root, g)
+        g = np.ones_like(u, dtype=float)
+        b, low, high = self.both, self.low_only, self.high_only
+        g[b] = np.cos(u[b]) * (self.upper[b] - self.lower[b]) / 2.0
+        g[low] = u[low] / np.sqrt(u[low] * u[low] + 1.0)
+        g[high] = -u[high] / np.sqrt(u[high] * u[high] + 1.0)
+        return g
 
 
 def fit_bounded(residuals, x0, lower, upper, vary, jacobian=None, loss="linear",

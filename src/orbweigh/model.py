@@ -86,17 +86,18 @@ def residual_jacobian(params, t, sigma_theta, sigma_rho):
     sin_e, cos_e, X, Y = _orbit_basis(t, P, T, e)
     s = np.sqrt(1.0 - e**2)
     D = 1.0 - e * cos_e
-    dE = {"P": -M / (P * D), "T": -2.0 * np.pi / (P * D), "e": sin_e / D}
-    dX = {k: -sin_e * v for k, v in dE.items()}
-    dY = {k: s * cos_e * v for k, v in dE.items()}
-    dX["e"] = dX["e"] - 1.0
-    dY["e"] = dY["e"] - (e / s) * sin_e
-    zero = np.zeros_like(t)
-    dx = [A * dX[k] + F * dY[k] for k in "PTe"] + [X, zero, Y, zero]
-    dy = [B * dX[k] + G * dY[k] for k in "PTe"] + [zero, X, zero, Y]
+    dE = np.stack([-M / (P * D), np.broadcast_to(-2.0 * np.pi / (P * D), M.shape),
+                   sin_e / D])                        # d E / d (P, T, e), (3, n)
+    dX = -sin_e * dE
+    dY = s * cos_e * dE
+    dX[2] = dX[2] - 1.0
+    dY[2] = dY[2] - (e / s) * sin_e
+    zero = np.zeros_like(X)
+    dx = np.concatenate([A * dX + F * dY, [X, zero, Y, zero]])   # (7, n)
+    dy = np.concatenate([B * dX + G * dY, [zero, X, zero, Y]])
     x, y = A * X + F * Y, B * X + G * Y
     rho2 = x**2 + y**2
     rho = np.sqrt(rho2)
-    cols_theta = [-np.degrees((x * gy - y * gx) / rho2) / sigma_theta for gx, gy in zip(dx, dy)]
-    cols_rho = [-((x * gx + y * gy) / rho) / sigma_rho for gx, gy in zip(dx, dy)]
-    return np.vstack([np.column_stack(cols_theta), np.column_stack(cols_rho)])
+    cols_theta = -np.degrees((x * dy - y * dx) / rho2) / sigma_theta
+    cols_rho = -((x * dx + y * dy) / rho) / sigma_rho
+    return np.concatenate([cols_theta, cols_rho], axis=1).T
