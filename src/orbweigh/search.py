@@ -28,7 +28,8 @@ _PHASE_TOLERANCE = 0.08       # largest phase slip across the data span between 
 # do the rest. These sizes were tuned with benchmarks/bench_fit.py (found rate unchanged
 # against a grid four times finer).
 _MAX_PERIOD_STEPS = 20000
-_CHUNK_ELEMENTS = 3_000_000   # trials x points evaluated per numpy pass
+_CHUNK_ELEMENTS = 150_000     # trials x points per numpy pass: the float32 work arrays stay in
+                              # cache (3,000,000 made the grid 3x slower: benchmarks/bench_grid.py)
 
 
 @dataclass(frozen=True)
