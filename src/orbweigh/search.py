@@ -79,20 +79,6 @@ def linear_thiele_innes(X, Y, x, y, w):
     return A, B, F, G, np.maximum(total - fitted.astype(np.float64), 0.0)
 
 
-def _linear_chi2(X, Y, x, y, w):
-    """The chi2 of ``linear_thiele_innes`` alone, without forming A, B, F, G (the grid)."""
-    rhs = np.column_stack([w * x, w * y])
-    sxx, sxy, syy = (X * X) @ w, (X * Y) @ w, (Y * Y) @ w
-    xw, yw = X @ rhs, Y @ rhs
-    det = sxx * syy - sxy**2
-    det = np.where(np.abs(det) > 0, det, np.inf)
-    fitted = (syy * (xw * xw).sum(-1) - 2.0 * sxy * (xw * yw).sum(-1)
-              + sxx * (yw * yw).sum(-1)) / det
-    x64, y64, w64 = (np.asarray(v, np.float64) for v in (x, y, w))
-    total = float(np.dot(w64 * x64, x64) + np.dot(w64 * y64, y64))
-    return np.maximum(total - fitted.astype(np.float64), 0.0)
-
-
 def default_period_range(t):
     """Period range [yr] derived from the sampling of epochs ``t`` [yr].
 
@@ -173,7 +159,7 @@ def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
         idx = (frac * _MEAN_ANOMALY_STEPS).astype(np.intp) % _MEAN_ANOMALY_STEPS
         X = np.take(tab_x, idx, axis=1).reshape(-1, n)    # (e * P * phase, point)
         Y = np.take(tab_y, idx, axis=1).reshape(-1, n)
-        chi2 = _linear_chi2(X, Y, x32, y32, w32).reshape(n_e, len(p), n_phase)
+        chi2 = linear_thiele_innes(X, Y, x32, y32, w32)[4].reshape(n_e, len(p), n_phase)
         flat = chi2.transpose(1, 0, 2).reshape(len(p), -1)
         k = np.argmin(flat, axis=1)
         best_chi2[start:start + chunk] = flat[np.arange(len(p)), k]
