@@ -45,6 +45,7 @@ from __future__ import annotations
 
 import contextlib
 import functools
+import io
 import hashlib
 import json
 import math
@@ -934,12 +935,14 @@ def _bar_stream():
     """Where the progress bar is drawn: the terminal, or nowhere when stderr is a file or a
     pipe (a log would fill with carriage-return redraws); the per-system lines still go
     to stdout either way."""
-    return sys.stderr if sys.stderr.isatty() else _null_stream()
+    return sys.stderr if sys.stderr.isatty() else _Discard()
 
 
-@functools.lru_cache(maxsize=1)
-def _null_stream():
-    return open(os.devnull, "w")
+class _Discard(io.TextIOBase):
+    """A text stream that keeps nothing (no file left open at exit, unlike os.devnull)."""
+
+    def write(self, text):
+        return len(text)
 
 
 def _announce(bar, record, resumed=False):
