@@ -44,7 +44,6 @@ workers at the same paths.
 from __future__ import annotations
 
 import contextlib
-import functools
 import io
 import hashlib
 import json
