@@ -469,6 +469,10 @@ def test_node_held_on_the_wrong_side_is_kept_with_a_warning(synthetic):
     assert len(said) == 1
     assert "Omega = 300.00 deg" in said[0] and f"{-sol.node_delta_chi2:.1f}" in said[0]
     assert "held Omega = 120 deg was kept" in said[0]
+    # the velocities far from this orbit are put down to the held node, not to the data
+    far = [w for w in sol.warnings if "beyond 4 sigma of the combined orbit" in w]
+    assert len(far) == 1 and "because of the held node" in far[0]
+    assert "flag them in the log" not in far[0]
     doc = add_to_document(held.to_document(), sol, combined_blocks(sol, seed=1))
     assert doc["node"]["decisive"] and doc["node"]["delta_chi2"] < 0
     assert "fits BETTER by delta chi2" in format_combined(doc)

@@ -423,6 +423,11 @@ def _node_warning(sol):
     return None
 
 
+def _held_node_rejected(sol):
+    """Whether a held angle kept the node choice the velocities decisively reject."""
+    return sol.node_delta_chi2 <= -NODE_DECISIVE_DELTA_CHI2
+
+
 def _warnings(sol, r_rv):
     out = [w for w in (_node_warning(sol),) if w]
     if sol.covariance is None:
@@ -437,9 +442,11 @@ def _warnings(sol, r_rv):
     far = np.flatnonzero(np.abs(r_rv) > _RV_OUTLIER_SIGMA)
     if far.size:
         lines = fmt.line_list([sol.velocities.line[sol.data.rv_rows[j]] for j in far], most=len(far))
+        advice = ("most likely because of the held node the velocities reject (above), not "
+                  "faulty velocities" if _held_node_rejected(sol) else
+                  "they were kept in the fit: flag them in the log if they are faulty")
         out.append(f"{far.size} radial velocit{'y lies' if far.size == 1 else 'ies lie'} beyond "
-                   f"{_RV_OUTLIER_SIGMA:g} sigma of the combined orbit ({lines}); "
-                   f"they were kept in the fit: flag them in the log if they are faulty.")
+                   f"{_RV_OUTLIER_SIGMA:g} sigma of the combined orbit ({lines}); {advice}.")
     if not sol.double_lined:
         out.append("Only one component's velocities: no orbital parallax; the component "
                    "masses need a trigonometric parallax.")
