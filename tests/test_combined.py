@@ -116,6 +116,21 @@ def test_node_recovered_and_wrong_one_loses(synthetic, node, omega):
     assert sol.dof == 2 * 40 + 60 - 10
 
 
+def test_a_faulty_velocity_is_named_for_flagging(synthetic):
+    # One velocity 30 sigma off (line 8 of the log): named by its line, with the advice
+    # to flag it if faulty, since nothing held explains it.
+    solution, folder = synthetic
+    path = _write_velocities(folder / "rv_faulty.csv", 11, 300.0, 40.0)
+    lines = path.read_text().splitlines()
+    epoch, comp, rv, sigma = lines[7].split(",")
+    lines[7] = ",".join([epoch, comp, f"{float(rv) + 30 * float(sigma):.3f}", sigma])
+    path.write_text("\n".join(lines) + "\n")
+    sol = fit_combined(solution, read_velocities(path))
+    far = [w for w in sol.warnings if "beyond 4 sigma of the combined orbit" in w]
+    assert len(far) == 1 and "(line 8)" in far[0]
+    assert far[0].endswith("flag them in the log if they are faulty.")
+
+
 def test_masses_and_orbital_parallax_within_intervals(synthetic):
     solution, folder = synthetic
     vs = read_velocities(_write_velocities(folder / "rv_masses.csv", 12, 300.0, 40.0))
