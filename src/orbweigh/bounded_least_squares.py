@@ -164,8 +164,8 @@ def _levenberg_marquardt(f, jac, u):
     MINPACK's lmder), each damped step from the normal equations
     (J^T J + lam D^2) step = -J^T r; the damping follows the ratio of actual to predicted
     decrease (H. B. Nielsen 1999, IMM-REP-1999-05; memory). J. J. More, "The
-    Levenberg-Marquardt algorithm: implementation and theory", Lecture Notes in
-    Mathematics 630 (1978) 105.
+    Levenberg-Marquardt algorithm: implementation and theory", in Numerical Analysis,
+    ed. G. A. Watson (Springer, 1978), pp. 105-116.
     """
     r = f(u)
     cost = float(r @ r)

@@ -46,8 +46,8 @@ import numpy as np
 from . import formatting as fmt
 from .bounded_least_squares import fit_bounded
 from .elements import (ELEMENT_KEYS, CampbellElements, centre_angles, convention_held,
-                       held_angles_as_reported, held_elements, phase_in_periastron,
-                       thiele_innes_from_campbell, turn_node)
+                       held_angles_as_reported, held_elements, nearest_passage,
+                       phase_in_periastron, thiele_innes_from_campbell, turn_node)
 from .errors import InputError
 from .fitting import held_constraints
 from .masses import format_mass_blocks, summarise, total_mass_msun
@@ -413,7 +413,7 @@ def _node_warning(sol):
                 f"fits {which} by only delta chi2 = {abs(delta):.1f} (< "
                 f"{NODE_DECISIVE_DELTA_CHI2:g}); the velocities do not constrain the orbit's "
                 "phase well enough.")
-    if delta < 0:
+    if _held_node_rejected(sol):
         return (f"The velocities prefer the other node: Omega = {other['Omega']:.2f} deg, "
                 f"omega = {other['omega']:.2f} deg (the held {' and '.join(sol.held_angles)} "
                 f"+ 180 deg) fits better by "
@@ -716,7 +716,7 @@ def sample_combined(sol, walkers=40, steps=2000, seed=0, progress=False):
                               seed=seed, progress=progress)
     v = post.values(sample.draws())
     if "T" not in sol.held:
-        v["T"] = post.t_ref + np.mod(v["T"] - post.t_ref + 0.5 * v["P"], v["P"]) - 0.5 * v["P"]
+        v["T"] = nearest_passage(v["T"], v["P"], post.t_ref)
     v["Omega"], v["omega"] = centre_angles(v["Omega"], v["omega"], sol.values["Omega"],
                                            sol.values["omega"], 360.0)
     v.update({k: np.full(len(v["T"]), x) for k, x in sol.held.items()})  # exactly as held

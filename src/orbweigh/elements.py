@@ -38,6 +38,7 @@ __all__ = [
     "held_elements",
     "phase_in_periastron",
     "turn_node",
+    "nearest_passage",
 ]
 
 #: Keys of the elements in result documents, in the order used everywhere.
@@ -235,3 +236,8 @@ def turn_node(node_deg, omega_deg, t_peri, period, shift_deg, phase):
     if phase:
         return node, np.asarray(omega_deg, float), t_peri + period * (shift_deg / 360.0)
     return node, np.asarray(omega_deg, float) - shift_deg, t_peri
+
+
+def nearest_passage(t_peri, period, t_ref):
+    """T moved by whole periods (the same orbit) into [t_ref - P/2, t_ref + P/2)."""
+    return t_ref + np.mod(t_peri - t_ref + 0.5 * period, period) - 0.5 * period

@@ -119,6 +119,12 @@ class FitOptions:
         omega = 0 by convention (``elements.held_elements``)."""
         return held_elements(self.fixed)
 
+    @property
+    def n_free(self):
+        """Elements fitted: seven less the held ones (the degrees of freedom of a fit of
+        n points are 2 n - n_free)."""
+        return 7 - len(self.held)
+
 
 #: Ranges of held values: (low, high, high included, in words); P and a exclude 0.
 #: Omega may be given on either node branch, [0, 360): the orbit is reported with Omega in
@@ -263,7 +269,7 @@ def _fit(data, options):
     return build_solution(
         data=data, rows=usable, points=points, best=final[0],
         alternatives=_distinct_alternatives(
-            final, options, n_dof=2 * clean.t.size - 7 + len(options.held)),
+            final, options, n_dof=2 * clean.t.size - options.n_free),
         flipped=flipped, outlier=outlier, options=options, period_range=period_range,
         n_trials=n_trials, fit_seconds=time.perf_counter() - started,
         sigma_factor=factor, technique_scales=scales)
@@ -355,7 +361,7 @@ def _suspects_explained(points, found, suspects, options):
     best, flipped = _correct_flips(points, found, options.loss,
                                    np.zeros(points.t.size, bool))
     chi2_pt = _point_chi2(points, best.params, flipped)
-    red = max(best.chi2 / max(2 * points.t.size - 7 + len(options.held), 1), 1.0)
+    red = max(best.chi2 / max(2 * points.t.size - options.n_free, 1), 1.0)
     return all(flipped[k] or chi2_pt[k] / red <= options.outlier_sigma ** 2 for k in suspects)
 
 
@@ -460,13 +466,13 @@ def _set_aside_outliers(points, best, flipped, options, max_rounds=10):
     for _ in range(max_rounds):
         chi2_pt = _point_chi2(points, best.params, flipped)
         n_in = int((~outlier).sum())
-        red = chi2_pt[~outlier].sum() / max(2 * n_in - 7 + len(options.held), 1)
+        red = chi2_pt[~outlier].sum() / max(2 * n_in - options.n_free, 1)
         dist = np.sqrt(chi2_pt / max(red, 1.0))
         new = dist > options.outlier_sigma
         if new.sum() > max_out:                      # keep only the worst ones
             new = np.zeros(n, bool)
             new[np.argsort(dist)[::-1][:max_out]] = True
-        if np.array_equal(new, outlier) or 2 * int((~new).sum()) <= 7 - len(options.held):
+        if np.array_equal(new, outlier) or 2 * int((~new).sum()) <= options.n_free:
             break
         outlier = new
         best = points.subset(~outlier, flipped).refine(best.params, options.loss)
@@ -484,7 +490,7 @@ def _scale_by_technique(points, technique, best, flipped, options):
 
     Returns (best, outlier mask, factor of each point, the document block).
     """
-    n_free = 7 - len(options.held)
+    n_free = options.n_free
     factors, outlier = {}, np.zeros(points.t.size, bool)
     factor = np.ones(points.t.size)
     converged, change = False, np.inf

@@ -11,7 +11,7 @@ import threading
 import numpy as np
 
 from .elements import wrap_degrees
-from .ephemeris import xy_to_theta_rho
+from .ephemeris import orbit_xy, xy_to_theta_rho
 from .kepler import eccentric_anomaly, mean_anomaly
 
 __all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_jacobian",
@@ -55,7 +55,6 @@ def predict_theta_rho(params, t):
     """Predicted theta [deg] and rho [arcsec] at epochs t for a parameter vector."""
     P, T, e, A, B, F, G = params
     if np.ndim(P) or np.ndim(T) or np.ndim(e):     # arrays of parameters: no memory
-        from .ephemeris import orbit_xy
         return xy_to_theta_rho(*orbit_xy(t, P, T, e, A, B, F, G))
     _, _, X, Y = _orbit_basis(t, P, T, e)
     return xy_to_theta_rho(A * X + F * Y, B * X + G * Y)

@@ -41,8 +41,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .elements import (campbell_from_thiele_innes, normalise_node, phase_in_periastron,
-                       thiele_innes_from_campbell)
+from .elements import (campbell_from_thiele_innes, nearest_passage, normalise_node,
+                       phase_in_periastron, thiele_innes_from_campbell)
 from .errors import InputError
 
 __all__ = ["Positions", "MarginalPosterior", "DirectPosterior", "ALL_NAMES",
@@ -193,7 +193,7 @@ def _reported(period, t_peri, e, a, i_rad, node, omega, t_ref, phase=False):
         shift = np.pi * np.floor(node / np.pi)
         node, t_peri = node - shift, t_peri + period * shift / (2.0 * np.pi)
     node, omega = normalise_node(node, omega)
-    t_peri = t_ref + np.mod(t_peri - t_ref + 0.5 * period, period) - 0.5 * period
+    t_peri = nearest_passage(t_peri, period, t_ref)
     return np.column_stack([period, t_peri, e, a, np.degrees(i_rad), np.degrees(node),
                             np.degrees(omega)])
 

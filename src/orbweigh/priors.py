@@ -27,7 +27,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .elements import wrap_degrees
+from .elements import nearest_passage, wrap_degrees
 from .errors import InputError
 
 __all__ = ["E_MAX", "PRIOR_NAMES", "ElementPriors", "check_gaussian_priors", "held_words"]
@@ -144,8 +144,7 @@ class ElementPriors:
             out = out + _gauss(period, *g["P"]) + np.log(period)
         if "T" in g:
             mean, sigma = g["T"]
-            nearest = mean + np.remainder(t_peri - mean + 0.5 * period, period) - 0.5 * period
-            out = out + _gauss(nearest, mean, sigma)
+            out = out + _gauss(nearest_passage(t_peri, period, mean), mean, sigma)
         elif "T" not in self.fixed:
             out = out - np.log(period)
         if "e" in g:

@@ -442,9 +442,7 @@ def read_draws(path, with_parallax=False):
         draws, parallax, meta = _parse_draws(path)  # let the reader give its clear message
     else:
         if key not in _PARSED_DRAWS:
-            _PARSED_DRAWS[key] = _parse_draws(path)
-            while len(_PARSED_DRAWS) > 2:
-                _PARSED_DRAWS.pop(next(iter(_PARSED_DRAWS)))
+            _keep_parsed(key, _parse_draws(path))
         draws, parallax, meta = _PARSED_DRAWS[key]
     if not with_parallax:
         return draws.copy(), dict(meta)
@@ -457,6 +455,12 @@ def read_draws(path, with_parallax=False):
 
 #: Draws parsed, by content key (path, size, modification time): two at most.
 _PARSED_DRAWS = {}
+
+
+def _keep_parsed(key, parsed):
+    _PARSED_DRAWS[key] = parsed
+    while len(_PARSED_DRAWS) > 2:
+        _PARSED_DRAWS.pop(next(iter(_PARSED_DRAWS)))
 
 
 def _content_key(path):
@@ -477,9 +481,8 @@ def remember_draws(path, draws, parallax, meta):
     """
     key = _content_key(Path(path))
     if key is not None:
-        _PARSED_DRAWS[key] = (np.array(draws, float),
-                              None if parallax is None else np.array(parallax, float),
-                              dict(meta))
+        _keep_parsed(key, (np.array(draws, float),
+                           None if parallax is None else np.array(parallax, float), dict(meta)))
 
 
 def _parse_draws(path):

@@ -574,7 +574,7 @@ def _centred(draws, best, held):
     Where a node's half turn moves T (``elements.phase_in_periastron``: a circular orbit,
     omega held), T moves with it and is taken back to the period centred on the best T.
     """
-    from .elements import phase_in_periastron, turn_node, wrap_degrees
+    from .elements import nearest_passage, phase_in_periastron, turn_node, wrap_degrees
 
     out = draws.copy()
     shift = 180.0 * np.round((out[:, 5] - best[5]) / 180.0)
@@ -583,8 +583,7 @@ def _centred(draws, best, held):
                                          phase)
     out[:, 6] = best[6] + wrap_degrees(omega - best[6])
     if phase:
-        period = out[:, 0]
-        t_peri = best[1] + np.remainder(t_peri - best[1] + 0.5 * period, period) - 0.5 * period
+        t_peri = nearest_passage(t_peri, out[:, 0], best[1])
     out[:, 1] = t_peri
     return out
 

@@ -252,7 +252,7 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     params = best.params
     n_fit = int((~outlier).sum())
     held = options.held
-    dof = max(2 * n_fit - 7 + len(held), 1)
+    dof = max(2 * n_fit - options.n_free, 1)
     reduced = best.chi2 / dof
     scale = max(reduced, 1.0)
     fit_cov = None if best.covariance is None else best.covariance * scale
@@ -283,7 +283,7 @@ def build_solution(data, rows, points, best, alternatives, flipped, outlier, opt
     by_technique = technique_statistics(
         data.technique[fitted], d_theta[fitted] / (as_fitted * data.sigma_theta_deg[fitted]),
         d_rho[fitted] / (as_fitted * data.sigma_rho_arcsec[fitted]),
-        d_theta[fitted], d_rho[fitted], 7 - len(held))
+        d_theta[fitted], d_rho[fitted], options.n_free)
     stats = {
         "n_input": int(data.n_lines or len(data)), "n_used": n_fit,
         "n_rejected": len(data.rejected), "n_excluded": int((~data.usable).sum()),

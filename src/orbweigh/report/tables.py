@@ -9,7 +9,7 @@ from .. import formatting as fmt
 from ..elements import ELEMENT_KEYS
 from ..formatting import ROUNDING_RULE, decimals_for
 from ..reductions import epoch_unit
-from ..result import epoch_scale_of
+from ..result import epoch_scale_of, t_is_node_passage
 
 __all__ = ["ROUNDING_RULE", "ELEMENT_NAMES", "element_name", "THIELE_INNES_KEYS", "MASS_KEYS",
            "RESIDUAL_COLUMNS", "RESIDUAL_DECIMALS", "decimals_for",
@@ -25,16 +25,6 @@ ELEMENT_NAMES = {"P": ("Period", r"$P$", "P"), "T": ("Epoch of periastron", r"$T
                            "\N{GREEK CAPITAL LETTER OMEGA}"),
                  "omega": ("Argument of periastron", r"$\omega$", "\N{GREEK SMALL LETTER OMEGA}")}
 THIELE_INNES_KEYS = ("A", "B", "F", "G")
-
-
-def element_name(key, elements):
-    """The name of an element of an elements block: T of a circular orbit is the epoch of
-    passage through the node (``result.t_is_node_passage``)."""
-    from ..result import t_is_node_passage
-
-    if key == "T" and t_is_node_passage(elements):
-        return "Epoch of node passage"
-    return ELEMENT_NAMES[key][0]
 MASS_KEYS = ("total", "primary", "secondary")
 
 #: Residual columns: (key, unit or None; 'epoch' takes the document's epoch unit).
@@ -141,6 +131,14 @@ def parallax_entries(doc):
         entries["combined"] = plx["combined"]
     return [(kind, entries[kind], bool(mass) and kind == used)
             for kind in sorted(entries, key=lambda k: k != used)]
+
+
+def element_name(key, elements):
+    """The name of an element of an elements block: T of a circular orbit is the epoch of
+    passage through the node (``result.t_is_node_passage``)."""
+    if key == "T" and t_is_node_passage(elements):
+        return "Epoch of node passage"
+    return ELEMENT_NAMES[key][0]
 
 
 def _parallax_rows(doc):
