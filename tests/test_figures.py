@@ -227,6 +227,20 @@ def test_corner_plot_t_offset_titles_and_no_colliding_ticks(built):
     assert not _overlaps(titles)
 
 
+def test_corner_plot_leaves_out_held_elements(built):
+    # e and omega held at 0 (a circular orbit, --fix e=0): their draws are one value,
+    # which has no panel (corner itself refuses a column without spread); the five
+    # others are drawn, each titled as before.
+    doc, draws = built
+    held = np.array(draws, float)
+    held[:, 2] = 0.0
+    held[:, 6] = 0.0
+    fig = figures.plot_corner_elements(doc, held)
+    grid = np.array(fig.axes).reshape(5, 5)
+    assert [grid[k, k].get_title().split("\n")[0] for k in range(5)] == [
+        "$P$ [yr]", "$T$ [Besselian year]", "$a$ [arcsec]", "$i$ [deg]", r"$\Omega$ [deg]"]
+
+
 # ---------------------------------------------------------------------- radial velocities
 def _rv_doc(doc, seed=7):
     """The fixture's orbit with velocities of both components from the independent 3-D

@@ -488,3 +488,30 @@ def test_html_dynamical_parallax_in_words(tmp_path):
     assert "<details><summary>Iteration at the best (P, a)" in html
     for key in ("relation_scatter", "magnitude_errors", "last_change_mas", "at_best"):
         assert key not in html
+
+
+def test_report_of_a_sampled_circular_orbit(tmp_path, capsys):
+    # fit --fix e=0 --sample holds e and omega in every draw; the report must still draw
+    # its corner plot (of the five free elements) and name T the epoch of node passage.
+    from synthetic import make_log, write_log_csv
+
+    truth = dict(P=12.4, T=2016.2, e=0.0, a=0.41, i=71.0, Omega=33.0, omega=0.0)
+    epochs = np.sort(np.random.default_rng(21).uniform(2005.0, 2026.0, 28))
+    log = write_log_csv(tmp_path / "circ.csv", make_log(truth, epochs, 0.8, 0.004, seed=21))
+    assert main(["fit", str(log), "--fix", "e=0", "--sample", "--steps", "300", "--quiet",
+                 "--out", str(tmp_path / "fit")]) == 0
+    assert main(["report", str(tmp_path / "fit" / "result.json"),
+                 "--out", str(tmp_path / "rep")]) == 0
+    capsys.readouterr()
+    html = (tmp_path / "rep" / "report.html").read_text()
+    assert "Epoch of node passage" in html
+    assert (tmp_path / "rep" / "corner_elements.png").stat().st_size > 0
+    # the posterior table names T as the elements table does and shows no interval for
+    # the held e and omega
+    table = html.split("id='posterior-table'")[1].split("</table>")[0]
+    rows = re.findall(r"<tr>(.*?)</tr>", table, re.S)
+    cells = [re.findall(r"<td[^>]*>(.*?)</td>", r) for r in rows]
+    named = {c[0]: c for c in cells if c}
+    assert "Epoch of node passage" in named and "Epoch of periastron" not in named
+    for name in ("Eccentricity", "Argument of periastron"):
+        assert named[name][3] == "held fixed" and named[name][4] == ""

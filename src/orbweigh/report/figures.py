@@ -575,8 +575,17 @@ def _inner_ticks(axis, limits, room=0.12):
     axis.set_major_locator(FixedLocator(ticks))
 
 
+def _kept(seq, keep):
+    return None if seq is None else [x for x, k in zip(seq, keep) if k]
+
+
 def _corner(data, labels, titles, truths, fig):
+    """A corner plot of the columns that vary: a held element's draws are all one value
+    (no panel to draw; the element tables state it as held)."""
     import corner
+    varies = np.ptp(data, axis=0) > 0
+    data = data[:, varies]
+    labels, titles, truths = (_kept(seq, varies) for seq in (labels, titles, truths))
     n = data.shape[1]
     with style.figure_style():
         if fig is None:

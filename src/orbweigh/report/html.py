@@ -203,7 +203,15 @@ _PARAMETER_NAMES = {**{k: (v[0], v[2]) for k, v in tb.ELEMENT_NAMES.items()},
 
 def _interval_row(name, symbol, entry, unit):
     median, low, high, low95, high95 = tb.format_interval(entry)
+    if entry.get("fixed"):                      # not sampled: no interval to show
+        return (name, symbol, _signed(median), "held fixed", "", unit)
     return (name, symbol, _signed(median), _range(low, high), _range(low95, high95), unit)
+
+
+def _parameter_name(key, doc):
+    """(name, symbol) of a posterior row; T of a circular orbit is the node passage."""
+    name, symbol = _PARAMETER_NAMES.get(key, (key, key))
+    return (tb.element_name(key, doc["elements"]) if key in tb.ELEMENT_NAMES else name), symbol
 
 
 def _posterior_unit(key, entry, kind):
@@ -238,7 +246,7 @@ def _posterior_section(doc, figures):
     if found is None:
         return "\n".join(["<h2 id='posterior'>Posterior</h2>", *figures]) if figures else ""
     kind, entries, block = found
-    rows = [_interval_row(*_PARAMETER_NAMES.get(k, (k, k)), e, _posterior_unit(k, e, kind))
+    rows = [_interval_row(*_parameter_name(k, doc), e, _posterior_unit(k, e, kind))
             for k, e in entries.items()]
     what = ("joint posterior of positions and radial velocities" if kind == "joint" else
             "posterior of the elements")
