@@ -11,6 +11,7 @@ which takes the bounds directly.
 """
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -36,38 +37,49 @@ class _BudgetSpent(Exception):
 
 
 class _Transform:
-    """External values of the varied parameters from internal, unbounded ones."""
+    """External values of the varied parameters from internal, unbounded ones.
+
+    The three kinds of limit are held as index arrays, and an empty kind is skipped: the
+    transform runs at every evaluation, where numpy's cost is per call."""
 
     def __init__(self, lower, upper):
         self.lower, self.upper = lower, upper
-        self.both = np.isfinite(lower) & np.isfinite(upper)
-        self.low_only = np.isfinite(lower) & ~np.isfinite(upper)
-        self.high_only = ~np.isfinite(lower) & np.isfinite(upper)
+        finite_lo, finite_hi = np.isfinite(lower), np.isfinite(upper)
+        self.both = np.flatnonzero(finite_lo & finite_hi)
+        self.low_only = np.flatnonzero(finite_lo & ~finite_hi)
+        self.high_only = np.flatnonzero(~finite_lo & finite_hi)
+        self.span = upper[self.both] - lower[self.both]
 
     def to_internal(self, x):
         lo, hi, u = self.lower, self.upper, np.array(x, float)
+        b, low, high = self.both, self.low_only, self.high_only
         with np.errstate(invalid="ignore", divide="ignore"):
-            u = np.where(self.both, np.arcsin(2.0 * (x - lo) / (hi - lo) - 1.0), u)
-            u = np.where(self.low_only, np.sqrt((x - lo + 1.0) ** 2 - 1.0), u)
-            u = np.where(self.high_only, np.sqrt((hi - x + 1.0) ** 2 - 1.0), u)
+            u[b] = np.arcsin(2.0 * (x[b] - lo[b]) / self.span - 1.0)
+            u[low] = np.sqrt((x[low] - lo[low] + 1.0) ** 2 - 1.0)
+            u[high] = np.sqrt((hi[high] - x[high] + 1.0) ** 2 - 1.0)
         return np.where(np.abs(u) < _TINY, 0.0, u)
 
     def to_external(self, u):
-        # Index arrays, not np.where over every case: called at every evaluation.
         lo, hi, x = self.lower, self.upper, np.array(u, float)
         b, low, high = self.both, self.low_only, self.high_only
-        x[b] = lo[b] + (np.sin(u[b]) + 1.0) * (hi[b] - lo[b]) / 2.0
-        x[low] = lo[low] - 1.0 + np.sqrt(u[low] * u[low] + 1.0)
-        x[high] = hi[high] + 1.0 - np.sqrt(u[high] * u[high] + 1.0)
-        return np.clip(x, lo, hi)
+        if b.size:
+            x[b] = lo[b] + (np.sin(u[b]) + 1.0) * self.span / 2.0
+        if low.size:
+            x[low] = lo[low] - 1.0 + np.sqrt(u[low] * u[low] + 1.0)
+        if high.size:
+            x[high] = hi[high] + 1.0 - np.sqrt(u[high] * u[high] + 1.0)
+        return np.minimum(np.maximum(x, lo), hi)          # rounding at a limit
 
     def gradient(self, u):
         """dx/du of each varied parameter."""
-        g = np.ones_like(u, dtype=float)
+        g = np.ones(u.shape)
         b, low, high = self.both, self.low_only, self.high_only
-        g[b] = np.cos(u[b]) * (self.upper[b] - self.lower[b]) / 2.0
-        g[low] = u[low] / np.sqrt(u[low] * u[low] + 1.0)
-        g[high] = -u[high] / np.sqrt(u[high] * u[high] + 1.0)
+        if b.size:
+            g[b] = np.cos(u[b]) * self.span / 2.0
+        if low.size:
+            g[low] = u[low] / np.sqrt(u[low] * u[low] + 1.0)
+        if high.size:
+            g[high] = -u[high] / np.sqrt(u[high] * u[high] + 1.0)
         return g
 
 
@@ -107,12 +119,13 @@ class _Counted:
 
     def __init__(self, residuals, jacobian, start, vary, budget, external):
         self.residuals, self.jac = residuals, jacobian
-        self.start, self.vary, self.budget, self.external = start, vary, budget, external
+        self.start, self.index, self.budget, self.external = (start, np.flatnonzero(vary),
+                                                              budget, external)
         self.calls, self.last = 0, start
 
     def full(self, v):
         x = self.start.copy()
-        x[self.vary] = self.external(v)
+        x[self.index] = self.external(v)
         return x
 
     def __call__(self, v):
@@ -127,10 +140,13 @@ def _linear(residuals, jacobian, start, lower, upper, vary, loss, budget):
     transform = _Transform(lower[vary], upper[vary])
     f = _Counted(residuals, jacobian, start, vary, budget, transform.to_external)
 
+    all_vary = bool(vary.all())
+
     def jac(u, r):
         if jacobian is None:
             return _forward_differences(f, u, r)
-        return np.asarray(jacobian(f.full(u)), float)[:, vary] * transform.gradient(u)
+        J = np.asarray(jacobian(f.full(u)), float)
+        return (J if all_vary else J[:, vary]) * transform.gradient(u)
 
     try:
         u, r, converged = _levenberg_marquardt(f, jac, transform.to_internal(start[vary]))
@@ -174,18 +190,19 @@ def _levenberg_marquardt(f, jac, u):
         if cost == 0.0:
             return u, r, True
         J = jac(u, r)
-        norms = np.linalg.norm(J, axis=0)
+        norms = np.sqrt(np.add.reduce(J * J, axis=0))       # column norms
         scale = norms if scale is None else np.maximum(scale, norms)
         scale = np.where(scale > 0.0, scale, 1.0)
         curvature, gradient = J.T @ J, J.T @ r
         while True:
             step = _damped_step(curvature, gradient, damping * scale**2)
             predicted = float(-2.0 * gradient @ step - step @ curvature @ step)
-            tiny_step = (np.linalg.norm(scale * step)
-                         <= _XTOL * (np.linalg.norm(scale * u) + _XTOL))
+            tiny_step = _norm(scale * step) <= _XTOL * (_norm(scale * u) + _XTOL)
             trial = u + step
             r_trial = f(trial)
-            cost_trial = float(r_trial @ r_trial) if np.all(np.isfinite(r_trial)) else np.inf
+            cost_trial = float(r_trial @ r_trial)
+            if not math.isfinite(cost_trial):     # a residual not finite (or overflowing)
+                cost_trial = np.inf
             actual = cost - cost_trial
             if predicted > 0.0 and actual > 0.0:
                 ratio = actual / predicted
@@ -202,6 +219,10 @@ def _levenberg_marquardt(f, jac, u):
             growth *= 2.0
             if damping > _MAX_DAMPING:
                 return u, r, False
+
+
+def _norm(v):
+    return math.sqrt(v @ v)
 
 
 def _damped_step(curvature, gradient, diagonal):

@@ -80,10 +80,10 @@ def _starter(m, ecc):
     """
     if np.ndim(ecc) == 0 and ecc == 0.0:
         return m
+    if np.ndim(ecc) == 0 and ecc > 1e-200:     # 6 M / e is finite: no error state to set
+        return np.minimum(m + 0.85 * ecc, np.cbrt(6.0 * m / ecc))
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        cubic = np.cbrt(6.0 * m / ecc)
-        if np.ndim(ecc):
-            cubic = np.where(ecc > 0.0, cubic, np.inf)
+        cubic = np.where(ecc > 0.0, np.cbrt(6.0 * m / ecc), np.inf)
     return np.minimum(m + 0.85 * ecc, cubic)
 
 
