@@ -184,3 +184,17 @@ def test_mean_anomaly_quarter_period():
     assert np.all((M >= 0) & (M < 2 * math.pi))
     # compared on the circle: T + 3P may round to just below a whole turn
     assert np.allclose(np.angle(np.exp(1j * (M - expected))), 0.0, atol=1e-12)
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(mean_anomalies, min_size=1, max_size=20), eccentricities)
+def test_solver_sine_and_cosine_are_those_of_its_anomaly(M, e):
+    # solve_kepler returns sin E and cos E from its last step (first-order rotation):
+    # they must agree with numpy's sin and cos of the returned E to rounding, that of E
+    # itself included (E of a large M carries the rounding of the turns added back).
+    from orbweigh.kepler import solve_kepler
+    E, sin_e, cos_e = solve_kepler(np.array(M), e)
+    rounding = 1e-14 + 4.0 * np.spacing(np.abs(E))
+    assert np.all(np.abs(sin_e - np.sin(E)) < rounding)
+    assert np.all(np.abs(cos_e - np.cos(E)) < rounding)
+    assert np.max(np.abs(residual(E, e, np.array(M)))) < RESIDUAL_TOL

@@ -12,9 +12,9 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["eccentric_anomaly", "true_anomaly", "mean_anomaly"]
+__all__ = ["eccentric_anomaly", "solve_kepler", "true_anomaly", "mean_anomaly"]
 
-_TOLERANCE = 1e-14        # on the last step [rad]; the error after it is ~step^4
+_TOLERANCE = 1e-14        # on the Newton step f / f' at the returned E [rad]
 _MAX_ITERATIONS = 100
 
 
@@ -43,6 +43,16 @@ def eccentric_anomaly(mean_anom, e):
     |E - e sin E - M| < 1e-12 rad for M taken modulo 2 pi (the reduction of a huge M to
     one turn is itself only as exact as the floating-point M).
     """
+    return solve_kepler(mean_anom, e)[0]
+
+
+def solve_kepler(mean_anom, e):
+    """(E, sin E, cos E): ``eccentric_anomaly`` with the sine and cosine it ends with.
+
+    Converged when the Newton step f / f' at E is below _TOLERANCE everywhere. That test
+    needs sin E and cos E, which are returned: the caller saves two transcendental calls,
+    and the test costs no extra solver step.
+    """
     m_in = np.asarray(mean_anom, float)
     if np.ndim(e):
         m_in, ecc = np.broadcast_arrays(m_in, np.asarray(e, float))
@@ -58,17 +68,26 @@ def eccentric_anomaly(mean_anom, e):
     lo, hi = m, np.minimum(m + ecc, np.pi)       # f(lo) <= 0 <= f(hi)
     E = np.minimum(np.maximum(_starter(m, ecc), lo), hi)
     for _ in range(_MAX_ITERATIONS):
-        e_sin, e_cos = ecc * np.sin(E), ecc * np.cos(E)     # f'' and f'''
+        sin_e, cos_e = np.sin(E), np.cos(E)
+        e_sin, e_cos = ecc * sin_e, ecc * cos_e             # f'' and f'''
         f = E - e_sin - m
         f1 = 1.0 - e_cos
+        if not np.any(np.abs(f) > _TOLERANCE * f1):         # (a NaN stops too)
+            # A last Newton step, exact to rounding from within the tolerance (also for
+            # a tiny E, where the tolerance is not relative); sin and cos follow it to
+            # first order, the second being below 1e-28.
+            step = f / f1
+            E = np.minimum(np.maximum(E - step, lo), hi)
+            sin_e, cos_e = sin_e - step * cos_e, cos_e + step * sin_e
+            break
         half = 0.5 * e_sin
         step = f / f1                                       # Newton,
         step = f / (f1 - step * half)                       # Halley,
         step = f / (f1 - step * (half - step * e_cos / 6.0))    # quartic
         E = np.minimum(np.maximum(E - step, lo), hi)
-        if not np.abs(step).max(initial=0.0) > _TOLERANCE:
-            break
-    return np.copysign(E, m_red) + 2.0 * np.pi * turns
+    else:
+        sin_e, cos_e = np.sin(E), np.cos(E)
+    return np.copysign(E, m_red) + 2.0 * np.pi * turns, np.copysign(sin_e, m_red), cos_e
 
 
 def _starter(m, ecc):

@@ -13,7 +13,7 @@ import numpy as np
 
 from .elements import wrap_degrees
 from .ephemeris import orbit_xy, xy_to_theta_rho
-from .kepler import eccentric_anomaly, mean_anomaly
+from .kepler import mean_anomaly, solve_kepler
 
 __all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_jacobian",
            "wrap_degrees"]
@@ -37,8 +37,8 @@ class _LastAnomaly(threading.local):
     def solve(self, t, P, T, e):
         key = (float(P), float(T), float(e))
         if self.t is not t or self.key != key:
-            E = eccentric_anomaly(mean_anomaly(t, P, T), e)
-            self.sin_cos = np.sin(E), np.cos(E)
+            _, sin_e, cos_e = solve_kepler(mean_anomaly(t, P, T), e)
+            self.sin_cos = sin_e, cos_e
             self.t, self.key = t, key
         return self.sin_cos
 
