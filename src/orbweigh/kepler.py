@@ -56,7 +56,7 @@ def solve_kepler(mean_anom, e):
     m_in = np.asarray(mean_anom, float)
     if np.ndim(e):
         m_in, ecc = np.broadcast_arrays(m_in, np.asarray(e, float))
-        bad = np.any((ecc < 0) | (ecc >= 1))
+        bad = ((ecc < 0) | (ecc >= 1)).any()
     else:                               # one e for all M (the fit's case): no array of e
         ecc = float(e)
         bad = not 0.0 <= ecc < 1.0
@@ -72,7 +72,8 @@ def solve_kepler(mean_anom, e):
         e_sin, e_cos = ecc * sin_e, ecc * cos_e             # f'' and f'''
         f = E - e_sin - m
         f1 = 1.0 - e_cos
-        if not np.any(np.abs(f) > _TOLERANCE * f1):         # (a NaN stops too)
+        # The array's own any(), not np.any: that wrapper costs as much as the test.
+        if not (np.abs(f) > _TOLERANCE * f1).any():         # (a NaN stops too)
             # A last Newton step, exact to rounding from within the tolerance (also for
             # a tiny E, where the tolerance is not relative); sin and cos follow it to
             # first order, the second being below 1e-28.

@@ -162,13 +162,12 @@ def _box_levenberg_marquardt(residuals, q, lo, hi):
                 + eye[None] * blocked[:, None, :]
             step = _damped_step(lhs, np.where(keep[:, :, None], grad, 0.0),
                                 damping[rows, None] * scale)
-        trial = np.clip(qa + step, lo[rows], hi[rows])
+        trial = np.minimum(np.maximum(qa + step, lo[rows]), hi[rows])
         r_trial = residuals(trial)
         cost_trial = np.einsum("ij,ij->i", r_trial, r_trial)
         better = cost_trial < cost[rows]
         small = ((cost[rows] - cost_trial <= _POLISH_TOLERANCE * cost[rows])
-                 | np.all(np.abs(trial - qa) <= _POLISH_TOLERANCE * (1e-8 + np.abs(qa)),
-                          axis=1))
+                 | (np.abs(trial - qa) <= _POLISH_TOLERANCE * (1e-8 + np.abs(qa))).all(axis=1))
         took = rows[better]
         q[took], r[took], cost[took] = trial[better], r_trial[better], cost_trial[better]
         damping[rows] = np.where(better, damping[rows] / 10.0, damping[rows] * 10.0)
