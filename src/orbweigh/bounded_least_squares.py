@@ -121,7 +121,7 @@ class _Counted:
         self.residuals, self.jac = residuals, jacobian
         self.start, self.index, self.budget, self.external = (start, np.flatnonzero(vary),
                                                               budget, external)
-        self.calls, self.last = 0, start
+        self.calls, self.last, self.last_internal = 0, start, None
 
     def full(self, v):
         x = self.start.copy()
@@ -132,7 +132,7 @@ class _Counted:
         self.calls += 1
         if self.calls > self.budget:
             raise _BudgetSpent
-        self.last = self.full(v)
+        self.last, self.last_internal = self.full(v), v
         return np.asarray(self.residuals(self.last), float)
 
 
@@ -145,7 +145,10 @@ def _linear(residuals, jacobian, start, lower, upper, vary, loss, budget):
     def jac(u, r):
         if jacobian is None:
             return _forward_differences(f, u, r)
-        J = np.asarray(jacobian(f.full(u)), float)
+        # Levenberg-Marquardt takes the Jacobian where it last evaluated: that point's
+        # parameters are not transformed again.
+        x = f.last if u is f.last_internal else f.full(u)
+        J = np.asarray(jacobian(x), float)
         return (J if all_vary else J[:, vary]) * transform.gradient(u)
 
     try:
