@@ -126,27 +126,37 @@ _POLISH_TOLERANCE = 1e-4
 def _box_levenberg_marquardt(residuals, q, lo, hi):
     """Levenberg-Marquardt for many small problems at once, steps clipped to a box.
 
-    ``residuals(points)`` evaluates one residual vector per row of ``points``. Marquardt's scaling (the diagonal of J^T J) damps each
-    step; the Jacobian is by forward differences (step sqrt(eps) max(1, |q|), turned
-    inward at an upper limit). Numerical Recipes, 3rd ed., section 15.5.2 (memory).
+    ``residuals(points)`` evaluates one residual vector per row of ``points``. Marquardt's
+    scaling (the diagonal of J^T J) damps each step; the Jacobian is by forward
+    differences (step sqrt(eps) max(1, |q|), turned inward at an upper limit). Numerical
+    Recipes, 3rd ed., section 15.5.2 (memory). Each step makes one call of ``residuals``:
+    a trial point comes with its own difference points, so an accepted trial has its
+    Jacobian ready and a rejected one leaves the last Jacobian in place (numpy's cost is
+    per call, hardly per row).
     """
     n_cells, n_free = q.shape
+    eye = np.eye(n_free)
+
+    def evaluate(points, upper):
+        """Residuals at the points and at their difference points, with the steps."""
+        h = np.sqrt(np.finfo(float).eps) * np.maximum(1.0, np.abs(points))
+        h = np.where(points + h > upper, -h, h)
+        shifted = (points[:, None, :] + eye[None] * h[:, None, :]).reshape(-1, n_free)
+        both = residuals(np.concatenate([points, shifted]))
+        k = len(points)
+        return both[:k], both[k:].reshape(k, n_free, -1), h
+
     q = q.copy()
-    r = residuals(q)
+    r, r_shift, h = evaluate(q, hi)
     cost = np.einsum("ij,ij->i", r, r)
     damping = np.full(n_cells, 1e-3)
     active = np.ones(n_cells, bool)
-    eye = np.eye(n_free)
     for _ in range(_POLISH_STEPS):
         rows = np.flatnonzero(active)
         if rows.size == 0:
             break
         qa = q[rows]
-        h = np.sqrt(np.finfo(float).eps) * np.maximum(1.0, np.abs(qa))
-        h = np.where(qa + h > hi[rows], -h, h)
-        shifted = (qa[:, None, :] + eye[None] * h[:, None, :]).reshape(-1, n_free)
-        r_shift = residuals(shifted).reshape(rows.size, n_free, -1)
-        jac_t = (r_shift - r[rows][:, None, :]) / h[:, :, None]          # (k, free, 2n)
+        jac_t = (r_shift[rows] - r[rows][:, None, :]) / h[rows][:, :, None]   # (k, free, 2n)
         jtj = jac_t @ np.swapaxes(jac_t, 1, 2)
         grad = jac_t @ r[rows][:, :, None]
         scale = np.maximum(np.diagonal(jtj, axis1=1, axis2=2), 1e-300)
@@ -163,13 +173,14 @@ def _box_levenberg_marquardt(residuals, q, lo, hi):
             step = _damped_step(lhs, np.where(keep[:, :, None], grad, 0.0),
                                 damping[rows, None] * scale)
         trial = np.minimum(np.maximum(qa + step, lo[rows]), hi[rows])
-        r_trial = residuals(trial)
+        r_trial, shift_trial, h_trial = evaluate(trial, hi[rows])
         cost_trial = np.einsum("ij,ij->i", r_trial, r_trial)
         better = cost_trial < cost[rows]
         small = ((cost[rows] - cost_trial <= _POLISH_TOLERANCE * cost[rows])
                  | (np.abs(trial - qa) <= _POLISH_TOLERANCE * (1e-8 + np.abs(qa))).all(axis=1))
         took = rows[better]
         q[took], r[took], cost[took] = trial[better], r_trial[better], cost_trial[better]
+        r_shift[took], h[took] = shift_trial[better], h_trial[better]
         damping[rows] = np.where(better, damping[rows] / 10.0, damping[rows] * 10.0)
         active[rows[(better & small) | (damping[rows] > 1e10)]] = False
     return q
