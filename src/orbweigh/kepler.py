@@ -54,8 +54,8 @@ def solve_kepler(mean_anom, e):
     and the test costs no extra solver step.
     """
     m_in = np.asarray(mean_anom, float)
-    if np.ndim(e):
-        m_in, ecc = np.broadcast_arrays(m_in, np.asarray(e, float))
+    if np.ndim(e):                      # broadcast by the arithmetic below
+        ecc = np.asarray(e, float)
         bad = ((ecc < 0) | (ecc >= 1)).any()
     else:                               # one e for all M (the fit's case): no array of e
         ecc = float(e)
