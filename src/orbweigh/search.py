@@ -7,13 +7,14 @@ needs seven weighted sums and a 2x2 inverse, which numpy evaluates for hundreds 
 thousands of trials at once. X and Y are looked up in tables over a fine grid of the
 mean anomaly, so Kepler's equation is solved only once per table entry.
 
-The trial phases are whole steps of that grid (phase k is round(1024 k / 12) / 1024, not
-exactly k / 12), so the step of a point at every phase is an integer shift of one floor
-per (point, period). The tables hold each step's values already shifted for every phase
-and eccentricity, and the products X X, X Y, Y Y too: one gather per (point, period)
-then a matrix product with the weights give the seven sums of all cells of that period.
-Measured per 50-point search (benchmarks/bench_grid.py, best of 15): 12.6 -> 6.5 ms of CPU
-against a fractional phase per cell, two gathers per cell and the products formed per trial.
+For each (point, period, phase) the table step comes from one floor; one gather of a
+table row then brings X and Y, and the products X X, X Y, Y Y, of every eccentricity at
+once, and one matrix product with the weights gives the seven sums of all cells (measured
+per 50-point search, benchmarks/bench_grid.py: about 13 -> 8 ms of CPU against a modulo per
+cell, two gathers per trial and point, the products formed per trial). The phases stay k / 12,
+not whole table steps: with whole steps every phase of e = 0 scores the same up to
+rounding, and the arbitrary T of that tie decided whether the polish left e = 0 (it did
+not for the circular pair of tests/test_combined.py).
 """
 from __future__ import annotations
 
@@ -121,27 +122,22 @@ def _period_grid(pmin, pmax, span):
 
 
 @functools.lru_cache(maxsize=8)
-def _anomaly_tables(eccentricities, n_phase):
-    """Tables of the basis over the mean-anomaly grid, float32, and the phase shifts.
+def _anomaly_tables(eccentricities):
+    """Tables over the mean-anomaly grid, one row per grid step, float32.
 
-    Row m of ``basis`` holds, for each trial phase k, X for each eccentricity (a tuple)
-    then Y for each, at table step (m - shifts[k]) mod the number of steps; ``products``
-    holds X X, X Y, Y Y in the same way. The phases are whole table steps, so one gather
-    of row m per (point, period) brings every phase and eccentricity of that point at
-    once. Kept between searches: the default grid is the same for every fit of a batch.
+    ``basis`` has the columns X for each eccentricity (a tuple), then Y for each;
+    ``products`` the columns X X, X Y, Y Y, each for every eccentricity. Kept between
+    searches: the default grid is the same for every fit of a batch.
     """
-    steps = _MEAN_ANOMALY_STEPS
-    shifts = np.round(steps * np.arange(n_phase) / n_phase).astype(np.intp)
     e = np.array(eccentricities)
-    mean_anom = 2.0 * np.pi * np.arange(steps) / steps
+    mean_anom = 2.0 * np.pi * np.arange(_MEAN_ANOMALY_STEPS) / _MEAN_ANOMALY_STEPS
     E = eccentric_anomaly(mean_anom[:, None], e[None, :])
     X, Y = np.cos(E) - e, np.sqrt(1.0 - e**2) * np.sin(E)
-    shifted = (np.arange(steps)[:, None] - shifts) % steps          # (row, phase)
-    basis = np.hstack([X, Y])[shifted].astype(np.float32)            # (row, phase, 2 e)
-    products = np.hstack([X * X, X * Y, Y * Y])[shifted].astype(np.float32)
-    for table in (basis, products, shifts):
+    tables = [np.hstack([X, Y]).astype(np.float32),
+              np.hstack([X * X, X * Y, Y * Y]).astype(np.float32)]
+    for table in tables:
         table.flags.writeable = False
-    return basis, products, shifts
+    return tuple(tables)
 
 
 def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
@@ -166,11 +162,13 @@ def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
     grid : SearchGrid
     """
     t0 = float(np.average(t, weights=w)) if t_peri is None else float(t_peri)
+    dt = t - t0
     steps = _MEAN_ANOMALY_STEPS
     periods = _period_grid(*period_range, span=float(np.ptp(t)))
     eccentricities = _ECCENTRICITIES if e is None else np.array([float(e)])
-    n_e, n_phase, n = len(eccentricities), _PHASE_STEPS if t_peri is None else 1, len(t)
-    basis, products, shifts = _anomaly_tables(tuple(map(float, eccentricities)), n_phase)
+    basis, products = _anomaly_tables(tuple(map(float, eccentricities)))
+    phases = np.arange(_PHASE_STEPS if t_peri is None else 1) / _PHASE_STEPS
+    n_e, n_phase, n = len(eccentricities), len(phases), len(t)
     chunk = max(1, _CHUNK_ELEMENTS // (n_e * n_phase * n))
     best_chi2 = np.empty(len(periods))
     best_cell = np.empty((len(periods), 2), int)
@@ -180,10 +178,13 @@ def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
     x32, y32, w32 = (np.asarray(v, np.float32) for v in (x, y, w))
     rhs = np.stack([w32 * x32, w32 * y32])
     total = _data_sum_of_squares(x, y, w)
-    dt_steps = steps * (t - t0)
     for start in range(0, len(periods), chunk):
         p = periods[start:start + chunk]
-        row = np.mod(np.floor(dt_steps[:, None] / p), steps).astype(np.intp)  # (point, P)
+        # Table step floor(steps * ((dt / p - phase) mod 1)); steps is a power of two, so
+        # the scaling is exact and the modulo can follow the floor on integers.
+        cycles = (dt[:, None] / p)[:, :, None] - phases          # (point, P, phase)
+        row = np.floor(steps * cycles).astype(np.intp) & (steps - 1)
+        row = row.reshape(n, -1)
         xy = rhs @ np.take(basis, row, axis=0).reshape(n, -1)     # w x, w y times X, Y
         xy = xy.reshape(2, len(p), n_phase, 2, n_e).astype(np.float64)
         sq = w32 @ np.take(products, row, axis=0).reshape(n, -1)  # w times XX, XY, YY
@@ -197,7 +198,7 @@ def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
         best_cell[start:start + chunk] = np.column_stack(np.unravel_index(k, (n_e, n_phase)))
     minima = _profile_minima(best_chi2)[:n_best]
     trials = [Trial(period=float(periods[j]), e=float(eccentricities[best_cell[j, 0]]),
-                    t_peri=t0 + shifts[best_cell[j, 1]] / steps * periods[j],
+                    t_peri=t0 + phases[best_cell[j, 1]] * periods[j],
                     chi2=float(best_chi2[j]))
               for j in minima]
     n_trials = len(periods) * n_e * n_phase
