@@ -5,8 +5,16 @@ x = A X + F Y, y = B X + G Y, with X = cos E - e, Y = sqrt(1 - e^2) sin E.
 With one weight w per point for both coordinates the weighted least-squares solution
 needs seven weighted sums and a 2x2 inverse, which numpy evaluates for hundreds of
 thousands of trials at once. X and Y are looked up in tables over a fine grid of the
-mean anomaly, one table per trial eccentricity, so Kepler's equation is solved only
-once per table entry.
+mean anomaly, so Kepler's equation is solved only once per table entry.
+
+For each (point, period, phase) the table step comes from one floor; one gather of a
+table row then brings X and Y, and the products X X, X Y, Y Y, of every eccentricity at
+once, and one matrix product with the weights gives the seven sums of all cells (measured
+per 50-point search, benchmarks/bench_grid.py: about 13 -> 8 ms of CPU against a modulo per
+cell, two gathers per trial and point, the products formed per trial). The phases stay k / 12,
+not whole table steps: with whole steps every phase of e = 0 scores the same up to
+rounding, and the arbitrary T of that tie decided whether the polish left e = 0 (it did
+not for the circular pair of tests/test_combined.py).
 """
 from __future__ import annotations
 
@@ -28,8 +36,8 @@ _PHASE_TOLERANCE = 0.08       # largest phase slip across the data span between 
 # do the rest. These sizes were tuned with benchmarks/bench_fit.py (found rate unchanged
 # against a grid four times finer).
 _MAX_PERIOD_STEPS = 20000
-_CHUNK_ELEMENTS = 150_000     # trials x points per numpy pass: the float32 work arrays stay in
-                              # cache (3,000,000 made the grid 3x slower: benchmarks/bench_grid.py)
+_CHUNK_ELEMENTS = 150_000     # trials x points per numpy pass (benchmarks/bench_grid.py: 100,000
+                              # to 300,000 equally fast; 3,000,000 twice as slow, out of cache)
 
 
 @dataclass(frozen=True)
@@ -59,24 +67,34 @@ def isotropic_weights(rho, sigma_rho, sigma_theta_rad):
 def linear_thiele_innes(X, Y, x, y, w):
     """Weighted linear solve of x = A X + F Y, y = B X + G Y over the last axis.
 
-    X, Y may carry leading trial axes; x, y, w are per point, in the dtype the sums
-    should use (the grid passes float32). The data's own sum of squares is taken in
-    float64 so the chi2 difference loses no more than the fitted part's rounding.
+    X, Y may carry leading trial axes; x, y, w are per point (the polish passes float64).
     Returns (A, B, F, G, chi2) with the trial shape.
     """
     rhs = np.column_stack([w * x, w * y])
-    sxx, sxy, syy = (X * X) @ w, (X * Y) @ w, (Y * Y) @ w
     xw, yw = X @ rhs, Y @ rhs              # [..., 0]: sums with w x; [..., 1]: with w y
+    A, B, F, G, fitted = _solve_sums((X * X) @ w, (X * Y) @ w, (Y * Y) @ w,
+                                     xw[..., 0], xw[..., 1], yw[..., 0], yw[..., 1])
+    return A, B, F, G, np.maximum(_data_sum_of_squares(x, y, w) - fitted, 0.0)
+
+
+def _solve_sums(sxx, sxy, syy, xX, yX, xY, yY):
+    """A, B, F, G and the fitted sum of squares from the seven weighted sums.
+
+    sxx = sum w X X, sxy = sum w X Y, syy = sum w Y Y; xX = sum w x X, yX = sum w y X,
+    xY = sum w x Y, yY = sum w y Y. A singular 2x2 system gives zeros.
+    """
     det = sxx * syy - sxy**2
     det = np.where(np.abs(det) > 0, det, np.inf)
-    A = (syy * xw[..., 0] - sxy * yw[..., 0]) / det
-    F = (sxx * yw[..., 0] - sxy * xw[..., 0]) / det
-    B = (syy * xw[..., 1] - sxy * yw[..., 1]) / det
-    G = (sxx * yw[..., 1] - sxy * xw[..., 1]) / det
-    fitted = A * xw[..., 0] + F * yw[..., 0] + B * xw[..., 1] + G * yw[..., 1]
-    x64, y64, w64 = (np.asarray(v, np.float64) for v in (x, y, w))
-    total = float(np.dot(w64 * x64, x64) + np.dot(w64 * y64, y64))
-    return A, B, F, G, np.maximum(total - fitted.astype(np.float64), 0.0)
+    A = (syy * xX - sxy * xY) / det
+    F = (sxx * xY - sxy * xX) / det
+    B = (syy * yX - sxy * yY) / det
+    G = (sxx * yY - sxy * yX) / det
+    return A, B, F, G, A * xX + F * xY + B * yX + G * yY
+
+
+def _data_sum_of_squares(x, y, w):
+    x, y, w = (np.asarray(v, np.float64) for v in (x, y, w))
+    return float(np.dot(w * x, x) + np.dot(w * y, y))
 
 
 def default_period_range(t):
@@ -105,15 +123,18 @@ def _period_grid(pmin, pmax, span):
 
 @functools.lru_cache(maxsize=8)
 def _anomaly_tables(eccentricities):
-    """X and Y over the mean-anomaly grid, one row per eccentricity (a tuple), float32.
+    """Tables over the mean-anomaly grid, one row per grid step, float32.
 
-    Kept between searches: the default grid is the same for every fit of a batch.
+    ``basis`` has the columns X for each eccentricity (a tuple), then Y for each;
+    ``products`` the columns X X, X Y, Y Y, each for every eccentricity. Kept between
+    searches: the default grid is the same for every fit of a batch.
     """
-    e = np.array(eccentricities)[:, None]
+    e = np.array(eccentricities)
     mean_anom = 2.0 * np.pi * np.arange(_MEAN_ANOMALY_STEPS) / _MEAN_ANOMALY_STEPS
-    E = eccentric_anomaly(mean_anom[None, :], e)
-    tables = [(np.cos(E) - e).astype(np.float32),
-              (np.sqrt(1.0 - e**2) * np.sin(E)).astype(np.float32)]
+    E = eccentric_anomaly(mean_anom[:, None], e[None, :])
+    X, Y = np.cos(E) - e, np.sqrt(1.0 - e**2) * np.sin(E)
+    tables = [np.hstack([X, Y]).astype(np.float32),
+              np.hstack([X * X, X * Y, Y * Y]).astype(np.float32)]
     for table in tables:
         table.flags.writeable = False
     return tuple(tables)
@@ -142,31 +163,43 @@ def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
     """
     t0 = float(np.average(t, weights=w)) if t_peri is None else float(t_peri)
     dt = t - t0
+    steps = _MEAN_ANOMALY_STEPS
     periods = _period_grid(*period_range, span=float(np.ptp(t)))
     eccentricities = _ECCENTRICITIES if e is None else np.array([float(e)])
-    tab_x, tab_y = _anomaly_tables(tuple(map(float, eccentricities)))
+    basis, products = _anomaly_tables(tuple(map(float, eccentricities)))
     phases = np.arange(_PHASE_STEPS if t_peri is None else 1) / _PHASE_STEPS
     n_e, n_phase, n = len(eccentricities), len(phases), len(t)
     chunk = max(1, _CHUNK_ELEMENTS // (n_e * n_phase * n))
     best_chi2 = np.empty(len(periods))
     best_cell = np.empty((len(periods), 2), int)
-    # float32 halves the memory traffic; the coarse chi2 only has to rank cells
-    # (refinement recomputes everything in float64).
+    # The weighted sums in float32 halve the memory traffic; the coarse chi2 only has to
+    # rank cells (refinement recomputes everything in float64). The 2x2 solves, one per
+    # cell, take the sums in float64: extreme weights cannot overflow them.
     x32, y32, w32 = (np.asarray(v, np.float32) for v in (x, y, w))
+    rhs = np.stack([w32 * x32, w32 * y32])
+    total = _data_sum_of_squares(x, y, w)
     for start in range(0, len(periods), chunk):
         p = periods[start:start + chunk]
-        frac = np.mod((dt[None, :] / p[:, None])[:, None, :] - phases[None, :, None], 1.0)
-        idx = (frac * _MEAN_ANOMALY_STEPS).astype(np.intp) % _MEAN_ANOMALY_STEPS
-        X = np.take(tab_x, idx, axis=1).reshape(-1, n)    # (e * P * phase, point)
-        Y = np.take(tab_y, idx, axis=1).reshape(-1, n)
-        chi2 = linear_thiele_innes(X, Y, x32, y32, w32)[4].reshape(n_e, len(p), n_phase)
-        flat = chi2.transpose(1, 0, 2).reshape(len(p), -1)
+        # Table step floor(steps * ((dt / p - phase) mod 1)); steps is a power of two, so
+        # the scaling is exact and the modulo can follow the floor on integers.
+        cycles = (dt[:, None] / p)[:, :, None] - phases          # (point, P, phase)
+        row = np.floor(steps * cycles).astype(np.intp) & (steps - 1)
+        row = row.reshape(n, -1)
+        xy = rhs @ np.take(basis, row, axis=0).reshape(n, -1)     # w x, w y times X, Y
+        xy = xy.reshape(2, len(p), n_phase, 2, n_e).astype(np.float64)
+        sq = w32 @ np.take(products, row, axis=0).reshape(n, -1)  # w times XX, XY, YY
+        sq = sq.reshape(len(p), n_phase, 3, n_e).astype(np.float64)
+        fitted = _solve_sums(sq[:, :, 0], sq[:, :, 1], sq[:, :, 2], xy[0, :, :, 0],
+                             xy[1, :, :, 0], xy[0, :, :, 1], xy[1, :, :, 1])[4]
+        chi2 = np.maximum(total - fitted, 0.0).transpose(0, 2, 1)   # (P, e, phase)
+        flat = chi2.reshape(len(p), -1)
         k = np.argmin(flat, axis=1)
         best_chi2[start:start + chunk] = flat[np.arange(len(p)), k]
         best_cell[start:start + chunk] = np.column_stack(np.unravel_index(k, (n_e, n_phase)))
     minima = _profile_minima(best_chi2)[:n_best]
     trials = [Trial(period=float(periods[j]), e=float(eccentricities[best_cell[j, 0]]),
-                    t_peri=t0 + phases[best_cell[j, 1]] * periods[j], chi2=float(best_chi2[j]))
+                    t_peri=t0 + phases[best_cell[j, 1]] * periods[j],
+                    chi2=float(best_chi2[j]))
               for j in minima]
     n_trials = len(periods) * n_e * n_phase
     return trials, SearchGrid(periods, best_chi2, n_trials)
