@@ -6,7 +6,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .elements import thiele_innes_from_campbell, wrap_degrees
-from .kepler import mean_anomaly, solve_kepler
+from .kepler import sin_cos_anomaly
 
 __all__ = ["Ephemeris", "EphemerisBands", "orbit_xy", "ephemeris", "xy_to_theta_rho",
            "ephemeris_bands"]
@@ -35,7 +35,7 @@ class Ephemeris:
 
 def orbit_xy(t, period, t_peri, e, A, B, F, G):
     """x, y [unit of A..G] at epochs t (Julian years); broadcasts over all arguments."""
-    _, sin_e, cos_e = solve_kepler(mean_anomaly(t, period, t_peri), e)
+    sin_e, cos_e = sin_cos_anomaly(t, period, t_peri, e)
     X = cos_e - e
     Y = np.sqrt(1.0 - e**2) * sin_e
     return A * X + F * Y, B * X + G * Y

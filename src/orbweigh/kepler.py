@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import numpy as np
 
-__all__ = ["eccentric_anomaly", "solve_kepler", "true_anomaly", "mean_anomaly"]
+__all__ = ["eccentric_anomaly", "sin_cos_anomaly", "true_anomaly", "mean_anomaly"]
 
 _TOLERANCE = 1e-14        # on the Newton step f / f' at the returned E [rad]
 _MAX_ITERATIONS = 100
@@ -43,18 +43,30 @@ def eccentric_anomaly(mean_anom, e):
     |E - e sin E - M| < 1e-12 rad for M taken modulo 2 pi (the reduction of a huge M to
     one turn is itself only as exact as the floating-point M).
     """
-    return solve_kepler(mean_anom, e)[0]
-
-
-def solve_kepler(mean_anom, e):
-    """(E, sin E, cos E): ``eccentric_anomaly`` with the sine and cosine it ends with.
-
-    Converged when the Newton step f / f' at E is below _TOLERANCE everywhere. That test
-    needs sin E and cos E, which are returned: the caller saves two transcendental calls,
-    and the test costs no extra solver step.
-    """
     m_in = np.asarray(mean_anom, float)
-    if np.ndim(e):                      # broadcast by the arithmetic below
+    turns = np.floor((m_in + np.pi) / (2.0 * np.pi))
+    m_red = m_in - 2.0 * np.pi * turns          # in [-pi, pi)
+    E, _, _ = _solve_folded(np.abs(m_red), _checked(e))
+    return np.copysign(E, m_red) + 2.0 * np.pi * turns
+
+
+def sin_cos_anomaly(t, period, t_peri, e):
+    """sin E and cos E at epochs t of the orbit (P, T, e): what the orbit model needs.
+
+    t, period and t_peri in one unit of time; e as in ``eccentric_anomaly``. The phase
+    (t - T) / P is reduced to the nearest whole turn before M is formed (in [-pi, pi]),
+    and sin E and cos E are the solver's own (its test of convergence needs them): fewer
+    numpy calls than ``eccentric_anomaly`` of ``mean_anomaly`` and then sin and cos.
+    """
+    phase = (np.asarray(t, float) - t_peri) / period
+    m_red = (2.0 * np.pi) * (phase - np.rint(phase))
+    _, sin_e, cos_e = _solve_folded(np.abs(m_red), _checked(e))
+    return np.copysign(sin_e, m_red), cos_e
+
+
+def _checked(e):
+    """e as a float or an array (broadcast by the solver's arithmetic), in [0, 1)."""
+    if np.ndim(e):
         ecc = np.asarray(e, float)
         bad = ((ecc < 0) | (ecc >= 1)).any()
     else:                               # one e for all M (the fit's case): no array of e
@@ -62,33 +74,38 @@ def solve_kepler(mean_anom, e):
         bad = not 0.0 <= ecc < 1.0
     if bad:
         raise ValueError("eccentricity must satisfy 0 <= e < 1")
-    turns = np.floor((m_in + np.pi) / (2.0 * np.pi))
-    m_red = m_in - 2.0 * np.pi * turns          # in [-pi, pi)
-    m = np.abs(m_red)                            # solve on [0, pi], odd symmetry
+    return ecc
+
+
+def _solve_folded(m, ecc):
+    """(E, sin E, cos E) for m in [0, pi].
+
+    Converged when the Newton step f / f' at E is below _TOLERANCE everywhere; the test
+    needs sin E and cos E, those the next step would use, so it costs no extra step. It
+    is skipped after the starter, which is never that close unless exact (e = 0, m = 0):
+    then the first step is zero.
+    """
     lo, hi = m, np.minimum(m + ecc, np.pi)       # f(lo) <= 0 <= f(hi)
     E = np.minimum(np.maximum(_starter(m, ecc), lo), hi)
-    for _ in range(_MAX_ITERATIONS):
+    for k in range(_MAX_ITERATIONS):
         sin_e, cos_e = np.sin(E), np.cos(E)
         e_sin, e_cos = ecc * sin_e, ecc * cos_e             # f'' and f'''
         f = E - e_sin - m
         f1 = 1.0 - e_cos
         # The array's own any(), not np.any: that wrapper costs as much as the test.
-        if not (np.abs(f) > _TOLERANCE * f1).any():         # (a NaN stops too)
+        if k and not (np.abs(f) > _TOLERANCE * f1).any():   # (a NaN stops too)
             # A last Newton step, exact to rounding from within the tolerance (also for
             # a tiny E, where the tolerance is not relative); sin and cos follow it to
             # first order, the second being below 1e-28.
             step = f / f1
             E = np.minimum(np.maximum(E - step, lo), hi)
-            sin_e, cos_e = sin_e - step * cos_e, cos_e + step * sin_e
-            break
+            return E, sin_e - step * cos_e, cos_e + step * sin_e
         half = 0.5 * e_sin
         step = f / f1                                       # Newton,
         step = f / (f1 - step * half)                       # Halley,
         step = f / (f1 - step * (half - step * e_cos / 6.0))    # quartic
         E = np.minimum(np.maximum(E - step, lo), hi)
-    else:
-        sin_e, cos_e = np.sin(E), np.cos(E)
-    return np.copysign(E, m_red) + 2.0 * np.pi * turns, np.copysign(sin_e, m_red), cos_e
+    return E, np.sin(E), np.cos(E)
 
 
 def _starter(m, ecc):

@@ -13,7 +13,7 @@ import numpy as np
 
 from .elements import wrap_degrees
 from .ephemeris import orbit_xy, xy_to_theta_rho
-from .kepler import mean_anomaly, solve_kepler
+from .kepler import sin_cos_anomaly
 
 __all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_jacobian",
            "wrap_degrees"]
@@ -37,8 +37,7 @@ class _LastAnomaly(threading.local):
     def solve(self, t, P, T, e):
         key = (float(P), float(T), float(e))
         if self.t is not t or self.key != key:
-            _, sin_e, cos_e = solve_kepler(mean_anomaly(t, P, T), e)
-            self.sin_cos = sin_e, cos_e
+            self.sin_cos = sin_cos_anomaly(t, P, T, e)
             self.t, self.key = t, key
         return self.sin_cos
 

@@ -17,7 +17,7 @@ import numpy as np
 from .bounded_least_squares import fit_bounded
 from .elements import (campbell_from_thiele_innes, phase_in_periastron,
                        thiele_innes_from_campbell, wrap_degrees)
-from .kepler import mean_anomaly, solve_kepler
+from .kepler import sin_cos_anomaly
 from .model import FIT_KEYS, normalised_residuals, residual_jacobian
 
 __all__ = ["Constraints", "Refined", "polish_cells", "refine_full", "refine_campbell",
@@ -66,7 +66,7 @@ class Refined:
 
 
 def _basis(t, period, t_peri, e):
-    _, sin_e, cos_e = solve_kepler(mean_anomaly(t, period, t_peri), e)
+    sin_e, cos_e = sin_cos_anomaly(t, period, t_peri, e)
     return cos_e - e, np.sqrt(1.0 - e**2) * sin_e
 
 
