@@ -114,3 +114,26 @@ def test_line_log_keeps_whole_lines_only(tmp_path):
     with open(path, "a", encoding="utf-8") as fh:       # a crash cut the third line
         fh.write('{"a": 3')
     assert list(LineLog.read_lines(path)) == ['{"a": 1}', '{"a": 2}']
+
+
+def test_record_json_is_the_standard_encoders_byte_for_byte(manifest, tmp_path):
+    # The batch writes its indented JSON with the C encoder per container of plain values
+    # (batch._json_text); the bytes must stay json.dumps(indent=1)'s: the records of a
+    # real run, and values of every kind the records may hold.
+    import numpy as np
+
+    from orbweigh.batch import _json_default, _json_text
+    run_batch(manifest, tmp_path, BatchOptions(seed=3, pages="none"), workers=1,
+              progress=False)
+    values = [json.loads(p.read_text()) for p in tmp_path.glob("systems/*/*.json")]
+    values.append({"plain": [None, True, False, 0, -3, 2**70, 1.5, -0.0, 1e-300, "é\"\\\n☃"],
+                   "special": [float("nan"), float("inf"), -float("inf")],
+                   "numpy": [np.float64(0.1), np.float32(0.1), np.int64(7), np.bool_(True),
+                             np.arange(3), np.array([[1.5, np.nan], [2.0, 3.0]])],
+                   "empty": [[], {}, (), {"a": []}], "tuple": (1, ("x", {"y": None})),
+                   1: "int key", 2.5: {True: 1, None: [1]}, "nested": [[[[{"z": [0]}]]]],
+                   "scalar in a list of lists": [1, [2, {"k": np.int64(3)}], "s"]})
+    assert len(values) > 5
+    for value in values:
+        assert _json_text(value) == json.dumps(value, indent=1, allow_nan=True,
+                                               default=_json_default) + "\n"

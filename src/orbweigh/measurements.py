@@ -32,6 +32,8 @@ Rules
 """
 from __future__ import annotations
 
+import functools
+import math
 import re
 from collections import deque
 from dataclasses import dataclass, field
@@ -202,6 +204,7 @@ class MeasurementSet:
 
 # ----------------------------------------------------------------------------- techniques
 
+@functools.lru_cache(maxsize=256)      # a log repeats a few techniques on every row
 def technique_class(text):
     """The ``TECHNIQUE_DEFAULTS`` key for a technique as written ('unknown' if not known)."""
     key = re.sub(r"[\s_-]+", " ", str(text).strip().lower())
@@ -258,7 +261,7 @@ def _number(cells, name, factors, header):
     except ValueError:
         raise RowError(header.get(name, name), f"'{text}' is not a number; expected "
                         f"{_EXPECTED[name]}") from None
-    if not np.isfinite(value):
+    if not math.isfinite(value):
         raise RowError(header.get(name, name), f"'{text}' is not finite; expected "
                         f"{_EXPECTED[name]}")
     return value * factors.get(name, 1.0)
@@ -329,11 +332,12 @@ def _parse_row(cells, factors, header, day_unit):
 def _complete(record):
     """Fill defaults: technique class, sigmas from the technique table, weight 1, flag."""
     technique = technique_class(record["technique_input"])
-    sig_theta, sig_rho = default_sigmas(technique, record["rho"], record["sigma_rho"])
     record["defaulted"] = record["sigma_theta"] is None or record["sigma_rho"] is None
-    if record["sigma_theta"] is None:
-        record["sigma_theta"] = sig_theta
-    record["sigma_rho"] = sig_rho
+    if record["defaulted"]:
+        sig_theta, record["sigma_rho"] = default_sigmas(technique, record["rho"],
+                                                        record["sigma_rho"])
+        if record["sigma_theta"] is None:
+            record["sigma_theta"] = sig_theta
     record["weight"] = 1.0 if record["weight"] is None else record["weight"]
     record["technique"] = technique
     record["excluded"] = record["flag"].lower() not in KEEP_FLAGS

@@ -24,6 +24,7 @@ Position angles measured for the equinox of date are referred to equinox J2000 b
 """
 from __future__ import annotations
 
+import math
 import re
 
 import numpy as np
@@ -139,7 +140,7 @@ def split_epoch(text, day_unit=False):
         value = float(number)
     except ValueError:
         raise ValueError(f"cannot read '{s}' as an epoch; {_HOW_TO_WRITE}") from None
-    if not np.isfinite(value):
+    if not math.isfinite(value):
         raise ValueError(f"epoch '{s}' is not a finite number; {_HOW_TO_WRITE}")
     if scale is None:
         if value > 100000.0:

@@ -54,7 +54,7 @@ positional sigma.
 """
 from __future__ import annotations
 
-from dataclasses import asdict, dataclass, field
+from dataclasses import dataclass, field, fields
 
 import numpy as np
 
@@ -136,8 +136,11 @@ class RevisionCheck:
     residuals: list = field(default_factory=list)
 
     def to_dict(self):
-        """Plain JSON-ready mapping."""
-        return asdict(self)
+        """Plain JSON-ready mapping (what ``dataclasses.asdict`` gives, without its deep
+        copy of every value: the fields are plain numbers and text, the rows flat dicts)."""
+        out = {f.name: getattr(self, f.name) for f in fields(self)}
+        out["residuals"] = [dict(row) for row in self.residuals]
+        return out
 
 
 def old_orbit_residuals(elements, data, flips=True):
@@ -229,12 +232,14 @@ def check_revision(elements, data, last_epoch_yr=None, flips=True):
                                                   oc["z_rho"][new] ** 2)))) if n_new else 0.0)
     verdict, reason = _decide(numbers, data.epoch_scale)
     numbers["decided_by"], numbers["p_decisive"] = _decisive(verdict, numbers)
-    rows = [{"line": int(data.line[k]), "epoch_yr": float(data.epoch_yr[k]),
-             "d_theta_deg": float(oc["d_theta_deg"][k]),
-             "d_rho_arcsec": float(oc["d_rho_arcsec"][k]), "z_theta": float(oc["z_theta"][k]),
-             "z_rho": float(oc["z_rho"][k]), "new": bool(new[k]),
-             "flipped": bool(oc["flipped"][k]), "status": "used" if votes[k] else "excluded"}
-            for k in range(len(data))]
+    columns = zip(data.line.tolist(), data.epoch_yr.tolist(), oc["d_theta_deg"].tolist(),
+                  oc["d_rho_arcsec"].tolist(), oc["z_theta"].tolist(), oc["z_rho"].tolist(),
+                  new.tolist(), oc["flipped"].tolist(),
+                  votes.tolist())
+    rows = [{"line": line, "epoch_yr": t, "d_theta_deg": d_theta, "d_rho_arcsec": d_rho,
+             "z_theta": z_theta, "z_rho": z_rho, "new": is_new, "flipped": flipped,
+             "status": "used" if vote else "excluded"}
+            for line, t, d_theta, d_rho, z_theta, z_rho, is_new, flipped, vote in columns]
     return RevisionCheck(verdict=verdict, reason=reason, residuals=rows, **numbers)
 
 

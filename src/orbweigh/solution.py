@@ -119,27 +119,28 @@ class OrbitSolution:
 
     def _residual_rows(self):
         d = self.data
-        scale = d.epoch_scale
-        epochs = from_julian_year(d.epoch_yr, scale)
-        rows = []
         scaled = bool(self.options.technique_scales)
-        for k in range(len(d)):
-            factor = float(self.sigma_factor[k])
-            rows.append({
-                "line": int(d.line[k]), "epoch": float(epochs[k]),
-                "epoch_text": str(d.epoch_text[k]), "epoch_yr": float(d.epoch_yr[k]),
-                "theta_deg": float(d.theta_deg[k]), "rho_arcsec": float(d.rho_arcsec[k]),
-                "sigma_theta_deg": float(factor * d.sigma_theta_deg[k] / np.sqrt(d.weight[k])),
-                "sigma_rho_arcsec": float(factor * d.sigma_rho_arcsec[k] / np.sqrt(d.weight[k])),
-                **({"sigma_factor": factor} if scaled else {}),
-                "technique": str(d.technique[k]),
-                "technique_text": str(d.technique_input[k]),
-                "theta_pred_deg": float(self.theta_pred_deg[k]),
-                "rho_pred_arcsec": float(self.rho_pred_arcsec[k]),
-                "d_theta_deg": float(self.d_theta_deg[k]),
-                "d_rho_arcsec": float(self.d_rho_arcsec[k]),
-                "status": str(self.status[k]), "reason": _reason(self.status[k], self.options),
-                "note": str(d.note[k])})
+        factor = np.asarray(self.sigma_factor, float)
+        root_w = np.sqrt(d.weight)
+        reasons = {s: _reason(s, self.options) for s in set(self.status.tolist())}
+        columns = zip(d.line.tolist(), from_julian_year(d.epoch_yr, d.epoch_scale).tolist(),
+                      d.epoch_text.tolist(), d.epoch_yr.tolist(), d.theta_deg.tolist(),
+                      d.rho_arcsec.tolist(), (factor * d.sigma_theta_deg / root_w).tolist(),
+                      (factor * d.sigma_rho_arcsec / root_w).tolist(), factor.tolist(),
+                      d.technique.tolist(), d.technique_input.tolist(),
+                      self.theta_pred_deg.tolist(), self.rho_pred_arcsec.tolist(),
+                      self.d_theta_deg.tolist(), self.d_rho_arcsec.tolist(),
+                      self.status.tolist(), d.note.tolist())
+        rows = [{"line": line, "epoch": epoch, "epoch_text": str(text), "epoch_yr": t,
+                 "theta_deg": theta, "rho_arcsec": rho, "sigma_theta_deg": s_theta,
+                 "sigma_rho_arcsec": s_rho, **({"sigma_factor": f} if scaled else {}),
+                 "technique": str(technique), "technique_text": str(technique_text),
+                 "theta_pred_deg": theta_pred, "rho_pred_arcsec": rho_pred,
+                 "d_theta_deg": d_theta, "d_rho_arcsec": d_rho, "status": str(status),
+                 "reason": reasons[status], "note": str(note)}
+                for (line, epoch, text, t, theta, rho, s_theta, s_rho, f, technique,
+                     technique_text, theta_pred, rho_pred, d_theta, d_rho, status, note)
+                in columns]
         for problem in d.rejected:
             rows.append({"line": int(problem.line), "status": "rejected",
                          "reason": (f"column '{problem.column}': " if problem.column else "")
