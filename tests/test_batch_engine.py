@@ -137,3 +137,13 @@ def test_record_json_is_the_standard_encoders_byte_for_byte(manifest, tmp_path):
     for value in values:
         assert _json_text(value) == json.dumps(value, indent=1, allow_nan=True,
                                                default=_json_default) + "\n"
+
+
+def test_chunks_cover_every_system_once_and_shrink_at_the_end():
+    from orbweigh.batch import _chunks
+    for n, workers in [(1000, 2), (33, 2), (7, 3), (1, 1), (100, 1), (0, 2)]:
+        chunks = _chunks(n, workers)
+        assert [i for c in chunks for i in c] == list(range(n))
+        if n >= 1000:
+            sizes = [len(c) for c in chunks]
+            assert max(sizes) == 16 and sizes[-2 * workers:] == [4] * (2 * workers)
