@@ -76,8 +76,14 @@ def _record(k, rng):
 
 
 def make_stream(out, n, seed=0):
-    """Write the stream of N systems and the fitted ones' result.json into ``out``."""
+    """Write the stream of N systems and the fitted ones' result.json into ``out``.
+
+    A fitted system's row carries what summary.tex takes of its result, as a worker sends
+    it (``batch_summary.latex_part``), except every fourth: the row of a system saved by
+    an earlier run or found on disk after Ctrl-C, whose part is read from result.json.
+    """
     from orbweigh.batch import STREAM_NAME, _stream_row, _summary_row
+    from orbweigh.batch_summary import latex_part
     rng = np.random.default_rng(seed)
     out.mkdir(parents=True, exist_ok=True)
     with open(out / STREAM_NAME, "w", encoding="utf-8") as stream:
@@ -89,8 +95,10 @@ def make_stream(out, n, seed=0):
                 folder.mkdir(parents=True, exist_ok=True)
                 (folder / "result.json").write_text(json.dumps(record["document"]))
                 files["result.json"] = "0" * 64
-            stream.write(_stream_row({"key": record["key"], "files": files,
-                                      "summary": _summary_row(record)}) + "\n")
+            row = {"key": record["key"], "files": files, "summary": _summary_row(record)}
+            if record["document"] is not None and k % 4:
+                row["latex"] = latex_part(record["document"])
+            stream.write(_stream_row(row) + "\n")
     (out / "manifest.csv").write_text("id,log\n")
     return out
 

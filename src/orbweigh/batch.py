@@ -586,8 +586,14 @@ _SHORT_KEYS = ("id", "key", "status", "verdict", "fitted", "fit_note", "error", 
                "wants_page", "cpu_seconds", "files", "summary")
 
 
-def _short(saved):
-    return {k: saved.get(k) for k in _SHORT_KEYS}
+def _short(saved, document=None):
+    """The short record; with the result ``document``, also what summary.tex takes of it
+    (``batch_summary.latex_part``), so the summary need not read result.json back."""
+    from .batch_summary import latex_part
+    short = {k: saved.get(k) for k in _SHORT_KEYS}
+    if document is not None:
+        short["latex"] = latex_part(document)
+    return short
 
 
 def _chunks(n, workers, most=16):
@@ -610,7 +616,7 @@ def _fit_chunk(items, options, out):
 def _store(out, record, digest):
     record["input_hash"] = digest
     started = time.process_time()
-    short = _short(_save_record(out, record))
+    short = _short(_save_record(out, record), record["document"])
     short["cpu_seconds"] = dict(short["cpu_seconds"], save=time.process_time() - started)
     return short
 
@@ -626,7 +632,7 @@ def _add_pages(out, key):
     record, written = _load_record(out, key)
     record["report"] = _pages(record)
     record["status"] = "failed" if record["error"] else "done"
-    return _short(_save_record(out, record, written))
+    return _short(_save_record(out, record, written), record["document"])
 
 
 def _collect_chunk(future, entries, options):
@@ -835,8 +841,8 @@ STREAM_NAME = "summary.running.jsonl"
 
 
 def _stream_row(record):
-    return json.dumps({k: record[k] for k in ("key", "files", "summary")}, allow_nan=True,
-                      default=_json_default)
+    return json.dumps({k: record[k] for k in ("key", "files", "summary", "latex")
+                       if k in record}, allow_nan=True, default=_json_default)
 
 
 def _rows_on_disk(out, pending):

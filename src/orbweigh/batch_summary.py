@@ -24,7 +24,7 @@ from dataclasses import dataclass
 from .batch import _SUMMARY_COLUMNS, URGENCY, _urgency, system_key, urgency_class
 from .files import AtomicFile, LineLog, TableChunks, table_text
 
-__all__ = ["write_summary", "SummaryCounts", "CHUNK"]
+__all__ = ["write_summary", "SummaryCounts", "CHUNK", "latex_part"]
 
 #: Systems a chunk of the summary holds (its Table, its result documents): ~10 MB.
 CHUNK = 1000
@@ -71,9 +71,11 @@ def write_summary(out, stream, manifest, options, interrupted=False, chunk=CHUNK
                            entries)
         for start in range(0, len(entries), chunk):
             part = entries[start:start + chunk]
-            table = _chunk_table(_rows(lines, part, start), meta)
-            for writer in tables + [latex]:
+            rows, parts = _rows(lines, part, start)
+            table = _chunk_table(rows, meta)
+            for writer in tables:
                 writer.add(table)
+            latex.add(table, parts)
             index.write(_index_rows(table, listed[start:start + chunk]))
             _count(counts, table)
         for writer in tables + [latex]:
@@ -136,15 +138,18 @@ def _meta(manifest, options, interrupted):
 
 
 def _rows(lines, part, start):
-    """Summary rows of a chunk of entries, read back from the stream, ranked and linked."""
-    rows = []
+    """Summary rows of a chunk of entries, read back from the stream, ranked and linked,
+    and {id: LaTeX part} of the rows whose worker sent it (``batch._short``)."""
+    rows, parts = [], {}
     for rank, entry in enumerate(part, start + 1):
         record = json.loads(LineLog.line_at(lines, entry[1]))
         link = next((f for f in ("review.html", "report.html", "result.json")
                      if f in record["files"]), "batch.json")
         rows.append(dict(record["summary"], rank=rank,
                          link=f"systems/{record['key']}/{link}"))
-    return rows
+        if "latex" in record:
+            parts[record["summary"]["id"]] = record["latex"]
+    return rows, parts
 
 
 def _chunk_table(rows, meta):
@@ -185,22 +190,36 @@ class _LatexRows:
         from .report.tables import elements_table_latex
         self._out = out
         first = next((e for e in entries if e[4]), None)
-        version = "" if first is None else _latex_part(out, first[0][2]).get("version") or ""
+        version = "" if first is None else _read_part(out, first[0][2]).get("version") or ""
         self._writer = TableChunks(
             file, lambda docs: elements_table_latex(*zip(*docs), version=version),
             elements_table_latex([], [], version=version))
 
-    def add(self, table):
+    def add(self, table, parts):
+        """The fitted systems of a chunk; a part the stream lacks (a system saved before
+        this run, or after Ctrl-C) is read from its result.json."""
         fitted = [str(i) for i in table["id"][table["fitted"]]]
-        self._writer.add([(_latex_part(self._out, i), i) for i in fitted])
+        self._writer.add([(parts.get(i) or _read_part(self._out, i), i) for i in fitted])
 
     def close(self):
         self._writer.close()
 
 
-def _latex_part(out, system_id):
-    """What the LaTeX table reads of a system's result: a catalogue's documents whole
-    would not fit in memory (residuals, covariance draws)."""
-    doc = json.loads((out / "systems" / system_key(system_id) / "result.json")
-                     .read_text("utf-8"))
-    return {k: doc[k] for k in ("elements", "mass", "version") if k in doc}
+def latex_part(document):
+    """What the LaTeX table takes of a result document (``report.tables.
+    elements_table_latex``): a catalogue's documents whole would not fit in memory
+    (residuals, covariance draws), and a worker sends this with its short record."""
+    def entry(e):
+        return {k: e[k] for k in ("value", "error", "low", "high", "scale") if k in e}
+    part = {"elements": {k: entry(e) for k, e in document["elements"].items()}}
+    total = (document.get("mass") or {}).get("total")
+    if isinstance(total, dict):
+        part["mass"] = {"total": entry(total)}
+    if "version" in document:
+        part["version"] = document["version"]
+    return part
+
+
+def _read_part(out, system_id):
+    return latex_part(json.loads((out / "systems" / system_key(system_id) / "result.json")
+                                 .read_text("utf-8")))
