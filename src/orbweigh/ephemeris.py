@@ -8,7 +8,7 @@ import numpy as np
 from .elements import thiele_innes_from_campbell, wrap_degrees
 from .kepler import sin_cos_anomaly
 
-__all__ = ["Ephemeris", "EphemerisBands", "orbit_xy", "ephemeris", "xy_to_theta_rho",
+__all__ = ["Ephemeris", "EphemerisBands", "orbit_basis", "orbit_xy", "ephemeris", "xy_to_theta_rho",
            "ephemeris_bands"]
 
 
@@ -33,11 +33,16 @@ class Ephemeris:
     y_arcsec: np.ndarray
 
 
+def orbit_basis(t, period, t_peri, e):
+    """X = cos E - e and Y = sqrt(1 - e^2) sin E at epochs t: x = A X + F Y and
+    y = B X + G Y; broadcasts over all arguments."""
+    sin_e, cos_e = sin_cos_anomaly(t, period, t_peri, e)
+    return cos_e - e, np.sqrt(1.0 - e**2) * sin_e
+
+
 def orbit_xy(t, period, t_peri, e, A, B, F, G):
     """x, y [unit of A..G] at epochs t (Julian years); broadcasts over all arguments."""
-    sin_e, cos_e = sin_cos_anomaly(t, period, t_peri, e)
-    X = cos_e - e
-    Y = np.sqrt(1.0 - e**2) * sin_e
+    X, Y = orbit_basis(t, period, t_peri, e)
     return A * X + F * Y, B * X + G * Y
 
 

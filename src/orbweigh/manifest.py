@@ -37,7 +37,6 @@ manifest file, line and column.
 from __future__ import annotations
 
 import csv
-import io
 import math
 import re
 from dataclasses import dataclass, field

@@ -17,8 +17,8 @@ import numpy as np
 from .bounded_least_squares import fit_bounded
 from .elements import (campbell_from_thiele_innes, phase_in_periastron,
                        thiele_innes_from_campbell, wrap_degrees)
-from .kepler import sin_cos_anomaly
-from .model import FIT_KEYS, normalised_residuals, residual_jacobian
+from .ephemeris import orbit_basis
+from .model import normalised_residuals, residual_jacobian
 
 __all__ = ["Constraints", "Refined", "polish_cells", "refine_full", "refine_campbell",
            "thiele_innes_jacobian"]
@@ -65,11 +65,6 @@ class Refined:
     campbell_covariance: np.ndarray | None = None
 
 
-def _basis(t, period, t_peri, e):
-    sin_e, cos_e = sin_cos_anomaly(t, period, t_peri, e)
-    return cos_e - e, np.sqrt(1.0 - e**2) * sin_e
-
-
 def polish_cells(trials, t, x, y, w, period_range, constraints=Constraints()):
     """Polish search cells in (ln P, e, T) together, solving A, B, F, G linearly each step.
 
@@ -95,7 +90,7 @@ def polish_cells(trials, t, x, y, w, period_range, constraints=Constraints()):
     def residuals(q):
         """Weighted residuals (m, 2n) at points q (m, free)."""
         period, e, t_peri = at(q)
-        X, Y = _basis(t, period, t_peri, e)
+        X, Y = orbit_basis(t, period, t_peri, e)
         A, B, F, G, _ = (c[:, None] for c in linear_thiele_innes(X, Y, x, y, w))
         return np.hstack([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)])
 
@@ -112,7 +107,7 @@ def polish_cells(trials, t, x, y, w, period_range, constraints=Constraints()):
         base[:, free] = _box_levenberg_marquardt(residuals, q0, lo, hi)
     period, e, t_peri = np.exp(base[:, 0]), base[:, 1], base[:, 2]
     A, B, F, G, chi2 = linear_thiele_innes(
-        *_basis(t, period[:, None], t_peri[:, None], e[:, None]), x, y, w)
+        *orbit_basis(t, period[:, None], t_peri[:, None], e[:, None]), x, y, w)
     return [Refined(np.array([period[k], t_peri[k], e[k], A[k], B[k], F[k], G[k]]),
                     float(chi2[k])) for k in range(len(trials))]
 
