@@ -112,3 +112,16 @@ def test_nonlinear_fit_matches_minpack():
         expected = np.linalg.inv(J.T @ J)   # forward differences: 1e-4 of the largest term
         np.testing.assert_allclose(out.covariance, expected, rtol=1e-4,
                                    atol=1e-4 * np.abs(expected).max())
+
+
+def test_no_covariance_with_a_variance_not_above_zero():
+    # The first two parameters enter only through their sum: J^T J is singular, and its
+    # numerical inverse can come out with negative variances (this start does on x86-64
+    # with OpenBLAS). A covariance is then either refused or has every variance positive
+    # (a huge one, which the fit reports as undetermined), never a negative or zero one.
+    def resid(x):
+        return (DESIGN @ np.array([x[0] + x[1], x[2], x[3]]) - DATA) / 0.05
+
+    for start in ([1.0, 0.3, 0.0, 0.0], [0.2, 0.9, -0.5, 0.1], [-1.0, 2.0, 0.3, 0.3]):
+        out = fit_bounded(resid, start, [-np.inf] * 4, [np.inf] * 4, [True] * 4)
+        assert out.covariance is None or np.all(np.diag(out.covariance) > 0.0)

@@ -250,12 +250,14 @@ def _forward_differences(f, u, r):
 
 
 def _inverse_curvature(J):
-    """(J^T J)^-1, None when singular or not finite."""
+    """(J^T J)^-1, None when singular, not finite or with a variance not above zero: an
+    inverse of a numerically singular J^T J can come out with negative variances, which
+    are no uncertainty at all."""
     try:
         cov = np.linalg.inv(J.T @ J)
     except np.linalg.LinAlgError:
         return None
-    return cov if np.all(np.isfinite(cov)) else None
+    return cov if np.all(np.isfinite(cov)) and np.all(np.diag(cov) > 0.0) else None
 
 
 def _robust(residuals, jacobian, start, lower, upper, vary, loss, budget):
@@ -270,8 +272,4 @@ def _robust(residuals, jacobian, start, lower, upper, vary, loss, budget):
                             max_nfev=2 * budget)
     except _BudgetSpent:
         return BoundedFit(f.last, None, False)
-    try:
-        cov = np.linalg.inv(out.jac.T @ out.jac)
-    except np.linalg.LinAlgError:
-        cov = None
-    return BoundedFit(f.full(out.x), cov, bool(out.success))
+    return BoundedFit(f.full(out.x), _inverse_curvature(out.jac), bool(out.success))
