@@ -18,6 +18,7 @@ from .bounded_least_squares import fit_bounded
 from .elements import (campbell_from_thiele_innes, phase_in_periastron,
                        thiele_innes_from_campbell, wrap_degrees)
 from .ephemeris import orbit_basis
+from .kepler import sin_cos_anomaly
 from .model import normalised_residuals, residual_jacobian
 
 __all__ = ["Constraints", "Refined", "polish_cells", "refine_full", "refine_campbell",
@@ -87,12 +88,35 @@ def polish_cells(trials, t, x, y, w, period_range, constraints=Constraints()):
         v[:, free] = q
         return np.exp(v[:, :1]), v[:, 1:2], v[:, 2:3]
 
-    def residuals(q):
-        """Weighted residuals (m, 2n) at points q (m, free)."""
+    free_rows = np.flatnonzero(free)
+    e_row = np.flatnonzero(free_rows == 1)
+
+    def residuals(q, h):
+        """Weighted residuals (m, 2n) at points q (m, free) and (m, free, 2n) at their
+        difference points q + h_j e_j.
+
+        Kepler's equation is solved at q only: X and Y at a difference point follow to
+        first order in h from dE/d(ln P, e, T) (as in ``model.residual_jacobian``), the
+        tangent where a second solve would give the secant; the linear solve for A, B,
+        F, G is done at every difference point, so its change with q is differenced.
+        """
         period, e, t_peri = at(q)
-        X, Y = orbit_basis(t, period, t_peri, e)
+        sin_e, cos_e = sin_cos_anomaly(t, period, t_peri, e)
+        s = np.sqrt(1.0 - e**2)
+        X, Y = cos_e - e, s * sin_e
+        D = 1.0 - e * cos_e
+        dE = np.stack([-2.0 * np.pi * (t - t_peri) / (period * D), sin_e / D,
+                       -2.0 * np.pi / (period * D)])[free_rows]            # (free, m, n)
+        dX, dY = -sin_e * dE, s * cos_e * dE
+        dX[e_row] -= 1.0
+        dY[e_row] -= (e / s) * sin_e
+        steps = h.T[:, :, None]
+        X = np.concatenate([X, (X + steps * dX).transpose(1, 0, 2).reshape(-1, t.size)])
+        Y = np.concatenate([Y, (Y + steps * dY).transpose(1, 0, 2).reshape(-1, t.size)])
         A, B, F, G, _ = (c[:, None] for c in linear_thiele_innes(X, Y, x, y, w))
-        return np.hstack([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)])
+        both = np.hstack([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)])
+        k = len(q)
+        return both[:k], both[k:].reshape(k, len(free_rows), -1)
 
     if free.any():
         span = np.array([tr.period for tr in trials])
@@ -121,13 +145,14 @@ _POLISH_TOLERANCE = 1e-4
 def _box_levenberg_marquardt(residuals, q, lo, hi):
     """Levenberg-Marquardt for many small problems at once, steps clipped to a box.
 
-    ``residuals(points)`` evaluates one residual vector per row of ``points``. Marquardt's
-    scaling (the diagonal of J^T J) damps each step; the Jacobian is by forward
-    differences (step sqrt(eps) max(1, |q|), turned inward at an upper limit). Numerical
-    Recipes, 3rd ed., section 15.5.2 (memory). Each step makes one call of ``residuals``:
-    a trial point comes with its own difference points, so an accepted trial has its
-    Jacobian ready and a rejected one leaves the last Jacobian in place (numpy's cost is
-    per call, hardly per row).
+    ``residuals(points, h)`` gives one residual vector per row of ``points`` and one per
+    difference point (the row's parameter j moved by h[row, j]). Marquardt's scaling (the
+    diagonal of J^T J) damps each step; the Jacobian is by forward differences (step
+    sqrt(eps) max(1, |q|), turned inward at an upper limit). Numerical Recipes, 3rd ed.,
+    section 15.5.2 (memory). Each step makes one call of ``residuals``: a trial point
+    comes with its own difference points, so an accepted trial has its Jacobian ready and
+    a rejected one leaves the last Jacobian in place (numpy's cost is per call, hardly
+    per row).
     """
     n_cells, n_free = q.shape
     eye = np.eye(n_free)
@@ -136,10 +161,7 @@ def _box_levenberg_marquardt(residuals, q, lo, hi):
         """Residuals at the points and at their difference points, with the steps."""
         h = np.sqrt(np.finfo(float).eps) * np.maximum(1.0, np.abs(points))
         h = np.where(points + h > upper, -h, h)
-        shifted = (points[:, None, :] + eye[None] * h[:, None, :]).reshape(-1, n_free)
-        both = residuals(np.concatenate([points, shifted]))
-        k = len(points)
-        return both[:k], both[k:].reshape(k, n_free, -1), h
+        return (*residuals(points, h), h)
 
     q = q.copy()
     r, r_shift, h = evaluate(q, hi)
