@@ -9,7 +9,7 @@ import pytest
 from orbweigh.elements import CampbellElements
 from orbweigh.ephemeris import ephemeris
 from orbweigh.measurements import MeasurementSet
-from orbweigh.revision import check_revision, compare_orbits, old_orbit_residuals
+from orbweigh.revision import chi2_tail, check_revision, compare_orbits, old_orbit_residuals
 
 OLD = CampbellElements(20.0, 2001.3, 0.35, 0.8, 55.0, 140.0, 75.0)
 SIGMA_THETA, SIGMA_RHO = 0.5, 0.01
@@ -152,3 +152,19 @@ def test_reason_names_the_last_epoch_in_the_log_scale(scale, written, shown):
     check = check_revision(OLD, data, last_epoch_yr=last)
     assert shown in check.reason and "2011.998" not in check.reason
     assert f"; {int((t > last).sum())} points newer" in check.reason
+
+
+@pytest.mark.parametrize("dof", [1, 2, 3, 4, 7, 20, 101, 1000, 4001, 10000])
+def test_chi2_tail_matches_mpmath(dof):
+    # Q(dof/2, x/2) by mpmath's regularized incomplete gamma at 40 digits, from the
+    # bulk of the distribution to both tails; below 1e-290 only an underflow is asked.
+    import mpmath
+    mpmath.mp.dps = 40
+    for x in dof * np.array([0.0, 1e-6, 0.01, 0.3, 0.8, 1.0, 1.2, 2.0, 5.0, 20.0, 100.0]):
+        ref = float(mpmath.gammainc(mpmath.mpf(dof) / 2, mpmath.mpf(x) / 2, mpmath.inf,
+                                    regularized=True))
+        if ref > 1e-290:
+            assert chi2_tail(x, dof) == pytest.approx(ref, rel=2e-10)
+        else:
+            assert chi2_tail(x, dof) < 1e-280
+    assert chi2_tail(np.inf, dof) == 0.0

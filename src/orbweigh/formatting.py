@@ -116,8 +116,9 @@ def percent(share, decimals=1):
 
 
 #: Smallest p-value written as a number; below it only the bound is shown. A tail
-#: probability from scipy's ``gammaincc`` (the chi2 tail) reads 0 once the true value is
-#: below about 1e-311, so a 0 always means "< 1e-300"; tested against mpmath.
+#: probability (``revision.chi2_tail``, the chi2 tail) reads 0 once the true value is
+#: below the smallest double (about 1e-308, 5e-324 with subnormals), so a 0 always means
+#: "< 1e-300"; tested against mpmath.
 P_FLOOR = 1e-300
 
 
