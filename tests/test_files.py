@@ -105,8 +105,9 @@ def test_full_disk_keeps_previous_batch_summary(tmp_path):
 def test_full_disk_stops_the_batch_at_the_first_failed_write(tmp_path):
     # A finished batch of three systems, run again (no --resume) with a disk that takes
     # no file of a result's size: the first system's result.json cannot be written, and
-    # the batch stops there - the other two are not fitted, nothing is announced, the
-    # message names the file, and every file of the previous run is as it was.
+    # the batch stops there - the other two are not written (the second is fitted while
+    # the first is written, then dropped), nothing is announced, the message names the
+    # file, and every file of the previous run is as it was.
     (tmp_path / "logs").mkdir()
     ids = ("first", "second", "third")
     for name in ids:

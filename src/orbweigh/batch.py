@@ -123,8 +123,9 @@ def input_hash(entry, options):
 
 def _stage(record, name, func, *args, **kwargs):
     """Run one step; on failure record '<step>: <reason>' and return None. Its CPU time
-    adds to ``record['cpu_seconds'][name]``."""
-    started = time.process_time()
+    (this thread's: a worker writes the previous system's files meanwhile) adds to
+    ``record['cpu_seconds'][name]``."""
+    started = time.thread_time()
     try:
         return func(*args, **kwargs)
     except OrbweighError as exc:
@@ -135,7 +136,7 @@ def _stage(record, name, func, *args, **kwargs):
                            f"{Path(where.filename).name}, line {where.lineno})")
     finally:
         cpu = record["cpu_seconds"]
-        cpu[name] = cpu.get(name, 0.0) + time.process_time() - started
+        cpu[name] = cpu.get(name, 0.0) + time.thread_time() - started
     return None
 
 
@@ -609,15 +610,33 @@ def _chunks(n, workers, most=16):
 
 
 def _fit_chunk(items, options, out):
-    """Worker: each (entry, input hash) processed and its files written; short records."""
-    return [_store(out, process_system(entry, options), digest) for entry, digest in items]
+    """Worker: each (entry, input hash) processed and its files written; short records.
+
+    A second thread writes each system's files while the next one is fitted: a synced
+    write mostly waits for the disk. The chunk ends when its last files are written; a
+    failed write stops it before the next system is handed to the writer."""
+    from concurrent.futures import ThreadPoolExecutor
+    saved = []
+    with ThreadPoolExecutor(1, thread_name_prefix="orbweigh-writer") as writer:
+        for entry, digest in items:
+            record = process_system(entry, options)
+            _raise_failed_write(saved)
+            saved.append(writer.submit(_store, out, record, digest))
+        return [future.result() for future in saved]
+
+
+def _raise_failed_write(saved):
+    """Raise the error of the first save that failed (the writer saves in order)."""
+    for future in saved:
+        if future.done() and future.exception() is not None:
+            raise future.exception()
 
 
 def _store(out, record, digest):
     record["input_hash"] = digest
-    started = time.process_time()
+    started = time.thread_time()
     short = _short(_save_record(out, record), record["document"])
-    short["cpu_seconds"] = dict(short["cpu_seconds"], save=time.process_time() - started)
+    short["cpu_seconds"] = dict(short["cpu_seconds"], save=time.thread_time() - started)
     return short
 
 
