@@ -823,18 +823,14 @@ def run_batch(manifest, out, options=None, workers=None, scheduler=None, resume=
 def _run_locked(manifest, out, entries, options, workers, scheduler, resume, progress):
     from tqdm import tqdm
 
-    # What the summary needs, imported now: after a Ctrl-C the summary must not wait
-    # seconds for imports (astropy, the report package) on a busy machine.
-    import astropy.table  # noqa: F401
-
     from .batch_summary import write_summary
-    from .report import tables  # noqa: F401
     bar = tqdm(total=len(entries), disable=not progress, file=_bar_stream(), unit="system")
     stream = out / STREAM_NAME
     pending = {}          # key -> input hash: handed to a worker, not heard back from yet
     try:
         with LineLog(stream) as rows, _executor(workers, scheduler) as executor:
             todo, paged = _prepare(out, entries, options, resume, rows, bar)
+            _import_for_summary()
             paged += _fit_phase(out, todo, options, executor, workers, rows, bar, pending)
             bar.close()
             _page_phase(out, paged, executor, workers, rows, pending, progress)
@@ -852,6 +848,20 @@ def _run_locked(manifest, out, entries, options, workers, scheduler, resume, pro
     counts = write_summary(out, stream, manifest, options)
     stream.unlink()
     return counts
+
+
+def _import_for_summary():
+    """Import what the summary needs (astropy's tables, the report package: 0.25 s) in a
+    thread while the workers start and fit: after a Ctrl-C the summary then need not wait
+    for imports on a busy machine. An import still running when the summary starts is
+    waited for by the import system itself."""
+    import threading
+
+    def load():
+        import astropy.table  # noqa: F401
+
+        from .report import batch_index, tables  # noqa: F401
+    threading.Thread(target=load, daemon=True, name="orbweigh-summary-imports").start()
 
 
 #: Summary rows as systems finish (JSON lines), while the batch runs; read back for the

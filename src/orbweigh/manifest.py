@@ -37,6 +37,7 @@ manifest file, line and column.
 from __future__ import annotations
 
 import csv
+import functools
 import math
 import re
 from dataclasses import dataclass, field
@@ -140,7 +141,8 @@ def read_manifest(path):
         raise InputError(f"{path}: the manifest is not UTF-8 text ({exc.reason} at byte "
                          f"{exc.start})") from None
     rows = _toml_rows(path, text) if path.suffix.lower() == ".toml" else _csv_rows(path, text)
-    entries = [_entry(path, line, row, problems) for line, row, problems in rows]
+    folder = path.resolve().parent        # once: resolving walks every path component
+    entries = [_entry(path, folder, line, row, problems) for line, row, problems in rows]
     if not entries:
         raise InputError(f"{path}: the manifest lists no systems")
     _refuse_duplicate_ids(path, entries)
@@ -271,15 +273,18 @@ class _RowProblem(Exception):
     """A problem with one value of a row (caught per row)."""
 
 
-def _entry(path, line, row, problems):
-    """Validate one row; problems go into ``entry.problem``, never raise."""
+def _entry(path, folder, line, row, problems):
+    """Validate one row (files named relative to the resolved ``folder`` of the manifest);
+    problems go into ``entry.problem``, never raise."""
     entry = SystemEntry(id=row.get("id") or f"<line {line}>", line=line, manifest=str(path),
                         fields=dict(row))
     if problems and set(row) <= {"id"}:   # nothing else of the row could be read
         entry.problem = "; ".join(problems)
         return entry
-    for check in (_check_id, _set_log, _set_previous, _set_last_epoch, _set_parallax,
-                  _set_mass_ratio, _set_rv_log, _check_masses, _set_coordinates):
+    for check in (_check_id, functools.partial(_set_log, folder=folder), _set_previous,
+                  _set_last_epoch, _set_parallax, _set_mass_ratio,
+                  functools.partial(_set_rv_log, folder=folder), _check_masses,
+                  _set_coordinates):
         try:
             check(entry, row)
         except _RowProblem as exc:
@@ -304,9 +309,9 @@ def _number(row, key, what):
     return value
 
 
-def _inside(entry, row, key):
-    """Resolved path of a file named in column ``key``, refused when it leaves the folder."""
-    folder = Path(entry.manifest).resolve().parent
+def _inside(folder, row, key):
+    """Resolved path of a file named in column ``key``, refused when it leaves the
+    manifest's ``folder``."""
     written = row[key]
     try:
         target = (folder / written).resolve()  # resolves '..' and symbolic links
@@ -323,16 +328,16 @@ def _inside(entry, row, key):
     return str(target)
 
 
-def _set_log(entry, row):
+def _set_log(entry, row, folder):
     if not row.get("log"):
         raise _RowProblem("log", "no measurement log given; give its path relative to the "
                           "manifest")
-    entry.log = _inside(entry, row, "log")
+    entry.log = _inside(folder, row, "log")
 
 
-def _set_rv_log(entry, row):
+def _set_rv_log(entry, row, folder):
     if row.get("rv_log"):
-        entry.rv_log = _inside(entry, row, "rv_log")
+        entry.rv_log = _inside(folder, row, "rv_log")
 
 
 def _epoch(row, key):
@@ -401,6 +406,8 @@ _MASS_COLUMNS = {"parallax": "parallax_mas", "mass_ratio": "q", "velocity_log": 
 
 def _check_masses(entry, row):
     """The mass inputs by the rule of the command line (``masses.check_mass_inputs``)."""
+    if entry.parallax_mas is None and entry.mass_ratio is None and not row.get("rv_log"):
+        return                               # nothing given: the rule has nothing to refuse
     # imported here: a batch worker loads this module for its rows, and masses loads
     # astropy's units and constants (0.3 s), which a worker needs only for a parallax
     from .masses import MassInputError, check_mass_inputs
