@@ -1060,7 +1060,9 @@ def _announce(bar, record, resumed=False):
             what += f"; {record['fit_note']}"
         if record["error"]:
             what += f"; FAILED: {record['error']}"
-        tail = " (done before, inputs unchanged)" if resumed else f" ({record['seconds']:.1f} s)"
+        from .formatting import number
+        tail = (" (done before, inputs unchanged)" if resumed
+                else f" ({number(record['seconds'], 2)} s)")     # 0.021 s, not 0.0 s
         bar.write(f"[{bar.n + 1}/{bar.total}] {record['id']}: {what.lstrip('; ')}{tail}",
                   file=sys.stdout)
     bar.update(1)
