@@ -253,6 +253,7 @@ def main(argv=None):
             _report(f"dask {workers}", n, run)
             print(f"  cluster start {run['setup']:.1f} s (not in the wall time); per task: "
                   + ", ".join(f"{k} {v:.1f} ms" for k, v in run["task_overhead_ms"].items()))
+            _print_steps(run, n)
         sent, back = _payload_bytes(manifests[n], scratch)
         print(f"  pickled per system: {sent:.0f} B to the worker, {back:.0f} B back")
 
