@@ -357,6 +357,25 @@ def test_warnings_column_strict_and_pages(tmp_path):
     assert (tmp_path / "strict" / "systems" / system_key("clean") / "report.html").is_file()
 
 
+def test_a_mass_no_known_binary_has_is_a_warning_of_the_summary(tmp_path):
+    # a = 0.5", P = 12 yr: a parallax of 0.5 mas makes a = 1000 au and the total mass
+    # 1000^3 / 12^2 = 6.9e6 M_sun (Kepler's third law in solar units), one of 40 mas
+    # a = 12.5 au and 12.5^3 / 144 = 13.6 M_sun.
+    cat = tmp_path / "cat"
+    (cat / "logs").mkdir(parents=True)
+    _write_log(cat / "logs" / "pair.csv", TRUE, seed=11)
+    (cat / "manifest.csv").write_text("id,log,parallax_mas,parallax_err_mas\n"
+                                      "far,logs/pair.csv,0.5,0.01\n"
+                                      "near,logs/pair.csv,40.0,0.4\n")
+    run_batch(cat / "manifest.csv", tmp_path / "out", BatchOptions(seed=5, pages="none"),
+              workers=1, progress=False)
+    rows = summary_rows(tmp_path / "out")
+    assert rows["far"]["mass_msun"] == pytest.approx(1000.0**3 / 144.0, rel=0.02)
+    assert "mass implausible: 6.86e+06 M_sun" in rows["far"]["warnings"]
+    assert rows["near"]["mass_msun"] == pytest.approx(12.5**3 / 144.0, rel=0.02)
+    assert "mass implausible" not in rows["near"]["warnings"]
+
+
 def test_a_log_turned_into_an_outward_link_after_reading_is_refused_by_the_worker(tmp_path):
     # The manifest is read (paths inside its folder), then the log is swapped for a link
     # leading out of the folder before the worker opens it: the worker checks again.

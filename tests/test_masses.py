@@ -7,7 +7,7 @@ import pytest
 from orbweigh import formatting as fmt
 from orbweigh.errors import InputError
 from orbweigh.spectroscopic import orbital_parallax_mas
-from orbweigh.masses import (
+from orbweigh.masses import (implausible_total, 
     KMS_PER_AU_YR, THIRD_LAW_FACTOR, dynamical_parallax, eker_log_luminosity,
     eker_mass_from_log_luminosity, format_mass_blocks, linear_propagation, mann_mass_from_mks,
     mass_blocks, mass_from_absolute_magnitude, total_mass_msun,
@@ -333,3 +333,24 @@ def test_v_band_needs_bolometric_corrections_and_then_equals_the_bolometric_rout
     assert via_v["parallax"]["value"] == pytest.approx(via_bol["parallax"]["value"], rel=1e-12)
     assert via_v["parallax"]["input_band"] == "V"
     assert via_v["parallax"]["bolometric_corrections"] == [-0.1, -0.3]
+
+
+@pytest.mark.parametrize("a_arcsec, period_yr, expected", [
+    (1.74, 22.2, "more than any binary known"),       # (68.8 au)^3 / (22.2 yr)^2 = 660 M_sun
+    (0.5, 39.4, None),                                # (19.8 au)^3 / (39.4 yr)^2 = 5.0 M_sun
+    (0.02, 39.4, "less than any pair"),               # (0.79 au)^3 / (39.4 yr)^2 = 3e-4 M_sun
+])
+def test_a_total_mass_no_known_binary_has_is_flagged(a_arcsec, period_yr, expected):
+    # Kepler's third law in solar units, M = (a / plx)^3 / P^2, by hand beside each case;
+    # the bounds are the order of magnitude of the known binaries (common practice).
+    rng = np.random.default_rng(3)
+    blocks = mass_blocks(rng.normal(period_yr, 0.01, 400), rng.normal(a_arcsec, 1e-4, 400),
+                         parallax=(25.3, 0.05), seed=1)
+    total = blocks["mass"]["total"]["value"]
+    assert total == pytest.approx((a_arcsec / 0.0253) ** 3 / period_yr**2, rel=0.01)
+    flagged = [w for w in blocks["warnings"] if "The total mass" in w]
+    if expected is None:
+        assert not flagged and implausible_total(total) is None
+    else:
+        assert len(flagged) == 1 and expected in flagged[0]
+        assert flagged[0] == implausible_total(total)

@@ -259,7 +259,7 @@ def _log_warnings(data):
 
 def _fit_warnings(doc):
     """What the fit set aside or could not determine: flips, outliers, short arc, P or a
-    undetermined ('do not use')."""
+    undetermined ('do not use'), a total mass no known binary has."""
     out = []
     rows = doc.get("residuals", [])
     for status, what in (("flipped", "flipped"), ("outlier", "outliers")):
@@ -275,6 +275,12 @@ def _fit_warnings(doc):
     if used and max(used) - min(used) < el["P"]["value"]:       # P is in years
         out.append(f"short arc: {100 * (max(used) - min(used)) / el['P']['value']:.0f}% "
                    "of the period")
+    total = ((doc.get("mass") or {}).get("total") or {}).get("value")
+    if total is not None:
+        from .masses import implausible_total
+        if implausible_total(total) is not None:
+            from .formatting import number
+            out.append(f"mass implausible: {number(total, 3)} M_sun")
     return out
 
 

@@ -26,7 +26,7 @@ from . import formatting as fmt
 from .errors import InputError
 from .spectroscopic import orbital_parallax_mas
 
-__all__ = ["masses_for_document", "budget_rows", "check_mass_inputs", "MassInputError",
+__all__ = ["masses_for_document", "implausible_total", "PLAUSIBLE_TOTAL_MSUN", "budget_rows", "check_mass_inputs", "MassInputError",
     "OPTION_NAMES",
     "THIRD_LAW_FACTOR", "KMS_PER_AU_YR", "EKER_RANGE_MSUN", "MANN_RANGE_MKS", "M_BOL_SUN",
     "BANDS", "total_mass_msun", "parallax_for_mass_mas",
@@ -739,8 +739,32 @@ def mass_blocks(period_draws, a_draws, parallax=None, mass_ratio=None, rv_amplit
         mass["total"] = summarise(draws.mass1_msun + draws.mass2_msun, "solMass")
         mass["primary"] = summarise(draws.mass1_msun, "solMass")
         mass["secondary"] = summarise(draws.mass2_msun, "solMass")
+    reason = implausible_total(mass["total"]["value"])
+    if reason is not None:
+        warnings.append(reason)
     mass["warnings"] = list(warnings)
     return {"mass": mass, "parallax": plx_block, "warnings": warnings}
+
+
+#: Total masses [M_sun] of the known binaries, from pairs of brown dwarfs (about 0.01
+#: M_sun together) to the heaviest massive binaries (of order 100-200 M_sun); from memory,
+#: as orders of magnitude. A total outside this range is far more likely a wrong parallax
+#: or a wrong scale of the orbit than a new kind of star.
+PLAUSIBLE_TOTAL_MSUN = (0.01, 300.0)
+
+
+def implausible_total(total_msun):
+    """Why a median total mass [M_sun] fits no known binary, or None."""
+    low, high = PLAUSIBLE_TOTAL_MSUN
+    if total_msun is None or low <= total_msun <= high:
+        return None
+    than = (f"more than any binary known (the heaviest weigh of order 100-200 M_sun)"
+            if total_msun > high else
+            f"less than any pair of stars or brown dwarfs known (the lightest weigh about "
+            f"{low:g} M_sun together)")
+    return (f"The total mass, {fmt.number(total_msun, 3)} M_sun, is {than}: check the "
+            "parallax (in mas) and the orbit's a (in arcsec), which the mass takes cubed, "
+            "before using it.")
 
 
 # ------------------------------------------------------------------------- formatting
