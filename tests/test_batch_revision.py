@@ -168,3 +168,23 @@ def test_chi2_tail_matches_mpmath(dof):
         else:
             assert chi2_tail(x, dof) < 1e-280
     assert chi2_tail(np.inf, dof) == 0.0
+
+
+def test_a_new_t_moved_by_whole_periods_carries_the_period_error():
+    # The new orbit's T, 2017.8, lies one period (12.6 yr) after the old one's, 2005.2:
+    # compared there, T = T_new - P_new, whose variance is sT^2 + sP^2 - 2 cov(P, T)
+    # (a linear combination of correlated variables); with sT = 0.002, sP = 0.064 and
+    # cov = 1e-5 yr^2 that is sqrt(4e-6 + 4.096e-3 - 2e-5) = 0.06388 yr, not 0.002.
+    old = CampbellElements(12.58, 2005.21, 0.79, 0.38, 124.0, 148.6, 331.4)
+    new = CampbellElements(12.64, 2017.79, 0.79, 0.38, 124.0, 148.6, 331.4)
+    comp = compare_orbits(old, new, 2024.0, 0.005, old_errors={},
+                          new_errors={"T": 0.002, "P": 0.064}, new_pt_covariance=1e-5)
+    t = comp["elements"]["T"]
+    assert t["new"] == pytest.approx(2017.79 - 12.64)
+    assert t["sigma"] == pytest.approx(math.sqrt(0.002**2 + 0.064**2 - 2e-5), rel=1e-12)
+    assert abs(t["n_sigma"]) == pytest.approx(abs(2005.15 - 2005.21) / 0.06388, rel=1e-3)
+    # Not moved: T keeps its own error.
+    same = compare_orbits(old, CampbellElements(12.64, 2005.15, 0.79, 0.38, 124.0, 148.6,
+                                                331.4), 2024.0, 0.005, old_errors={},
+                          new_errors={"T": 0.002, "P": 0.064}, new_pt_covariance=1e-5)
+    assert same["elements"]["T"]["sigma"] == pytest.approx(0.002)

@@ -71,7 +71,6 @@ __all__ = ["BatchOptions", "system_seed", "system_key", "input_hash", "process_s
 #: Order of the summary: most urgent first ('failed' = no verdict because of an error).
 URGENCY = ("contradicted", "drifting", "failed", "no previous orbit", "no new data",
            "consistent")
-_JULIAN_YEAR_D = 365.25
 
 
 @dataclass(frozen=True)
@@ -328,18 +327,16 @@ def _add_combined(doc, solution, entry, seed):
 
 def _compare(entry, doc, data, check):
     """Old against new: the new elements are the document's (combined ones with an RV log)."""
-    from .reductions import epoch_unit
-    from .result import elements_from_document
+    from .result import covariance_from_document, element_errors, elements_from_document
     from .revision import compare_orbits, typical_sigma_arcsec
     usable = data.usable
     new = np.array([r["new"] for r in check.residuals]) & usable
-    errors = {k: v["error"] for k, v in doc["elements"].items() if v.get("error") is not None}
-    if "T" in errors and epoch_unit(doc["elements"]["T"].get("scale", "besselian")) == "d":
-        errors["T"] /= _JULIAN_YEAR_D
+    cov = covariance_from_document(doc)
     return compare_orbits(entry.previous, elements_from_document(doc),
                           start_yr=float(data.epoch_yr[usable].max()),
                           sigma_arcsec=typical_sigma_arcsec(data, new if new.any() else usable),
-                          old_errors=entry.previous_errors, new_errors=errors)
+                          old_errors=entry.previous_errors, new_errors=element_errors(doc),
+                          new_pt_covariance=0.0 if cov is None else float(cov[0, 1]))
 
 
 def _report_files(doc, system_id):

@@ -321,18 +321,18 @@ def align_orbits(old, new):
 
     Both are normalised; the new (Omega, omega) take the common 180 deg shift that brings
     the nodes closest; the new T is moved by whole new periods to the passage nearest the
-    old T. Returns (old, new, new T [Julian yr]).
+    old T. Returns (old, new, new T [Julian yr], the whole periods it was moved by).
     """
     old, new = old.normalised(), new.normalised()
     if abs(wrap_degrees(new.node_deg - old.node_deg)) > 90.0:
         new = CampbellElements(new.period_yr, new.periastron_yr, new.e, new.a_arcsec, new.i_deg,
                                new.node_deg + 180.0, new.omega_deg + 180.0)
-    turns = np.round((old.periastron_yr - new.periastron_yr) / new.period_yr)
-    return old, new, float(new.periastron_yr + turns * new.period_yr)
+    turns = int(np.round((old.periastron_yr - new.periastron_yr) / new.period_yr))
+    return old, new, float(new.periastron_yr + turns * new.period_yr), turns
 
 
 def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors=None,
-                   years=10.0, n_epochs=401):
+                   years=10.0, n_epochs=401, new_pt_covariance=0.0):
     """Element changes in sigma and the ephemeris difference over the next decade.
 
     Parameters
@@ -345,7 +345,12 @@ def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors
         Typical positional sigma of a measurement [arcsec] (``typical_sigma_arcsec``), or
         one sigma for each of the ``n_epochs`` window epochs (e.g. the new orbit's band).
     old_errors, new_errors : dict, optional
-        1-sigma errors by element key, internal units; missing keys count as 0.
+        1-sigma errors by element key, internal units; missing keys count as 0. The new
+        T moved by k periods (``align_orbits``) has the error
+        sqrt(sigma_T^2 + k^2 sigma_P^2 + 2 k cov(P, T)).
+    new_pt_covariance : float
+        cov(P, T) of the new orbit [yr^2] (0 when unknown: the fit's T, the passage
+        nearest its mean epoch, is the one least correlated with P).
     years : float
         Length of the prediction window [yr].
     n_epochs : int
@@ -358,10 +363,13 @@ def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors
         error is known); ``window_yr``; ``max_separation_arcsec``; ``epoch_of_max_yr``;
         ``max_separation_sigma``; ``typical_sigma_arcsec``.
     """
-    old_errors, new_errors = old_errors or {}, new_errors or {}
-    old_n, new_n, new_t = align_orbits(old, new)
+    old_errors, new_errors = old_errors or {}, dict(new_errors or {})
+    old_n, new_n, new_t, turns = align_orbits(old, new)
     old_v, new_v = old_n.to_keys(), new_n.to_keys()
     new_v["T"] = new_t
+    if turns and "T" in new_errors:
+        new_errors["T"] = math.sqrt(max(new_errors["T"] ** 2 + turns**2 * new_errors.get(
+            "P", 0.0) ** 2 + 2 * turns * new_pt_covariance, 0.0))
     elements = {}
     for key in ELEMENT_KEYS:
         diff = new_v[key] - old_v[key]

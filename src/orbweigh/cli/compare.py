@@ -95,14 +95,16 @@ def _total_mass(doc):
 def compare_documents(old_doc, new_doc, start_yr, stop_yr, n_draws=1000, seed=1,
                       n_epochs=401):
     """The comparison of two documents as a JSON-ready dict (see the module notes)."""
-    from ..result import element_errors, elements_from_document
+    from ..result import covariance_from_document, element_errors, elements_from_document
     from ..revision import compare_orbits
     epochs = np.linspace(start_yr, stop_yr, n_epochs)
     sigma = position_sigma_arcsec(new_doc, epochs, n_draws, seed)
+    cov = covariance_from_document(new_doc)
     comp = compare_orbits(elements_from_document(old_doc), elements_from_document(new_doc),
                           start_yr, sigma if sigma is not None else np.nan,
                           element_errors(old_doc), element_errors(new_doc),
-                          years=stop_yr - start_yr, n_epochs=n_epochs)
+                          years=stop_yr - start_yr, n_epochs=n_epochs,
+                          new_pt_covariance=0.0 if cov is None else float(cov[0, 1]))
     from ..result import epoch_scale_of
     out = {"old": old_doc["_path"], "new": new_doc["_path"], "elements": {},
            "epoch_scale": epoch_scale_of(new_doc)}
@@ -111,7 +113,9 @@ def compare_documents(old_doc, new_doc, start_yr, stop_yr, n_draws=1000, seed=1,
                                 "sigma": e["sigma"] or None, "difference_sigma": e["n_sigma"]}
     out["elements"]["T"]["note"] = ("Julian years (the text output writes T in the new "
                                     "orbit's epoch scale, epoch_scale); new T moved by whole "
-                                    "periods to the passage nearest the old T")
+                                    "periods to the passage nearest the old T, its sigma "
+                                    "with the period's (k periods: sqrt(sT^2 + k^2 sP^2 + "
+                                    "2k cov(P, T)))")
     out.update(window_yr=comp["window_yr"], max_separation_arcsec=comp["max_separation_arcsec"],
                epoch_of_max_yr=comp["epoch_of_max_yr"],
                max_separation_sigma=(comp["max_separation_sigma"] if sigma is not None
