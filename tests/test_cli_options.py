@@ -214,3 +214,18 @@ def test_head_of_a_pipe_gets_its_line_and_no_error(tmp_path):
                        "| head -1"], capture_output=True, text=True, timeout=120, env=env)
     assert shell.stdout == "{\n"
     assert "Broken pipe" not in shell.stderr and "Traceback" not in shell.stderr
+
+
+def test_too_few_usable_rows_name_the_lines_left_out(tmp_path, capsys):
+    # Two usable measurements, one rejected (a letter O for a zero), one excluded by its
+    # flag: the refusal says which lines were left out and why; so does the velocity log's.
+    log = tmp_path / "short.csv"
+    log.write_text("epoch,theta,rho,flag\n2000.0,10,0.5,\n2001.0,20,0.5,\n"
+                   "2002.0,30,O.5,\n2003.0,40,0.5,x\n")
+    _refused(capsys, ["fit", str(log)], "2 usable measurements", "Left out: 1 line rejected "
+             "(line 4, column 'rho': 'O.5' is not a number", "1 excluded by its flag (line 5)")
+    rv = tmp_path / "rv.csv"
+    rv.write_text("epoch,component,rv,sigma_rv\n2010.5,1,abc,0.5\n2011.5,2,3.0,0.5\n")
+    sample = Path(__file__).parents[1] / "sample_measurements" / "measurements.csv"
+    _refused(capsys, ["fit", str(sample), "--rv", str(rv), "--quiet"],
+             "1 usable radial velocity;", "1 line rejected (line 2, column 'rv'")

@@ -55,6 +55,7 @@ from .model import normalised_residuals, predict_theta_rho, wrap_degrees
 from .reductions import from_julian_year, interval_in_scale
 from .spectroscopic import (component_masses_from_orbit, mass_function_msun,
                             radial_velocities, semi_major_axis_au_from_rv)
+from .tables import rows_left_out
 
 __all__ = ["PARAMETER_KEYS", "PARAMETER_UNITS", "NODE_DECISIVE_DELTA_CHI2", "JointData",
            "CombinedSolution", "rv_model", "joint_residuals", "fit_combined", "parameter_draws",
@@ -357,8 +358,12 @@ def fit_combined(solution, velocities):
     """
     data = JointData.from_solution(solution, velocities)
     if data.t_rv.size < 3:
-        raise InputError(f"{velocities.source}: {data.t_rv.size} usable radial velocities; a "
-                         "combined solution needs at least 3 (gamma and an amplitude)")
+        left_out = rows_left_out(velocities.rejected, velocities.line[velocities.excluded])
+        usable = fmt.counted(data.t_rv.size, "usable radial velocity",
+                             "usable radial velocities")
+        raise InputError(f"{velocities.source}: {usable}; a combined solution needs at least "
+                         "3 (gamma and an amplitude)"
+                         + (f". Left out: {left_out}" if left_out else ""))
     held = held_constraints(solution.options, solution.data).fixed
     keys = tuple(k for k in ELEMENT_KEYS if k not in held) + ("gamma",) + data.amplitude_keys()
     (values, chi2, covar), (other, other_chi2, _) = _node_fits(solution, data, keys, held)

@@ -28,12 +28,14 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from . import formatting as fmt
 from .elements import ELEMENT_KEYS, held_elements
 from .errors import FitError, InputError
 from .model import normalised_residuals
 from .refine import Constraints, polish_cells, refine_full
 from .search import default_period_range, grid_search, isotropic_weights
 from .solution import OrbitSolution, build_solution
+from .tables import rows_left_out
 from .technique_weights import MIN_POINTS, scale_factors, technique_statistics
 
 __all__ = ["FitOptions", "fit_orbit", "held_constraints"]
@@ -235,8 +237,10 @@ def _fit(data, options):
     started = time.perf_counter()
     usable = np.flatnonzero(data.usable)
     if usable.size < _MIN_POINTS:
-        raise FitError(f"{data.source}: {usable.size} usable measurements; an orbit needs at "
-                       f"least {_MIN_POINTS} (7 elements from 2 coordinates per point)")
+        left_out = rows_left_out(data.rejected, data.line[data.excluded])
+        raise FitError(f"{data.source}: {fmt.counted(usable.size, 'usable measurement')}; an "
+                       f"orbit needs at least {_MIN_POINTS} (7 elements from 2 coordinates "
+                       f"per point)" + (f". Left out: {left_out}" if left_out else ""))
     epochs = np.unique(np.round(data.epoch_yr[usable], 3))
     if epochs.size < _MIN_POINTS:
         raise FitError(f"{data.source}: the usable measurements fall on {epochs.size} distinct "

@@ -39,10 +39,28 @@ from .errors import InputError, LogFormatError
 
 __all__ = ["read_bounded_bytes", "split_lines", "read_table", "collect_rows", "epochs_in_days",
            "parse_column_mapping", "is_number", "LogTable", "RowProblem", "RowError",
+           "rows_left_out",
            "MISSING_MARKERS", "KEEP_FLAGS", "MAX_LOG_BYTES"]
 
 MISSING_MARKERS = frozenset({"", "-", "--", "na", "n/a", "nan", "null", "none"})
 KEEP_FLAGS = MISSING_MARKERS | {"0", "no", "false", "ok"}
+
+
+def rows_left_out(rejected, excluded_lines=(), most=3):
+    """What kept a log's lines from use, for a message that finds too few usable: '2 lines
+    rejected (line 2, column 'rv': ... | line 3, column 'rv': ...), 1 excluded by its flag
+    (line 7)'; '' when nothing was left out. The first ``most`` reasons are given (a
+    reason may hold semicolons, hence the bars)."""
+    from .formatting import counted, line_list
+    parts = []
+    if rejected:
+        reasons = " | ".join(f"line {p.line}" + (f", column '{p.column}'" if p.column else "")
+                             + f": {p.reason}" for p in rejected[:most])
+        more = f" | {len(rejected) - most} more" if len(rejected) > most else ""
+        parts.append(f"{counted(len(rejected), 'line')} rejected ({reasons}{more})")
+    if len(excluded_lines):
+        parts.append(f"{len(excluded_lines)} excluded by its flag ({line_list(excluded_lines)})")
+    return ", ".join(parts)
 
 
 def read_bounded_bytes(path, limit, what="file"):
