@@ -324,6 +324,15 @@ def test_velocity_figure_points_axes_and_labels(built):
     assert hollow.get_markerfacecolor() == "none"
 
 
+def test_velocity_phase_of_a_circular_orbit_is_not_counted_from_periastron(built):
+    # e = 0: no periastron; T is where the argument of latitude is omega (the node passage
+    # with the convention omega = 0), and the phase axis says so.
+    doc, _, _ = _rv_doc(built[0])
+    doc["elements"]["e"] = {**doc["elements"]["e"], "value": 0.0}
+    label = figures.plot_radial_velocities(doc)["phase_oc"].get_xlabel()
+    assert "periastron" not in label and "node passage" in label and "circular" in label
+
+
 def test_report_of_a_combined_solution_has_the_velocity_figure(built, tmp_path):
     from orbweigh.report.writer import write_report
     doc, _, _ = _rv_doc(built[0])

@@ -763,11 +763,19 @@ def _time_grid(t_yr, period_yr):
     return np.linspace(lo - pad, hi + pad, n)
 
 
+def _phase_label(e):
+    """A circular orbit has no periastron: its T is where the argument of latitude is
+    omega, the node passage with the convention omega = 0."""
+    return ("Orbital phase (0 at periastron)" if e > 0.0 else
+            "Orbital phase (0 at T: the node passage for \u03c9 = 0; circular orbit)")
+
+
 def plot_radial_velocities(doc, axes=None):
     """Velocities of each component against orbital phase and against time, with the model.
 
     Top: measured velocities (error bars: sigma as used) and the model curves of the
-    combined solution; bottom: O-C. Left against the orbital phase (0 at periastron T),
+    combined solution; bottom: O-C. Left against the orbital phase (0 at periastron T, or
+    for a circular orbit at T, the node passage for omega = 0),
     right against the epoch in the velocity log's own scale. Excluded rows are hollow.
 
     Parameters
@@ -832,7 +840,7 @@ def plot_radial_velocities(doc, axes=None):
             bottom.set_ylabel(r"O$-$C [km s$^{-1}$]")
             top.set_ylabel(r"Radial velocity [km s$^{-1}$]")
         axes["phase"].set_xlim(0.0, 1.0)
-        axes["phase_oc"].set_xlabel("Orbital phase (0 at periastron)")
+        axes["phase_oc"].set_xlabel(_phase_label(el.e))
         axes["time_oc"].set_xlabel(epoch_text)
         if key_ax is not None:
             _fit_width(key_ax.figure, key_rows, "")

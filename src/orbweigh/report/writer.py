@@ -31,7 +31,8 @@ _CAPTIONS = {
     "mass_histogram": "Total mass of the posterior draws: median, 68 % and 95 % intervals "
                       "of the plotted draws.",
     "radial_velocity": "Radial velocities of each component against the orbital phase (left, "
-                       "0 at periastron) and against time (right, in the velocity log's "
+                       "0 at periastron; for a circular orbit at T, the node passage when "
+                       "\u03c9 = 0) and against time (right, in the velocity log's "
                        "scale), with the combined solution's model curves and the systemic "
                        "velocity (dashed); observed minus computed below. Error bars: the "
                        "velocity errors as used; hollow points are excluded by the log.",
