@@ -7,7 +7,8 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from orbweigh.kepler import eccentric_anomaly, mean_anomaly, true_anomaly
+from orbweigh.kepler import (anomaly_near, eccentric_anomaly, mean_anomaly, sin_cos_anomaly,
+                            true_anomaly)
 
 #: The solver's contract: max |E - e sin E - M| below this [rad].
 RESIDUAL_TOL = 1e-12
@@ -203,3 +204,20 @@ def test_sine_and_cosine_at_epochs_are_those_of_the_anomaly(t, period, t_peri, e
     rounding = 1e-13 * (1.0 + turns) / (1.0 - e)
     assert np.all(np.abs(sin_e - np.sin(E)) < rounding)
     assert np.all(np.abs(cos_e - np.cos(E)) < rounding)
+
+
+@pytest.mark.parametrize("e", [0.0, 0.3, 0.9, 0.995])
+@pytest.mark.parametrize("shift", [1e-7, 1e-3, 0.2, 5.0])
+def test_a_solve_started_near_another_solves_kepler_equation(e, shift):
+    # The start from a nearby orbit's solution (a least-squares fit's last point) changes
+    # only where the iteration begins: the result satisfies Kepler's equation as the cold
+    # solve does, however far the "near" orbit is (shift in T, e changed too), across the
+    # turn's end (epochs spanning many periods) and at the bracket's corner e -> 1.
+    t = np.linspace(1990.0, 2030.0, 97)
+    near = anomaly_near(t, 7.3, 2001.2, max(e - 0.01, 0.0))
+    sin_e, cos_e, m_red, _ = anomaly_near(t, 7.3, 2001.2 + shift, e, near)
+    E = np.arctan2(sin_e, cos_e)
+    assert np.max(np.abs(E - e * np.sin(E) - m_red)) < 1e-12
+    cold = sin_cos_anomaly(t, 7.3, 2001.2 + shift, e)
+    np.testing.assert_allclose(sin_e, cold[0], atol=1e-13)
+    np.testing.assert_allclose(cos_e, cold[1], atol=1e-13)

@@ -13,7 +13,7 @@ import numpy as np
 
 from .elements import wrap_degrees
 from .ephemeris import orbit_xy, xy_to_theta_rho
-from .kepler import sin_cos_anomaly
+from .kepler import anomaly_near
 
 __all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_jacobian",
            "wrap_degrees"]
@@ -26,20 +26,21 @@ class _LastAnomaly(threading.local):
     """sin E and cos E of the last (t, P, T, e) solved in this thread.
 
     Levenberg-Marquardt evaluates the Jacobian at the point whose residuals it has just
-    evaluated: the same Kepler solution, a third of the refinement's Kepler solves. The
-    epoch array is held (not only its id), so another cannot take its address; P, T, e
-    must match exactly. One per thread (a Dask worker may fit in several threads).
+    evaluated: the same Kepler solution, a third of the refinement's Kepler solves. Its
+    next point is near the last, whose E then starts the solve. The epoch array is held
+    (not only its id), so another cannot take its address; P, T, e must match exactly.
+    One per thread (a Dask worker may fit in several threads).
     """
 
     def __init__(self):
-        self.t, self.key, self.sin_cos = None, None, None
+        self.t, self.key, self.state = None, None, None
 
     def solve(self, t, P, T, e):
         key = (float(P), float(T), float(e))
-        if self.t is not t or self.key != key:
-            self.sin_cos = sin_cos_anomaly(t, P, T, e)
+        if self.t is not t or self.key != key:     # the last point's E starts the solve
+            self.state = anomaly_near(t, P, T, e, self.state if self.t is t else None)
             self.t, self.key = t, key
-        return self.sin_cos
+        return self.state[:2]
 
 
 _LAST_ANOMALY = _LastAnomaly()
