@@ -26,8 +26,8 @@ from . import formatting as fmt
 from .errors import InputError
 from .spectroscopic import orbital_parallax_mas
 
-__all__ = ["masses_for_document", "implausible_total", "PLAUSIBLE_TOTAL_MSUN", "budget_rows", "check_mass_inputs", "MassInputError",
-    "OPTION_NAMES",
+__all__ = ["masses_for_document", "implausible_total", "PLAUSIBLE_TOTAL_MSUN", "budget_rows",
+    "check_mass_inputs", "MassInputError", "OPTION_NAMES",
     "THIRD_LAW_FACTOR", "KMS_PER_AU_YR", "EKER_RANGE_MSUN", "MANN_RANGE_MKS", "M_BOL_SUN",
     "BANDS", "total_mass_msun", "parallax_for_mass_mas",
     "linear_propagation", "eker_log_luminosity", "eker_mass_from_log_luminosity",

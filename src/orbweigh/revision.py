@@ -64,8 +64,9 @@ from .ephemeris import ephemeris
 from .fitting import FLIP_MIN_GAIN
 from .model import wrap_degrees
 
-__all__ = ["ALPHA", "chi2_tail", "ERROR_INFLATION", "VERDICTS", "RevisionCheck", "old_orbit_residuals",
-           "check_revision", "typical_sigma_arcsec", "align_orbits", "compare_orbits"]
+__all__ = ["ALPHA", "chi2_tail", "ERROR_INFLATION", "VERDICTS", "RevisionCheck",
+           "old_orbit_residuals", "check_revision", "typical_sigma_arcsec", "align_orbits",
+           "compare_orbits"]
 
 #: Size of each test (false-alarm probability).
 ALPHA = 0.01

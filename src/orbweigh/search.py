@@ -213,10 +213,11 @@ def grid_search(t, x, y, w, period_range, n_best=12, e=None, t_peri=None):
 
 class _Buffers(threading.local):
     """The search's largest arrays, reused from chunk to chunk and search to search in
-    this thread. Made afresh, each (a few MB) is mapped and unmapped by malloc wherever
-    its adaptive threshold is off, as in a Dask worker (MALLOC_TRIM_THRESHOLD_ set by its
-    nanny), and every page of it faults. Measured per search (40 catalogue logs): 4.5 ms
-    of CPU, and 14.0 with that variable set; with the buffers 4.5 and 5.7."""
+    this thread (about 2 MB, kept). Made afresh, each (0.2 to 2 MB) is mapped and unmapped
+    by malloc wherever its adaptive threshold is off, as in a Dask worker
+    (MALLOC_TRIM_THRESHOLD_ set by its nanny), and every page of it faults. Measured per
+    search (40 catalogue logs): 4.5 ms of CPU, and 14.0 with that variable set; with the
+    buffers 4.5 and 5.7."""
 
     def get(self, name, shape, dtype):
         size = math.prod(shape)
