@@ -279,3 +279,15 @@ def test_flips_never_exceed_a_quarter_of_the_points():
     epochs = over_periods(WELL_COVERED, 24, 1.5)
     sol = fit(WELL_COVERED, epochs, seed=5, plant_flips=tuple(range(0, 24, 2)))
     assert (sol.status == "flipped").sum() <= 6
+
+
+def test_warnings_count_in_the_singular_for_one_row():
+    # The sample log has one outlier (line 16) and two flips: one row is 'an outlier'.
+    from pathlib import Path
+
+    from orbweigh.measurements import read_measurements
+    log = Path(__file__).resolve().parents[1] / "sample_measurements" / "measurements.csv"
+    sol = fit_orbit(read_measurements(log), FitOptions(seed=1))
+    assert "1 measurement left out as an outlier beyond 4 sigma (line 16)." in sol.warnings
+    assert "2 measurements corrected for a 180 deg quadrant error (lines 56, 69)." \
+        in sol.warnings

@@ -494,8 +494,10 @@ def _warnings(sol, data, rows, flipped, outlier, best):
         out.append(f"{fmt.counted(int(flipped.sum()), 'measurement')} corrected for a 180 deg "
                    f"quadrant error ({_lines(data, rows[flipped])}).")
     if outlier.any():
-        out.append(f"{fmt.counted(int(outlier.sum()), 'measurement')} left out as outliers "
-                   f"beyond {sol.options.outlier_sigma:g} sigma ({_lines(data, rows[outlier])}).")
+        n_out = int(outlier.sum())
+        out.append(f"{fmt.counted(n_out, 'measurement')} left out as "
+                   f"{'an outlier' if n_out == 1 else 'outliers'} beyond "
+                   f"{sol.options.outlier_sigma:g} sigma ({_lines(data, rows[outlier])}).")
     defaulted = np.flatnonzero(data.sigma_defaulted)
     if defaulted.size:
         out.append(f"{fmt.counted(defaulted.size, 'measurement')} had no sigma and used the "
