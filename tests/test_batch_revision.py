@@ -182,6 +182,7 @@ def test_a_new_t_moved_by_whole_periods_carries_the_period_error():
     t = comp["elements"]["T"]
     assert t["new"] == pytest.approx(2017.79 - 12.64)
     assert t["sigma"] == pytest.approx(math.sqrt(0.002**2 + 0.064**2 - 2e-5), rel=1e-12)
+    assert t["new_error"] == t["sigma"]          # the old T has no error here
     assert abs(t["n_sigma"]) == pytest.approx(abs(2005.15 - 2005.21) / 0.06388, rel=1e-3)
     # Not moved: T keeps its own error.
     same = compare_orbits(old, CampbellElements(12.64, 2005.15, 0.79, 0.38, 124.0, 148.6,

@@ -360,8 +360,8 @@ def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors
     Returns
     -------
     dict
-        ``elements``: {key: {old, new, difference, sigma, n_sigma}} (n_sigma None when no
-        error is known); ``window_yr``; ``max_separation_arcsec``; ``epoch_of_max_yr``;
+        ``elements``: {key: {old, new, difference, sigma, n_sigma, new_error}} (n_sigma
+        None when no error is known; new_error: the new value's, T's as moved, or None); ``window_yr``; ``max_separation_arcsec``; ``epoch_of_max_yr``;
         ``max_separation_sigma``; ``typical_sigma_arcsec``.
     """
     old_errors, new_errors = old_errors or {}, dict(new_errors or {})
@@ -378,7 +378,8 @@ def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors
             diff = float(wrap_degrees(diff))
         sigma = float(np.hypot(old_errors.get(key, 0.0), new_errors.get(key, 0.0)))
         elements[key] = {"old": old_v[key], "new": new_v[key], "difference": float(diff),
-                         "sigma": sigma, "n_sigma": float(diff / sigma) if sigma > 0 else None}
+                         "sigma": sigma, "n_sigma": float(diff / sigma) if sigma > 0 else None,
+                         "new_error": new_errors.get(key)}
     epochs = np.linspace(start_yr, start_yr + years, n_epochs)
     a, b = ephemeris(old, epochs), ephemeris(new, epochs)
     separation = np.hypot(a.x_arcsec - b.x_arcsec, a.y_arcsec - b.y_arcsec)

@@ -109,8 +109,9 @@ def compare_documents(old_doc, new_doc, start_yr, stop_yr, n_draws=1000, seed=1,
     out = {"old": old_doc["_path"], "new": new_doc["_path"], "elements": {},
            "epoch_scale": epoch_scale_of(new_doc)}
     for key, e in comp["elements"].items():
-        out["elements"][key] = {"old": e["old"], "new": e["new"], "difference": e["difference"],
-                                "sigma": e["sigma"] or None, "difference_sigma": e["n_sigma"]}
+        out["elements"][key] = {"old": e["old"], "new": e["new"], "new_error": e["new_error"],
+                                "difference": e["difference"], "sigma": e["sigma"] or None,
+                                "difference_sigma": e["n_sigma"]}
     out["elements"]["T"]["note"] = ("Julian years (the text output writes T in the new "
                                     "orbit's epoch scale, epoch_scale); new T moved by whole "
                                     "periods to the passage nearest the old T, its sigma "
@@ -160,7 +161,7 @@ def _difference(value, sigma):
     return number(value, 4)
 
 
-def _text(c, old_errors, new_errors):
+def _text(c, old_errors):
     from ..formatting import epoch_label, number
     scale = c.get("epoch_scale", "julian")
     lines = [f"compare {c['old']} (old) with {c['new']} (new)",
@@ -168,7 +169,7 @@ def _text(c, old_errors, new_errors):
     for key, e in c["elements"].items():
         ns = "" if e["difference_sigma"] is None else f"{e['difference_sigma']:9.2f}"
         lines.append(f"{key:>8s} {_element_cell(key, e['old'], old_errors.get(key), scale):>22s} "
-                     f"{_element_cell(key, e['new'], new_errors.get(key), scale):>22s} "
+                     f"{_element_cell(key, e['new'], e.get('new_error'), scale):>22s} "
                      f"{_difference(e['difference'], e.get('sigma')):>11s} {ns}")
     lines.append(f"(Omega, omega after the common 180 deg shift; T as a {epoch_label(scale)}, "
                  "the new T at the passage nearest the old one; T's difference in yr)")
@@ -238,5 +239,5 @@ def run(args):
         _figure(args.figure, old_doc, new_doc, comp)
     if args.json != "-":
         from ..result import element_errors
-        print(_text(comp, element_errors(old_doc), element_errors(new_doc)))
+        print(_text(comp, element_errors(old_doc)))
     return 0

@@ -179,7 +179,8 @@ def _elements_table(record):
             f"<tr data-element='{key}'><td>{escape(ELEMENT_NAMES[key][0])} "
             f"{escape(ELEMENT_NAMES[key][2])}</td>"
             + _num(e["old"], _element_cells(key, e["old"], old_err.get(key), scale)[0])
-            + _num(e["new"], _element_cells(key, e["new"], new_err.get(key), scale)[0])
+            + _num(e["new"], _element_cells(key, e["new"], e.get("new_error", new_err.get(key)),
+                                            scale)[0])
             + f"<td>{escape(unit)}</td>"
             + _num(to_unit(e["difference"]), fm.value_error(to_unit(e["difference"]),
                                                             None if sigma is None
