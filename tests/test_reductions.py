@@ -6,7 +6,8 @@ from orbweigh.errors import InputError
 from orbweigh.reductions import (EPOCH_SCALES, approx_theta_correction_deg, parse_declination,
                                  parse_epoch, parse_epochs, parse_right_ascension,
                                  parse_target_coordinates, precess_theta_to_date,
-                                 precess_theta_to_j2000, split_epoch)
+                                 precess_theta_to_j2000, split_epoch, to_julian_year,
+                                 from_julian_year)
 
 J2000_JD = 2451545.0  # IAU 1976 definition of J2000.0 (memory)
 B1950_JD = 2433282.4235  # B1950.0, IAU definition (Lieske 1979, A&A 73, 282; memory)
@@ -166,3 +167,15 @@ def test_sexagesimal_coordinates_read_as_astropy_reads_them(text, unit):
 def test_malformed_sexagesimal_is_refused(text):
     with pytest.raises(InputError, match="neither degrees nor sexagesimal"):
         parse_declination(text)
+
+
+def test_besselian_years_convert_as_astropy_converts_them():
+    # The closed form (Lieske 1979) against astropy's 'byear' format in TT, both ways,
+    # over the span of visual double-star logs; and a round trip.
+    from astropy.time import Time
+    b = np.linspace(1750.0, 2100.0, 2001)
+    j = to_julian_year(b, "besselian")
+    np.testing.assert_allclose(j, Time(b, format="byear", scale="tt").jyear, rtol=0, atol=1e-9)
+    np.testing.assert_allclose(from_julian_year(j, "besselian"), b, rtol=0, atol=1e-10)
+    np.testing.assert_allclose(from_julian_year(j, "besselian"),
+                               Time(j, format="jyear", scale="tt").byear, rtol=0, atol=1e-9)
