@@ -40,8 +40,12 @@ def test_third_law_factor_and_velocity_unit():
     assert THIRD_LAW_FACTOR == pytest.approx(1.0000378, abs=1e-7)
     # 1 au/yr = 4.740470 km/s (Hipparcos Catalogue, ESA SP-1200, 1997, vol. 1; memory).
     assert KMS_PER_AU_YR == pytest.approx(4.740470, abs=1e-6)
+    from astropy import constants
     from astropy import units as u
     assert KMS_PER_AU_YR == pytest.approx((u.au / u.yr).to(u.km / u.s), rel=1e-12)
+    # The constants written as numbers are astropy's (IAU 2012 au, IAU 2015 GM_sun).
+    expected = (4 * np.pi**2 * constants.au**3 / (constants.GM_sun * (1 * u.yr) ** 2))
+    assert THIRD_LAW_FACTOR == pytest.approx(expected.decompose().value, rel=1e-14)
 
 
 # ----------------------------------------------------------------- published binaries
