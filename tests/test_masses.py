@@ -43,7 +43,7 @@ def test_third_law_factor_and_velocity_unit():
     from astropy import constants
     from astropy import units as u
     assert KMS_PER_AU_YR == pytest.approx((u.au / u.yr).to(u.km / u.s), rel=1e-12)
-    # The constants written as numbers are astropy's (IAU 2012 au, IAU 2015 GM_sun).
+    # orbweigh.constants, written as numbers, are astropy's (IAU 2012 au, IAU 2015 GM_sun).
     expected = (4 * np.pi**2 * constants.au**3 / (constants.GM_sun * (1 * u.yr) ** 2))
     assert THIRD_LAW_FACTOR == pytest.approx(expected.decompose().value, rel=1e-14)
 

@@ -10,8 +10,7 @@ Third law (the IAU constants, no literal 1)::
 
 with f = 4 pi^2 au^3 / (GM_sun yr^2) = 1.0000378 for the Julian year, the nominal
 solar mass parameter (IAU 2015 Resolution B3) and the astronomical unit (IAU 2012
-Resolution B2), written here as numbers (the same as astropy.constants' IAU 2015 values,
-tested), so that a mass costs no import of astropy's units (0.13 s).
+Resolution B2), from ``orbweigh.constants``.
 
 Random draws use the stream ``SeedSequence(seed).spawn(1)[0]``, independent of a
 ``default_rng(seed)`` that made the (P, a) draws with the same seed.
@@ -23,6 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import formatting as fmt
+from .constants import KMS_PER_AU_YR, THIRD_LAW_FACTOR
 from .errors import InputError
 from .spectroscopic import orbital_parallax_mas
 
@@ -36,13 +36,6 @@ __all__ = ["masses_for_document", "implausible_total", "PLAUSIBLE_TOTAL_MSUN", "
     "format_mass_blocks",
 ]
 
-_YEAR_S = 365.25 * 86400.0  # Julian year [s], the internal time unit
-_AU_M = 149_597_870_700.0     # the astronomical unit [m], exact (IAU 2012 Resolution B2)
-_GM_SUN_M3_S2 = 1.3271244e20  # nominal solar mass parameter (IAU 2015 Resolution B3)
-#: 4 pi^2 au^3 / (GM_sun yr^2): the third law's factor in solar units, Julian year.
-THIRD_LAW_FACTOR = float(4.0 * np.pi**2 * _AU_M**3 / (_GM_SUN_M3_S2 * _YEAR_S**2))
-#: 1 au per Julian year in km/s.
-KMS_PER_AU_YR = _AU_M / 1e3 / _YEAR_S
 #: Bolometric magnitude of the Sun (IAU 2015 Resolution B2).
 M_BOL_SUN = 4.74
 

@@ -17,7 +17,8 @@ Convention (stated once, used everywhere in orbweigh):
   that leaves the apparent orbit unchanged flips the sign of every velocity.
 
 Units are in the names: K in km/s, periods in days (spectroscopic formulas, the trade's
-custom) or Julian years (orbit formulas). Constants come from astropy, not typed in.
+custom) or Julian years (orbit formulas). Constants come from ``orbweigh.constants`` (the
+IAU's numbers, tested against astropy.constants).
 
 Velocity logs (``read_velocities``) are read like measurement logs, by ``tables.read_table``:
 CSV, tab- or whitespace-separated or ECSV; columns ``epoch, component, rv, sigma_rv``
@@ -30,6 +31,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from .constants import AU_KM, DAY_S, GM_SUN_KM3_S2, JULIAN_YEAR_S, KMS_PER_AU_YR
 from .errors import LogFormatError
 from .kepler import eccentric_anomaly, mean_anomaly, true_anomaly
 from .reductions import julian_years_of, split_epoch
@@ -47,24 +49,6 @@ __all__ = [
     "orbital_parallax_mas",
     "component_masses_from_orbit",
 ]
-
-
-def _au_per_yr_kms():
-    """1 au per Julian year in km/s (about 4.74047)."""
-    import astropy.units as u
-    return (1.0 * u.au / u.yr).to_value(u.km / u.s)
-
-
-def _day_s():
-    import astropy.units as u
-    return (1.0 * u.day).to_value(u.s)
-
-
-def _gm_sun_km3_s2():
-    """Nominal solar mass parameter GM_sun (IAU 2015 B3) in km^3 s^-2."""
-    import astropy.constants as const
-    import astropy.units as u
-    return const.GM_sun.to_value(u.km**3 / u.s**2)
 
 
 def radial_velocities(t_yr, period_yr, t_peri_yr, e, omega_deg, K1_kms, K2_kms, gamma_kms):
@@ -102,7 +86,7 @@ def a1_sin_i_km(K1_kms, P_days, e):
 
     a1 sin i = K1 P sqrt(1 - e^2) / (2 pi)  [km], K1 [km/s], P [d].
     """
-    return K1_kms * P_days * _day_s() * np.sqrt(1.0 - np.square(e)) / (2.0 * np.pi)
+    return K1_kms * P_days * DAY_S * np.sqrt(1.0 - np.square(e)) / (2.0 * np.pi)
 
 
 def mass_function_msun(K1_kms, P_days, e):
@@ -110,8 +94,8 @@ def mass_function_msun(K1_kms, P_days, e):
 
     f(M) = P K1^3 (1 - e^2)^(3/2) / (2 pi G M_sun), K1 [km/s], P [d].
     """
-    return (P_days * _day_s() * np.power(K1_kms, 3) * np.power(1.0 - np.square(e), 1.5)
-            / (2.0 * np.pi * _gm_sun_km3_s2()))
+    return (P_days * DAY_S * np.power(K1_kms, 3) * np.power(1.0 - np.square(e), 1.5)
+            / (2.0 * np.pi * GM_SUN_KM3_S2))
 
 
 def m_sin3i_msun(K1_kms, K2_kms, P_days, e):
@@ -120,8 +104,8 @@ def m_sin3i_msun(K1_kms, K2_kms, P_days, e):
     M1 sin^3 i = P (1 - e^2)^(3/2) (K1 + K2)^2 K2 / (2 pi G M_sun), and the same with K1
     for M2; K [km/s], P [d].
     """
-    common = (P_days * _day_s() * np.power(1.0 - np.square(e), 1.5)
-              * np.square(K1_kms + K2_kms) / (2.0 * np.pi * _gm_sun_km3_s2()))
+    common = (P_days * DAY_S * np.power(1.0 - np.square(e), 1.5)
+              * np.square(K1_kms + K2_kms) / (2.0 * np.pi * GM_SUN_KM3_S2))
     return common * K2_kms, common * K1_kms
 
 
@@ -132,12 +116,12 @@ def rv_semi_amplitude_kms(a_au, period_yr, e, i_deg):
     """
     k_au_yr = (2.0 * np.pi * a_au * np.sin(np.radians(i_deg))
                / (period_yr * np.sqrt(1.0 - np.square(e))))
-    return k_au_yr * _au_per_yr_kms()
+    return k_au_yr * KMS_PER_AU_YR
 
 
 def semi_major_axis_au_from_rv(K1_kms, K2_kms, period_yr, e, i_deg):
     """Relative semi-major axis a = (K1 + K2) P sqrt(1 - e^2) / (2 pi sin i) [au]."""
-    k_au_yr = (np.asarray(K1_kms, float) + K2_kms) / _au_per_yr_kms()
+    k_au_yr = (np.asarray(K1_kms, float) + K2_kms) / KMS_PER_AU_YR
     return (k_au_yr * period_yr * np.sqrt(1.0 - np.square(e))
             / (2.0 * np.pi * np.sin(np.radians(i_deg))))
 
@@ -166,10 +150,9 @@ def component_masses_from_orbit(a_au, P_yr, K1_kms, K2_kms):
     M1 + M2 = 4 pi^2 a^3 / (G M_sun P^2) with a [au], P [Julian years], using the IAU
     nominal GM_sun (so the total is 1.0000378 a^3/P^2, not exactly a^3/P^2).
     """
-    import astropy.units as u
-    a_km = np.asarray(a_au, float) * (1.0 * u.au).to_value(u.km)
-    p_s = np.asarray(P_yr, float) * (1.0 * u.yr).to_value(u.s)
-    total = 4.0 * np.pi**2 * a_km**3 / (_gm_sun_km3_s2() * p_s**2)
+    a_km = np.asarray(a_au, float) * AU_KM
+    p_s = np.asarray(P_yr, float) * JULIAN_YEAR_S
+    total = 4.0 * np.pi**2 * a_km**3 / (GM_SUN_KM3_S2 * p_s**2)
     q = np.asarray(K1_kms, float) / K2_kms
     return total / (1.0 + q), total * q / (1.0 + q)
 
