@@ -45,6 +45,7 @@ import numpy as np
 
 from . import formatting as fmt
 from .bounded_least_squares import fit_bounded
+from .constants import JULIAN_YEAR_D as _DAYS_PER_YEAR
 from .elements import (ELEMENT_KEYS, CampbellElements, centre_angles, convention_held,
                        held_angles_as_reported, held_elements, nearest_passage,
                        phase_in_periastron, thiele_innes_from_campbell, turn_node)
@@ -73,7 +74,6 @@ _RV_OUTLIER_SIGMA = 4.0
 # Physical ranges; K >= 0 keeps the wrong node from mimicking the right one with K < 0.
 _BOUNDS = {"P": (0.0, np.inf), "e": (0.0, _E_MAX), "a": (0.0, np.inf), "i": (0.0, 180.0),
            "K1": (0.0, np.inf), "K2": (0.0, np.inf)}
-_DAYS_PER_YEAR = 365.25
 
 
 @dataclass

@@ -43,6 +43,7 @@ import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from .constants import JULIAN_YEAR_D as _JULIAN_YEAR_D
 from .elements import ELEMENT_KEYS, CampbellElements
 from .errors import InputError
 from .reductions import epoch_unit, parse_declination, parse_epoch, parse_right_ascension
@@ -55,7 +56,6 @@ _ERROR_KEYS = tuple(f"{k}_err" for k in ELEMENT_KEYS)
 MANIFEST_KEYS = (("id", "log") + ELEMENT_KEYS + _ERROR_KEYS
                  + ("last_epoch", "parallax_mas", "parallax_err_mas", "q", "q_err", "rv_log",
                     "ra_deg", "dec_deg"))
-_JULIAN_YEAR_D = 365.25
 
 
 @dataclass

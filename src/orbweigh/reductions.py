@@ -29,6 +29,7 @@ import re
 
 import numpy as np
 
+from .constants import JULIAN_YEAR_D as _JULIAN_YEAR_D
 from .errors import InputError
 
 __all__ = ["EPOCH_SCALES", "to_julian_year", "from_julian_year", "epoch_unit", "interval_in_scale",
@@ -41,7 +42,6 @@ __all__ = ["EPOCH_SCALES", "to_julian_year", "from_julian_year", "epoch_unit", "
 EPOCH_SCALES = ("besselian", "julian", "jd", "mjd", "iso")
 
 _J2000_JD = 2451545.0
-_JULIAN_YEAR_D = 365.25
 _MJD_OFFSET = 2400000.5
 #: Besselian epochs: JD = 2415020.31352 + 365.242198781 (B - 1900), in TT here (Lieske
 #: 1979, A&A 73, 282; the IAU 1976 definition of SOFA's iauEpb2jd and iauEpb and of
@@ -162,7 +162,7 @@ def split_epoch(text, day_unit=False):
         # Day counts pass the same window as years (J2000.0 = JD 2451545.0 TT; MJD = JD -
         # 2400000.5; Seidelmann, Explanatory Supplement to the Astronomical Almanac, 1992).
         jd = value + (2400000.5 if scale == "mjd" else 0.0)
-        year = 2000.0 + (jd - 2451545.0) / 365.25
+        year = 2000.0 + (jd - _J2000_JD) / _JULIAN_YEAR_D
         if not PLAUSIBLE_YEARS[0] <= year <= PLAUSIBLE_YEARS[1]:
             raise ValueError(f"epoch '{s}' read as {scale.upper()} {value:.10g} is the year "
                              f"{year:.6g}, outside {PLAUSIBLE_YEARS[0]:.0f}-"

@@ -30,6 +30,7 @@ from pathlib import Path
 
 import numpy as np
 
+from .constants import JULIAN_YEAR_D
 from .elements import ELEMENT_KEYS, CampbellElements
 from .errors import InputError
 from .reductions import EPOCH_SCALES, epoch_unit, to_julian_year
@@ -595,7 +596,7 @@ def element_errors(doc):
         if isinstance(error, (int, float)) and error >= 0:
             errors[key] = float(error)
     if "T" in errors and epoch_unit(epoch_scale_of(doc)) == "d":
-        errors["T"] /= 365.25
+        errors["T"] /= JULIAN_YEAR_D
     return errors
 
 
