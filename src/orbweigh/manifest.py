@@ -46,6 +46,7 @@ from pathlib import Path
 from .constants import JULIAN_YEAR_D as _JULIAN_YEAR_D
 from .elements import ELEMENT_KEYS, CampbellElements
 from .errors import InputError
+from .masses import MassInputError, check_mass_inputs
 from .reductions import epoch_unit, parse_declination, parse_epoch, parse_right_ascension
 from .tables import read_bounded_bytes, split_lines
 
@@ -406,11 +407,6 @@ _MASS_COLUMNS = {"parallax": "parallax_mas", "mass_ratio": "q", "velocity_log": 
 
 def _check_masses(entry, row):
     """The mass inputs by the rule of the command line (``masses.check_mass_inputs``)."""
-    if entry.parallax_mas is None and entry.mass_ratio is None and not row.get("rv_log"):
-        return                               # nothing given: the rule has nothing to refuse
-    # imported here: a batch worker loads this module for its rows, and masses loads
-    # astropy's units and constants (0.3 s), which a worker needs only for a parallax
-    from .masses import MassInputError, check_mass_inputs
     try:
         check_mass_inputs(entry.parallax_mas, entry.mass_ratio,
                           velocity_log=bool(row.get("rv_log")), names=_MASS_COLUMNS)

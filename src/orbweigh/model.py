@@ -6,13 +6,12 @@ degenerate; Campbell elements and their covariance follow by exact transformatio
 """
 from __future__ import annotations
 
-import math
 import threading
 
 import numpy as np
 
 from .elements import wrap_degrees
-from .ephemeris import orbit_xy, xy_to_theta_rho
+from .ephemeris import basis_derivatives, basis_of_anomaly, orbit_xy, xy_to_theta_rho
 from .kepler import anomaly_near
 
 __all__ = ["FIT_KEYS", "predict_theta_rho", "normalised_residuals", "residual_jacobian",
@@ -47,9 +46,9 @@ _LAST_ANOMALY = _LastAnomaly()
 
 
 def _orbit_basis(t, P, T, e):
-    """sin E, cos E, X = cos E - e, Y = sqrt(1 - e^2) sin E at epochs t."""
+    """sin E, cos E, X and Y (``ephemeris.orbit_basis``) at epochs t, E from the cache."""
     sin_e, cos_e = _LAST_ANOMALY.solve(t, P, T, e)
-    return sin_e, cos_e, cos_e - e, np.sqrt(1.0 - e**2) * sin_e
+    return (sin_e, cos_e, *basis_of_anomaly(sin_e, cos_e, e))
 
 
 def _predict_xy(params, t):
@@ -84,25 +83,14 @@ def residual_jacobian(params, t, sigma_theta, sigma_rho):
     """Analytic Jacobian of (r_theta, r_rho) with respect to (P, T, e, A, B, F, G).
 
     Rows as in ``normalised_residuals`` concatenated (all r_theta, then all r_rho).
-    With D = 1 - e cos E: dE/dM = 1/D, dE/de = sin E / D, dM/dP = -M/P, dM/dT = -2 pi/P;
-    d rho = (x dx + y dy)/rho and d theta = (x dy - y dx)/rho^2. Written into
-    preallocated rows: at ~50 points numpy's cost is per call, not per element.
+    X and Y by (P, T, e) from ``ephemeris.basis_derivatives``; d rho = (x dx + y dy)/rho
+    and d theta = (x dy - y dx)/rho^2. Written into preallocated rows: at ~50 points
+    numpy's cost is per call, not per element.
     """
     P, T, e, A, B, F, G = params
     n = t.size
-    M = 2.0 * np.pi * (t - T) / P
     sin_e, cos_e, X, Y = _orbit_basis(t, P, T, e)
-    s = math.sqrt(1.0 - e * e)
-    D = 1.0 - e * cos_e
-    PD = P * D
-    dE = np.empty((3, n))                             # d E / d (P, T, e)
-    np.divide(-M, PD, out=dE[0])
-    np.divide(-2.0 * np.pi, PD, out=dE[1])
-    np.divide(sin_e, D, out=dE[2])
-    dX = -sin_e * dE
-    dY = s * cos_e * dE
-    dX[2] -= 1.0
-    dY[2] -= (e / s) * sin_e
+    dX, dY = basis_derivatives(t, P, T, e, sin_e, cos_e)
     dx, dy = np.empty((7, n)), np.empty((7, n))      # d x, d y / d (P, T, e, A, B, F, G)
     np.add(A * dX, F * dY, out=dx[:3])
     np.add(B * dX, G * dY, out=dy[:3])

@@ -17,7 +17,7 @@ import numpy as np
 from .bounded_least_squares import fit_bounded
 from .elements import (campbell_from_thiele_innes, phase_in_periastron,
                        thiele_innes_from_campbell, wrap_degrees)
-from .ephemeris import orbit_basis
+from .ephemeris import basis_derivatives, basis_of_anomaly, orbit_basis
 from .kepler import sin_cos_anomaly
 from .model import normalised_residuals, residual_jacobian
 
@@ -88,31 +88,29 @@ def polish_cells(trials, t, x, y, w, period_range, constraints=Constraints()):
         v[:, free] = q
         return np.exp(v[:, :1]), v[:, 1:2], v[:, 2:3]
 
-    free_rows = np.flatnonzero(free)
-    e_row = np.flatnonzero(free_rows == 1)
+    # The derivatives' rows (P, T, e) in the polish's order (ln P, e, T), the free ones.
+    free_rows = np.array([0, 2, 1])[free]
 
     def residuals(q, h):
         """Weighted residuals (m, 2n) at points q (m, free) and (m, free, 2n) at their
         difference points q + h_j e_j.
 
         Kepler's equation is solved at q only: X and Y at a difference point follow to
-        first order in h from dE/d(ln P, e, T) (as in ``model.residual_jacobian``), the
+        first order in h from ``ephemeris.basis_derivatives`` (d/d ln P = P d/dP), the
         tangent where a second solve would give the secant; the linear solve for A, B,
         F, G is done at every difference point, so its change with q is differenced.
         """
         period, e, t_peri = at(q)
         sin_e, cos_e = sin_cos_anomaly(t, period, t_peri, e)
-        s = np.sqrt(1.0 - e**2)
-        X, Y = cos_e - e, s * sin_e
-        D = 1.0 - e * cos_e
-        dE = np.stack([-2.0 * np.pi * (t - t_peri) / (period * D), sin_e / D,
-                       -2.0 * np.pi / (period * D)])[free_rows]            # (free, m, n)
-        dX, dY = -sin_e * dE, s * cos_e * dE
-        dX[e_row] -= 1.0
-        dY[e_row] -= (e / s) * sin_e
+        X, Y = basis_of_anomaly(sin_e, cos_e, e)
+        dX, dY = basis_derivatives(t, period, t_peri, e, sin_e, cos_e)
+        dX[0] *= period
+        dY[0] *= period
         steps = h.T[:, :, None]
-        X = np.concatenate([X, (X + steps * dX).transpose(1, 0, 2).reshape(-1, t.size)])
-        Y = np.concatenate([Y, (Y + steps * dY).transpose(1, 0, 2).reshape(-1, t.size)])
+        X = np.concatenate([X, (X + steps * dX[free_rows]).transpose(1, 0, 2)
+                            .reshape(-1, t.size)])
+        Y = np.concatenate([Y, (Y + steps * dY[free_rows]).transpose(1, 0, 2)
+                            .reshape(-1, t.size)])
         A, B, F, G, _ = (c[:, None] for c in linear_thiele_innes(X, Y, x, y, w))
         both = np.hstack([sw * (x - A * X - F * Y), sw * (y - B * X - G * Y)])
         k = len(q)

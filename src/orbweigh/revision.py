@@ -361,7 +361,8 @@ def compare_orbits(old, new, start_yr, sigma_arcsec, old_errors=None, new_errors
     -------
     dict
         ``elements``: {key: {old, new, difference, sigma, n_sigma, new_error}} (n_sigma
-        None when no error is known; new_error: the new value's, T's as moved, or None); ``window_yr``; ``max_separation_arcsec``; ``epoch_of_max_yr``;
+        None when no error is known; new_error: the new value's, T's as moved, or None);
+        ``window_yr``; ``max_separation_arcsec``; ``epoch_of_max_yr``;
         ``max_separation_sigma``; ``typical_sigma_arcsec``.
     """
     old_errors, new_errors = old_errors or {}, dict(new_errors or {})

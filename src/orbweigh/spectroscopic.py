@@ -31,7 +31,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from .constants import AU_KM, DAY_S, GM_SUN_KM3_S2, JULIAN_YEAR_S, KMS_PER_AU_YR
+from .constants import DAY_S, GM_SUN_KM3_S2, KMS_PER_AU_YR, THIRD_LAW_FACTOR
 from .errors import LogFormatError
 from .kepler import eccentric_anomaly, mean_anomaly, true_anomaly
 from .reductions import julian_years_of, split_epoch
@@ -150,9 +150,7 @@ def component_masses_from_orbit(a_au, P_yr, K1_kms, K2_kms):
     M1 + M2 = 4 pi^2 a^3 / (G M_sun P^2) with a [au], P [Julian years], using the IAU
     nominal GM_sun (so the total is 1.0000378 a^3/P^2, not exactly a^3/P^2).
     """
-    a_km = np.asarray(a_au, float) * AU_KM
-    p_s = np.asarray(P_yr, float) * JULIAN_YEAR_S
-    total = 4.0 * np.pi**2 * a_km**3 / (GM_SUN_KM3_S2 * p_s**2)
+    total = THIRD_LAW_FACTOR * np.asarray(a_au, float) ** 3 / np.asarray(P_yr, float) ** 2
     q = np.asarray(K1_kms, float) / K2_kms
     return total / (1.0 + q), total * q / (1.0 + q)
 
